@@ -1,0 +1,28 @@
+"""resonance: screening studies for power-factor-correction capacitor banks.
+
+Frequency scans of every bank step, harmonic penetration, capacitor duty and
+distortion limits, detuning proposals and a submittal report, from one case file.
+
+Importing this package is cheap: pandapower and matplotlib are imported only
+by the modules that need them (``netmodel``, ``plots``, ``report``).
+"""
+
+__version__ = "0.1.0"
+
+__all__ = ["__version__", "load_case", "run_study", "InputError", "ResonanceError"]
+
+
+def __getattr__(name):  # lazy re-exports keep `resonance --help` fast
+    if name == "load_case":
+        from .case import load_case
+
+        return load_case
+    if name == "run_study":
+        from .study import run_study
+
+        return run_study
+    if name in ("InputError", "ResonanceError"):
+        from . import errors
+
+        return getattr(errors, name)
+    raise AttributeError(name)

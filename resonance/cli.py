@@ -1,0 +1,169 @@
+"""Command-line interface: ``resonance check CASE --out DIR``.
+
+Exit status: 0 every check passes; 1 a finding beyond a limit; 2 bad input or usage.
+Heavy libraries (pandapower, matplotlib) are imported only inside the commands.
+"""
+
+from __future__ import annotations
+
+import argparse
+import hashlib
+import json
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError, ModelError, ResonanceError
+
+__all__ = ["main", "build_parser"]
+
+EXIT_OK, EXIT_FINDING, EXIT_INPUT = 0, 1, 2
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # usage errors -> exit 2 with one clear line
+        self.print_usage(sys.stderr)
+        print(f"resonance: error: {message}", file=sys.stderr)
+        raise SystemExit(EXIT_INPUT)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (also used to generate docs/cli.md)."""
+    p = _Parser(prog="resonance", description=(
+        "Screening studies for power-factor-correction capacitor banks: frequency scan of every bank "
+        "step, harmonic penetration, capacitor duty and distortion limits, detuning proposals."),
+        epilog="Exit status: 0 all checks pass, 1 a finding beyond a limit, 2 bad input or usage.")
+    p.add_argument("--version", action="version", version=f"resonance {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    c = sub.add_parser("check", help="run the full check of a case file and write results",
+                       description="Run the full check of a case file: scans, penetration, duty, limits, detuning.")
+    c.add_argument("case", metavar="CASE", help="case file (TOML)")
+    c.add_argument("--out", metavar="DIR", required=True, help="output directory (created if missing)")
+    c.add_argument("--no-plots", action="store_true", help="write results.json and tables only")
+    c.add_argument("--no-report", action="store_true", help="skip the PDF report")
+    c.add_argument("--quiet", action="store_true", help="print only findings")
+    try:
+        from .sizing_cli import add_parser as _add_size  # noqa: PLC0415
+    except ImportError:  # pragma: no cover - sizing is optional at import time
+        _add_size = None
+    if _add_size is not None:
+        _add_size(sub)
+    return p
+
+
+def _fmt(x, nd=2, w=7):
+    return f"{x:{w}.{nd}f}" if x is not None else f"{'-':>{w}}"
+
+
+def _summary(data: dict) -> str:
+    lines = [f"{data['case']['title']}  ({data['case']['frequency_hz']} Hz)"]
+    for b in data["banks"]:
+        kind = f"detuned p = {b['detuning_pct']:g} %" if b.get("detuning_pct") else "plain"
+        lines.append(f"\nbank {b['name']} at {b['bus']} ({b['bus_kv']:g} kV, {kind}); "
+                     f"S_sc = {b['sc_mva']:.2f} MVA (IEC 60909: "
+                     f"{b['sc_mva_iec60909'] if b['sc_mva_iec60909'] is not None else '-'} MVA)")
+        lines.append("  step    kvar  h_est  h_scan  near  margin%  result")
+        for s in b["steps"]:
+            res = "ok" if s["resonance_ok"] and s.get("duty_ok", True) is not False else "FINDING"
+            near = f"{s['nearest_order']:>4}" if s["nearest_order"] is not None else "   -"
+            lines.append(f"  {s['step']:>4} {s['kvar_nameplate']:>7.0f} {_fmt(s['h_estimate'], 2, 6)} "
+                         f"{_fmt(s['h_scan'], 2, 7)} {near} {_fmt(s['margin_pct'], 1, 8)}  {res}")
+    return "\n".join(lines)
+
+
+def _check(args) -> int:
+    from .case import load_case  # noqa: PLC0415
+    from .study import run_study  # noqa: PLC0415
+    from .results import to_dict, CAUTION  # noqa: PLC0415
+    from .outputs import OutputDir  # noqa: PLC0415
+
+    case_path = Path(args.case)
+    case = load_case(case_path)
+    protect = [case_path]
+    if case.network is not None:
+        protect.append(Path(case.base_dir) / case.network.pandapower_json)
+    out = OutputDir(args.out, protect=protect)
+    try:
+        res = run_study(case)
+        sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
+        data = to_dict(res, sha)
+        out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
+        from .tables import write_scan_tables  # noqa: PLC0415
+        write_scan_tables(res, out)
+        if not args.no_plots:
+            from .plots import scan_figure  # noqa: PLC0415
+            import matplotlib.pyplot as plt  # noqa: PLC0415
+
+            for sc in res.scans:
+                if sc.scenario != "nominal":
+                    continue
+                weak = res.scans_for(sc.bank.name, "weak")
+                fig = scan_figure(res, sc)
+                safe = _safe(sc.bank.name)
+                fig.savefig(out.file(f"scan_{safe}.png"))
+                fig.savefig(out.file(f"scan_{safe}.svg"))
+                plt.close(fig)
+                if weak is not None:
+                    fig = scan_figure(res, weak)
+                    fig.savefig(out.file(f"scan_{safe}_weak.png"))
+                    plt.close(fig)
+        written = out.commit()
+    except BaseException:
+        out.discard()
+        raise
+    if not args.quiet:
+        print(_summary(data))
+        print()
+    for f in data["findings"]:
+        print(f"FINDING: {f['message']}")
+    for w in data["warnings"]:
+        if not args.quiet:
+            print(f"note: {w}")
+    if not args.quiet:
+        print(f"\nwrote {len(written)} files to {Path(args.out)}: " + ", ".join(p.name for p in written))
+        print(f"\n{CAUTION}")
+    return EXIT_OK if data["passed"] else EXIT_FINDING
+
+
+def _safe(name: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; returns the exit status.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        Arguments (``sys.argv[1:]`` when None).
+
+    Returns
+    -------
+    int
+        0 all checks pass, 1 a finding beyond a limit, 2 bad input or usage.
+    """
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as e:
+        return int(e.code or 0)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_INPUT
+    try:
+        if args.command == "check":
+            return _check(args)
+        return int(args.run(args))
+    except InputError as e:
+        for p in e.problems:
+            print(f"error: {p}", file=sys.stderr)
+        return EXIT_INPUT
+    except ModelError as e:
+        print(f"error: the network model cannot be solved: {e}", file=sys.stderr)
+        return EXIT_INPUT
+    except ResonanceError as e:
+        print(f"error: {e}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("interrupted; no partial outputs were left", file=sys.stderr)
+        return 130

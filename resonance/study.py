@@ -1,0 +1,371 @@
+"""Orchestrator: case -> plant model -> scans of every bank step -> StudyResult.
+
+Pure apart from the pandapower calls made through :mod:`resonance.netmodel`
+(load flow, IEC 60909): no files, no printing, no plotting.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .admittance import YPattern, bank_step_admittance
+from .case import Case
+from .errors import InputError, InputProblem, ModelError
+from .network import NetworkArrays
+from .scan import ModelSettings, find_peaks, harmonic_grid, impedance_columns, refine_peaks, step_update
+from .screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
+
+__all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models"]
+
+
+@dataclass(frozen=True, eq=False)
+class BankModel:
+    """A bank as the core sees it.
+
+    Attributes
+    ----------
+    name, bus : str
+        Bank and bus names.
+    index : int
+        Model bus index [unitless].
+    bus_kv, rated_kv : float
+        Bus nominal and capacitor rated voltage [kV].
+    stages_kvar : ndarray
+        Stage sizes at rated voltage [kvar].
+    p : float
+        Detuning factor X_L/X_C [unitless] (0: plain bank).
+    reactor_q : float
+        Reactor X/R [unitless].
+    """
+
+    name: str
+    bus: str
+    index: int
+    bus_kv: float
+    rated_kv: float
+    stages_kvar: np.ndarray
+    p: float
+    reactor_q: float
+
+    @property
+    def n_steps(self) -> int:
+        """Number of steps [unitless]."""
+        return int(self.stages_kvar.size)
+
+    def q_cap_nominal_kvar(self) -> np.ndarray:
+        """Cumulative capacitor kvar of steps 1..N at the bus nominal voltage [kvar].
+
+        Notes
+        -----
+        ``Q = Q_rated (U_n / U_R)^2`` (constant capacitance).
+        """
+        return np.cumsum(self.stages_kvar) * (self.bus_kv / self.rated_kv) ** 2
+
+    def step_b_pu(self, base_mva: float) -> np.ndarray:
+        """Capacitor susceptance ``1/X_C`` of steps 1..N at the fundamental [pu]."""
+        return self.q_cap_nominal_kvar() / 1000.0 / base_mva
+
+    def step_admittance(self, h: np.ndarray, base_mva: float) -> np.ndarray:
+        """Admittance of steps 1..N at orders h, shape (n_h, N) [pu]."""
+        return bank_step_admittance(h, self.step_b_pu(base_mva), self.p, self.reactor_q)
+
+
+def bank_models(case: Case, arr: NetworkArrays, model_bus: dict) -> list[BankModel]:
+    """Bank models for every bank of the case [see :class:`BankModel`]."""
+    out = []
+    for b in case.bank:
+        m = model_bus[b.bus]
+        out.append(BankModel(name=b.name, bus=b.bus, index=m, bus_kv=float(arr.bus_kv[m]), rated_kv=b.rated_kv,
+                             stages_kvar=np.asarray(b.steps_kvar, float),
+                             p=(b.detuning_pct or 0.0) / 100.0, reactor_q=b.reactor_q))
+    return out
+
+
+@dataclass(frozen=True, eq=False)
+class StepScan:
+    """Screening result of one step of one bank in one supply scenario.
+
+    Units: kvar [kvar], voltages [pu], orders [unitless], impedance [ohm], margin [%].
+    """
+
+    step: int
+    kvar_nameplate: float
+    kvar_nominal: float
+    kvar_delivered: float
+    v_bus_pu: float
+    h_estimate: float
+    h_scan: float | None
+    z_peak_ohm: float | None
+    peaks: tuple
+    nearest_order: int | None
+    nearest_kind: str | None
+    margin_pct: float | None
+    resonance_ok: bool
+    damping_sensitive: bool
+
+
+@dataclass(frozen=True, eq=False)
+class BankScan:
+    """All steps of one bank in one supply scenario, with the scan curves.
+
+    Attributes
+    ----------
+    scenario : str
+        "nominal" or "weak".
+    sc_mva : float
+        Physical (c = 1) short-circuit power at the bank bus, loads excluded [MVA].
+    x_r : float
+        X/R of the Thevenin impedance at the bank bus [unitless].
+    h : ndarray, shape (n_h,)
+        Scan orders [unitless].
+    z_ohm : ndarray, shape (N + 1, n_h)
+        Driving-point impedance magnitude at the bank bus, row 0 bank off [ohm].
+    z_pcc_ohm : ndarray, shape (N + 1, n_h)
+        Driving-point impedance magnitude at the PCC bus [ohm].
+    steps : tuple of StepScan
+    """
+
+    bank: BankModel
+    scenario: str
+    sc_mva: float
+    x_r: float
+    h: np.ndarray
+    z_ohm: np.ndarray
+    z_pcc_ohm: np.ndarray
+    steps: tuple
+
+
+@dataclass(frozen=True, eq=False)
+class StudyResult:
+    """Everything the study found; the edge writes it out."""
+
+    case: Case
+    orders: HarmonicOrders
+    scans: tuple
+    sc_mva_iec60909: dict
+    pcc_bus: str
+    settings: ModelSettings
+    findings: tuple
+    warnings: tuple = field(default_factory=tuple)
+    extras: dict = field(default_factory=dict)
+
+    @property
+    def passed(self) -> bool:
+        """True when no finding exceeds a limit."""
+        return not self.findings
+
+    def scans_for(self, bank: str, scenario: str = "nominal") -> BankScan | None:
+        """The scan of one bank in one scenario (None if absent)."""
+        for s in self.scans:
+            if s.bank.name == bank and s.scenario == scenario:
+                return s
+        return None
+
+
+def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) -> np.ndarray:
+    """Driving-point impedance at the fundamental, loads excluded (short-circuit impedance).
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    buses : ndarray of int
+        Buses [unitless].
+    settings : ModelSettings
+        Element models (the resistance model matters little at h = 1).
+
+    Returns
+    -------
+    ndarray, complex
+        ``Z_kk(1)`` [pu].
+
+    References
+    ----------
+    IEC 60909-0:2016, clause 4.2 (short-circuit impedance at the fault
+    location, here with c = 1 and no correction factors).
+    """
+    buses = np.asarray(buses, int)
+    z = impedance_columns(arr.without_loads(), np.array([1.0]), buses,
+                          ModelSettings(settings.r_model, "none"), rows=buses)
+    return np.diagonal(z[0])
+
+
+def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], other_mode: str, pcc: int,
+               h: np.ndarray, settings: ModelSettings, orders: HarmonicOrders, margin_pct: float,
+               vm_steps: np.ndarray, scenario: str, pattern: YPattern, h_step: float) -> BankScan:
+    base = arr.base_mva
+    cols = np.unique(np.array([bank.index, pcc], int))
+    kc = int(np.nonzero(cols == bank.index)[0][0])
+    pc = int(np.nonzero(cols == pcc)[0][0])
+
+    def extra(hh: np.ndarray) -> np.ndarray | None:
+        if other_mode != "full" or not others:
+            return None
+        d = np.zeros((hh.size, arr.n_bus), complex)
+        for ob in others:
+            d[:, ob.index] += ob.step_admittance(hh, base)[:, -1]
+        return d
+
+    try:
+        z0 = impedance_columns(arr, h, cols, settings, extra(h), rows=cols, pattern=pattern)
+    except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
+        raise ModelError(f"network admittance is singular ({e})") from None
+    ys = bank.step_admittance(h, base)  # (n_h, N)
+    zs = step_update(z0, kc, kc, ys)  # (n_h, N, r, m)
+    zkk = np.concatenate([z0[:, None, kc, kc], zs[:, :, kc, kc]], axis=1).T  # (N+1, n_h)
+    zpp = np.concatenate([z0[:, None, pc, pc], zs[:, :, pc, pc]], axis=1).T
+    zb_k = bank.bus_kv**2 / base
+    zb_p = float(arr.bus_kv[pcc]) ** 2 / base
+    zt = thevenin_pu(arr if other_mode != "full" else arr, np.array([bank.index]), settings)[0]
+    sc_mva = base / abs(zt)
+    x_r = zt.imag / zt.real if zt.real > 0 else float("inf")
+    q_nom = bank.q_cap_nominal_kvar()
+    peaks_idx = find_peaks(h, np.abs(zkk[1:]))
+    # refine every peak of every step in one batch
+    flat_h, flat_step = [], []
+    for s, idx in enumerate(peaks_idx):
+        flat_h += list(h[idx])
+        flat_step += [s] * idx.size
+    flat_h_arr = np.array(flat_h, float)
+    flat_step_arr = np.array(flat_step, int)
+
+    def fun(hh: np.ndarray, which: np.ndarray) -> np.ndarray:
+        z = impedance_columns(arr, hh, np.array([bank.index]), settings, extra(hh),
+                              rows=np.array([bank.index]), pattern=pattern)[:, 0, 0]
+        y = bank.step_admittance(hh, base)[np.arange(hh.size), flat_step_arr[which]]
+        return np.abs(z / (1.0 + y * z))
+
+    h_ref, z_ref = refine_peaks(fun, flat_h_arr, h_step)
+    steps = []
+    for s in range(bank.n_steps):
+        sel = flat_step_arr == s
+        hp, zp = h_ref[sel], z_ref[sel]
+        # amplification against the bank-off impedance picks the bank's own resonance
+        z_off = np.interp(hp, h, np.abs(zkk[0])) if hp.size else hp
+        amp = zp / np.maximum(z_off, 1e-300)
+        peaks = tuple((float(a), float(b * zb_k), float(c)) for a, b, c in zip(hp, zp, amp))
+        if hp.size:
+            j = int(np.argmax(amp))
+            h_scan, z_pk = float(hp[j]), float(zp[j] * zb_k)
+            near, kind, margin = nearest_order(h_scan, orders)
+            ok = margin is None or abs(margin) > margin_pct
+            sensitive = bool(amp[j] > 10.0)
+        else:
+            h_scan = z_pk = None
+            near = kind = margin = None
+            ok, sensitive = True, False
+        vm = float(vm_steps[s])
+        factor = 1.0 / (1.0 - bank.p)
+        steps.append(StepScan(
+            step=s + 1, kvar_nameplate=float(np.sum(bank.stages_kvar[: s + 1])),
+            kvar_nominal=float(q_nom[s] * factor), kvar_delivered=float(q_nom[s] * factor * vm**2),
+            v_bus_pu=vm, h_estimate=h_estimate(sc_mva * 1000.0, float(q_nom[s]), bank.p),
+            h_scan=h_scan, z_peak_ohm=z_pk, peaks=peaks, nearest_order=near, nearest_kind=kind,
+            margin_pct=margin, resonance_ok=ok, damping_sensitive=sensitive))
+    return BankScan(bank=bank, scenario=scenario, sc_mva=float(sc_mva), x_r=float(x_r), h=h,
+                    z_ohm=np.abs(zkk) * zb_k, z_pcc_ohm=np.abs(zpp) * zb_p, steps=tuple(steps))
+
+
+def _source_orders(case: Case) -> tuple[list[tuple[str, dict, int]], list[InputProblem]]:
+    """Resolved spectra of every harmonic source: (name, {order: pct}, pulse)."""
+    from .spectra import resolve_spectrum  # noqa: PLC0415
+
+    out, probs = [], []
+    for i, hs in enumerate(case.harmonic_source):
+        try:
+            sp_ = resolve_spectrum(hs.spectrum, file=case.source_file, field=f"harmonic_source[{i}].spectrum")
+        except InputError as e:
+            probs += e.problems
+            continue
+        out.append((hs.name, dict(zip((int(x) for x in sp_.orders), (float(x) for x in sp_.pct))), int(sp_.pulse)))
+    return out, probs
+
+
+def run_study(case: Case, model=None) -> StudyResult:
+    """Run the screening study of a case.
+
+    Parameters
+    ----------
+    case : Case
+        Validated case.
+    model : PlantModel, optional
+        Pre-built plant model (built from the case when None).
+
+    Returns
+    -------
+    StudyResult
+        Scans, steps and findings of every bank (nominal and weak supply).
+
+    Raises
+    ------
+    InputError
+        Inputs that are valid by schema but unusable (unknown spectrum names,
+        a network file that does not fit).
+    """
+    from . import netmodel  # noqa: PLC0415  (pandapower is imported only here)
+
+    sources, probs = _source_orders(case)
+    if probs:
+        raise InputError(probs)
+    if model is None:
+        model = netmodel.build_model(case)
+    arr = model.arrays
+    st = case.study
+    settings = ModelSettings(st.resistance_model, st.load_model)
+    banks = bank_models(case, arr, model.model_bus)
+    pcc_name = case.study.pcc_bus or model.supply_bus
+    pcc = model.model_bus[pcc_name]
+    background = dict(case.supply.background_pct) if case.supply else {}
+    orders = orders_of_concern(sources, background, st.h_max)
+    h = harmonic_grid(st.h_max, st.h_step)
+    pattern = YPattern.build(arr)
+    warnings_: list[str] = []
+    # fundamental voltage of every step from a load flow with that step in service
+    vm: dict[str, np.ndarray] = {}
+    for b in banks:
+        others = [o for o in banks if o is not b]
+        base_sh = [(o.bus, float(o.q_cap_nominal_kvar()[-1] / (1 - o.p))) for o in others] if st.other_banks == "full" else []
+        v = np.ones(b.n_steps)
+        for s in range(b.n_steps):
+            q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
+            try:
+                v[s] = netmodel.load_flow_vm_pu(model, base_sh + [(b.bus, q)])[b.index]
+            except ModelError as e:
+                warnings_.append(f"bank {b.name} step {s + 1}: {e}; nominal voltage assumed")
+        vm[b.name] = v
+    scans = []
+    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
+        if a is None:
+            continue
+        for b in banks:
+            others = [o for o in banks if o is not b]
+            scans.append(_scan_bank(a, b, others, st.other_banks, pcc, h, settings, orders, st.margin_pct,
+                                    vm[b.name], scenario, pattern, st.h_step))
+    try:
+        sc_iec = netmodel.iec60909_sc_mva(model, sorted({b.bus for b in banks} | {pcc_name}))
+    except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
+        sc_iec = {}
+        warnings_.append(f"IEC 60909 cross-check not available ({type(e).__name__})")
+    findings = []
+    for sc in scans:
+        for s in sc.steps:
+            if not s.resonance_ok:
+                findings.append({
+                    "bank": sc.bank.name, "step": s.step, "scenario": sc.scenario, "check": "resonance",
+                    "value": s.h_scan, "limit": st.margin_pct,
+                    "message": (f"bank {sc.bank.name} step {s.step} ({sc.scenario} supply): resonance at "
+                                f"h = {s.h_scan:.2f} is {abs(s.margin_pct):.1f} % from the {s.nearest_kind} "
+                                f"order {s.nearest_order} (screening margin {st.margin_pct:g} %)"),
+                })
+            if s.damping_sensitive and s.h_scan is not None:
+                warnings_.append(f"bank {sc.bank.name} step {s.step} ({sc.scenario}): peak at h = {s.h_scan:.2f} "
+                                 "is lightly damped; harmonic voltages there depend strongly on the load model")
+        if sc.steps and sc.steps[0].h_scan is None:
+            warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
+    _ = math
+    return StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909=sc_iec, pcc_bus=pcc_name,
+                       settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
+                       extras={"model": model, "sources": sources})
