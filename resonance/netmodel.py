@@ -203,7 +203,7 @@ def _from_network_file(case: Case):
     return net, bus_pp, supply_bus, sc, xr, sc_min, xr_min
 
 
-def net_to_arrays(net, sc_by_grid: dict | None = None) -> tuple[NetworkArrays, np.ndarray]:
+def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool = True) -> tuple[NetworkArrays, np.ndarray]:
     """Convert a pandapower net into :class:`NetworkArrays` (on a copy of the net).
 
     Parameters
@@ -212,6 +212,8 @@ def net_to_arrays(net, sc_by_grid: dict | None = None) -> tuple[NetworkArrays, n
         Network; not modified.
     sc_by_grid : dict, optional
         ext_grid index -> (sc_mva [MVA], x_r [unitless]) overriding the table.
+    require_grid_data : bool
+        Raise when an external grid lacks short-circuit data (else leave it out).
 
     Returns
     -------
@@ -281,6 +283,10 @@ def net_to_arrays(net, sc_by_grid: dict | None = None) -> tuple[NetworkArrays, n
     if np.any(asym[ok] > 0):
         raise ModelError("the network holds branches with asymmetric impedance; the harmonic model needs symmetric branches")
     sel = np.nonzero(ok)[0]
+    # pandapower 3.x keeps the branch shunt conductance (transformer iron losses) apart
+    br_g = np.asarray(ppc["branch_g"], float).ravel() if "branch_g" in ppc else col(B.BR_G)
+    if br_g.size != branch.shape[0]:
+        br_g = col(B.BR_G)
     # shunts from the shunt table (capacitors and reactors kept apart)
     sh_bus, sh_g, sh_b = [], [], []
     if len(net.shunt):
@@ -331,6 +337,8 @@ def net_to_arrays(net, sc_by_grid: dict | None = None) -> tuple[NetworkArrays, n
             rx = float(r.get("rx_max", float("nan")))
             xr = 1.0 / rx if rx and np.isfinite(rx) and rx > 0 else float("nan")
         if not (np.isfinite(sc) and sc > 0 and np.isfinite(xr) and xr > 0):
+            if not require_grid_data:
+                continue
             raise ModelError(f"external grid {gi} has no short-circuit data (s_sc_max_mva, rx_max)")
         rg, xg = supply_impedance_pu(sc, xr, base)
         g_bus.append(m)
@@ -340,7 +348,7 @@ def net_to_arrays(net, sc_by_grid: dict | None = None) -> tuple[NetworkArrays, n
         f_hz=float(net.f_hz), base_mva=base, bus_names=tuple(names), bus_kv=bus_kv,
         br_from=new[f[sel]], br_to=new[t[sel]],
         br_r_pu=branch[sel, B.BR_R].real.astype(float), br_x_pu=branch[sel, B.BR_X].real.astype(float),
-        br_g_pu=col(B.BR_G)[sel], br_b_pu=col(B.BR_B)[sel],
+        br_g_pu=br_g[sel], br_b_pu=col(B.BR_B)[sel],
         br_tap=tap[sel].astype(complex), br_kind=kind[sel],
         sh_bus=np.array(sh_bus, int), sh_g_pu=np.array(sh_g, float), sh_b_pu=np.array(sh_b, float),
         load_bus=np.array(ld_bus, int), load_p_pu=np.array(ld_p, float), load_q_pu=np.array(ld_q, float),
@@ -429,6 +437,7 @@ def load_flow_vm_pu(model: PlantModel, shunts: list[tuple[str, float]]) -> np.nd
     """
     pp = _pp()
     net = copy.deepcopy(model.net)
+    _supply_behind_impedance(pp, net, model)
     for bus, q_kvar in shunts:
         b = model.bus_pp[bus]
         pp.create_shunt(net, b, q_mvar=-q_kvar / 1000.0, p_mw=0.0, vn_kv=float(net.bus.at[b, "vn_kv"]))
@@ -443,6 +452,33 @@ def load_flow_vm_pu(model: PlantModel, shunts: list[tuple[str, float]]) -> np.nd
     for name, m in model.model_bus.items():
         vm[m] = float(net.res_bus.at[model.bus_pp[name], "vm_pu"])
     return vm
+
+
+def _supply_behind_impedance(pp, net, model: PlantModel) -> None:
+    """Put each external grid behind its Thevenin impedance (load-flow copy only).
+
+    pandapower's external grid is an ideal source in the load flow; the
+    voltage rise of a bank step depends on the supply impedance, so the
+    source EMF (``vm_pu``) is moved to an auxiliary bus joined to the supply
+    bus through the physical (c = 1) short-circuit impedance.
+    """
+    sup = model.bus_pp[model.supply_bus]
+    for gi in list(net.ext_grid.index):
+        if not bool(net.ext_grid.at[gi, "in_service"]):
+            continue
+        b = int(net.ext_grid.at[gi, "bus"])
+        if b == sup:
+            sc, xr = model.sc_mva_supply, model.x_r_supply
+        else:
+            sc = float(net.ext_grid.at[gi, "s_sc_max_mva"]) if "s_sc_max_mva" in net.ext_grid else float("nan")
+            rx = float(net.ext_grid.at[gi, "rx_max"]) if "rx_max" in net.ext_grid else float("nan")
+            xr = 1.0 / rx if np.isfinite(rx) and rx > 0 else float("nan")
+        if not (np.isfinite(sc) and sc > 0 and np.isfinite(xr) and xr > 0):
+            continue
+        r_pu, x_pu = supply_impedance_pu(sc, xr, float(net.sn_mva))
+        aux = pp.create_bus(net, vn_kv=float(net.bus.at[b, "vn_kv"]), name=f"__source_emf_{gi}")
+        pp.create_impedance(net, aux, b, rft_pu=r_pu, xft_pu=x_pu, sn_mva=float(net.sn_mva))
+        net.ext_grid.at[gi, "bus"] = aux
 
 
 def iec60909_sc_mva(model: PlantModel, buses: list[str], case: str = "max") -> dict[str, float]:

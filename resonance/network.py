@@ -97,6 +97,10 @@ class NetworkArrays:
         """Copy with a different supply impedance (e.g. the weak-supply scenario)."""
         return replace(self, grid_r_pu=np.asarray(r_pu, float), grid_x_pu=np.asarray(x_pu, float))
 
+    def without_grid(self) -> "NetworkArrays":
+        """Copy with the supply impedance removed (the bare network's Ybus)."""
+        return replace(self, grid_bus=np.zeros(0, int), grid_r_pu=np.zeros(0), grid_x_pu=np.zeros(0))
+
     def without_loads(self) -> "NetworkArrays":
         """Copy with every linear load removed (for short-circuit power)."""
         return replace(self, load_bus=np.zeros(0, int), load_p_pu=np.zeros(0), load_q_pu=np.zeros(0))

@@ -271,16 +271,18 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
 
 def _source_orders(case: Case) -> tuple[list[tuple[str, dict, int]], list[InputProblem]]:
     """Resolved spectra of every harmonic source: (name, {order: pct}, pulse)."""
-    from .spectra import resolve_spectrum  # noqa: PLC0415
-
     out, probs = [], []
     for i, hs in enumerate(case.harmonic_source):
+        from .spectra import resolve_spectrum  # noqa: PLC0415
+
         try:
-            sp_ = resolve_spectrum(hs.spectrum, file=case.source_file, field=f"harmonic_source[{i}].spectrum")
+            sp_ = resolve_spectrum(hs.spectrum, file=case.source_file, field=f"harmonic_source[{i}].spectrum",
+                                   phase_deg=hs.phase_deg or None)
         except InputError as e:
             probs += e.problems
             continue
-        out.append((hs.name, dict(zip((int(x) for x in sp_.orders), (float(x) for x in sp_.pct))), int(sp_.pulse)))
+        out.append((hs.name, dict(zip((int(x) for x in sp_.h), (float(x) for x in sp_.pct))),
+                    int(sp_.pulse_number or 6)))
     return out, probs
 
 
