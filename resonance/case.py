@@ -306,9 +306,12 @@ def _unit_hints(raw: dict, file: str) -> list[InputProblem]:
     for i, t in enumerate(raw.get("transformer") or []):
         if not isinstance(t, dict):
             continue
+        hv = t.get("hv_kv")
         for k in ("hv_kv", "lv_kv"):
             v = t.get(k)
-            if isinstance(v, (int, float)) and v > 1000:
+            volts_lv = (k == "lv_kv" and isinstance(v, (int, float)) and isinstance(hv, (int, float))
+                        and v > hv and v >= 100 and v / 1000 < hv)
+            if isinstance(v, (int, float)) and (v > 1000 or volts_lv):
                 probs.append(InputProblem(file, f"transformer[{i}].{k}", f"{v} kV looks like a value in volts; give kV (e.g. {v / 1000:g})"))
         z = t.get("z_pct")
         if isinstance(z, (int, float)) and 0 < z <= 0.5:
@@ -322,7 +325,7 @@ def _unit_hints(raw: dict, file: str) -> list[InputProblem]:
     for i, l in enumerate(raw.get("load") or []):
         if isinstance(l, dict):
             pf = l.get("pf")
-            if isinstance(pf, (int, float)) and 1 < pf <= 100:
+            if isinstance(pf, (int, float)) and 10 <= pf <= 100:
                 probs.append(InputProblem(file, f"load[{i}].pf", f"{pf} looks like a percentage; give the power factor as a fraction (e.g. {pf / 100:g})"))
     return probs
 

@@ -50,23 +50,25 @@ class DutyLimits:
     v_rms : float
         Limit on rms voltage including harmonics, per unit of rated rms voltage [pu].
     v_rms_source : str
-        Where ``v_rms`` comes from, with its marker ([published], [memory], [derived]).
+        Where ``v_rms`` comes from, with its marker (published, memory, derived)
+        [unitless].
     v_peak : float
         Limit on crest voltage including harmonics, per unit of ``sqrt(2)`` times
         the rated rms voltage [pu].
     v_peak_source : str
-        Where ``v_peak`` comes from.
+        Where ``v_peak`` comes from [unitless].
     i_rms : float
         Limit on rms current including harmonics, per unit of the nominal current
         from rated kvar and rated voltage [pu].
     i_rms_source : str
-        Where ``i_rms`` comes from.
+        Where ``i_rms`` comes from [unitless].
     q : float
         Limit on reactive power including harmonics, per unit of rated kvar [pu].
     q_source : str
-        Where ``q`` comes from.
+        Where ``q`` comes from [unitless].
     note : str
-        How the standard qualifies the limits (e.g. contingency, not design basis).
+        How the standard qualifies the limits (e.g. contingency, not design
+        basis) [unitless].
     """
 
     name: str
@@ -196,7 +198,7 @@ class DutyResult:
     Attributes
     ----------
     limits : DutyLimits
-        The limit set the margins refer to.
+        The limit set the margins refer to [pu].
     v_rms_pct : ndarray
         rms voltage including harmonics [% of rated rms voltage].
     v_peak_pct : ndarray
@@ -206,7 +208,7 @@ class DutyResult:
     kvar_pct : ndarray
         Reactive power including harmonics [% of rated kvar].
     v_rms_margin_pct, v_peak_margin_pct, i_rms_margin_pct, kvar_margin_pct : ndarray
-        Limit minus value [percentage points]; negative means exceeded.
+        Limit minus value; negative means exceeded [percentage points].
     min_margin_pct : ndarray
         Smallest of the four margins [percentage points].
     governing : ndarray of str
@@ -250,7 +252,7 @@ def capacitor_duty(h: np.ndarray, v_cap_pu: np.ndarray, limits: DutyLimits) -> D
         bank steps or cases) computed at once.  Complex phasors are accepted
         and their magnitudes used.  For a detuned bank pass the voltage across
         the capacitor itself (which exceeds the bus voltage by about
-        ``1 / (1 - p)`` at the fundamental), not the bus voltage.
+        ``1 / (1 - p)`` at the fundamental), not the bus voltage [pu].
     limits : DutyLimits
         Limit set, e.g. from :func:`duty_limits` [pu].
 
@@ -258,7 +260,8 @@ def capacitor_duty(h: np.ndarray, v_cap_pu: np.ndarray, limits: DutyLimits) -> D
     -------
     DutyResult
         Values in percent of rating, margins in percentage points, the
-        governing quantity and the pass flag, all of the batch shape.
+        governing quantity and the pass flag, all of the batch shape
+        [%, percentage points, unitless].
 
     Raises
     ------

@@ -51,7 +51,7 @@ class VoltageLimitRow(NamedTuple):
     thd_pct : float
         Limit on total harmonic distortion [% of nominal fundamental voltage].
     source : str
-        Citation marker for the row's values.
+        Citation marker for the row's values [unitless].
     """
 
     v_max_kv: float
@@ -88,7 +88,7 @@ class CurrentLimitRow(NamedTuple):
     tdd_pct : float
         Limit on total demand distortion [% of I_L].
     source : str
-        Citation marker for the row's values.
+        Citation marker for the row's values [unitless].
     """
 
     r_min: float
@@ -168,7 +168,8 @@ class CurrentLimits:
     edition : str
         IEEE Std 519 edition [unitless].
     source : str
-        Citation of the table, the row convention and the even-order rule.
+        Citation of the table, the row convention and the even-order rule
+        [unitless].
     """
 
     h: np.ndarray
@@ -205,7 +206,7 @@ def ieee519_voltage_limits(v_kv: float, edition: str = "2014", *, file: str = "<
     -------
     VoltageLimits
         ``(individual_pct, thd_pct, source)``: limits [% of nominal
-        fundamental voltage] and the citation of the row used.
+        fundamental voltage] and the citation of the row used [unitless].
 
     Raises
     ------
@@ -256,7 +257,7 @@ def ieee519_current_limits(isc_over_il: float, h: np.ndarray, edition: str = "20
     -------
     CurrentLimits
         Individual limits per order with the ``limited`` mask, the TDD limit
-        [% of I_L] and the row used.
+        and the row used [% of I_L].
 
     Raises
     ------

@@ -73,7 +73,7 @@ def scan_figure(res: StudyResult, sc: BankScan, steps: list[int] | None = None, 
     """
     h_max = h_max or float(sc.h[-1])
     margin = res.case.study.margin_pct
-    fig, ax = plt.subplots(figsize=(7.2, 4.0), dpi=130)
+    fig, ax = plt.subplots(figsize=(8.6, 4.0), dpi=130)
     _style_axes(ax)
     mark_orders(ax, res, min(h_max, float(sc.h[-1])), margin)
     steps = list(range(0, len(sc.steps) + 1)) if steps is None else steps
@@ -99,7 +99,7 @@ def scan_figure(res: StudyResult, sc: BankScan, steps: list[int] | None = None, 
     scen = "" if sc.scenario == "nominal" else f" - {sc.scenario} supply"
     ax.set_title(title or f"Driving-point impedance, bank {sc.bank.name}{scen}", color=STYLE["ink"],
                  fontsize=10, loc="left")
-    ax.legend(fontsize=6.5, frameon=False, ncol=2 if len(steps) > 6 else 1, loc="upper right")
+    ax.legend(fontsize=6.5, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     fig.text(0.01, 0.01, f"shaded: +-{margin:g} % screening band; solid red lines: injected/background orders; "
              "dashed grey: characteristic orders; X: resonance inside a band", fontsize=6, color=STYLE["ink"])
     fig.tight_layout(rect=(0, 0.03, 1, 1))

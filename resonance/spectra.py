@@ -65,7 +65,8 @@ class Spectrum:
         Converter pulse number where the spectrum is that of a p-pulse
         converter [unitless].
     note : str
-        Where the numbers come from, with a marker ([derived], [memory], ...).
+        Where the numbers come from, with a marker (derived, from memory, ...)
+        [unitless].
     """
 
     name: str
@@ -245,7 +246,7 @@ def resolve_spectrum(spec: str | Mapping[Any, Any], *, file: str, field: str,
     Returns
     -------
     Spectrum
-        The spectrum, orders rising.
+        The spectrum, orders rising [% of the fundamental current].
 
     Raises
     ------
@@ -381,7 +382,8 @@ def combine(mags: np.ndarray, rule: str = "arithmetic", h: np.ndarray | None = N
     """
     if rule not in COMBINE_RULES:
         valid = ", ".join(repr(r) for r in COMBINE_RULES)
-        raise InputError.single(file, "study.summation", f"unknown summation rule {rule!r}; choose one of {valid}")
+        raise InputError.single(file, "study.summation",
+                                f"unknown summation rule {rule!r}; choose one of {valid}")
     m = np.asarray(mags, dtype=float)
     if m.ndim < 2:
         raise ValueError(f"mags must have shape (n_src, ..., n_h), got {m.shape}")
