@@ -197,7 +197,7 @@ class StudySettings(_Strict):
     other_banks: Literal["off", "full"] = "off"
     duty_limits: Literal["ieee18-2002", "ieee18-2012", "ieee18-1992", "iec60831-1", "iec60871-1"] = "ieee18-2002"
     ieee519_edition: Literal["2014", "2022"] = "2014"
-    summation: Literal["arithmetic", "iec61000-3-6"] = "arithmetic"
+    summation: Literal["arithmetic", "iec61000-3-6", "phasor"] = "arithmetic"
     pcc_bus: str | None = None
     max_demand_kw: float | None = Field(default=None, gt=0.0)
     max_demand_a: float | None = Field(default=None, gt=0.0)

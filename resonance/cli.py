@@ -62,12 +62,17 @@ def _summary(data: dict) -> str:
         lines.append(f"\nbank {b['name']} at {b['bus']} ({b['bus_kv']:g} kV, {kind}); "
                      f"S_sc = {b['sc_mva']:.2f} MVA (IEC 60909: "
                      f"{b['sc_mva_iec60909'] if b['sc_mva_iec60909'] is not None else '-'} MVA)")
-        lines.append("  step    kvar  h_est  h_scan  near  margin%  result")
+        lines.append("  step    kvar  h_est  h_scan  near  margin%  THDbus%  THDpcc%  Vrms%  Vpk%  Irms%  kvar%  TDD%  result")
         for s in b["steps"]:
-            res = "ok" if s["resonance_ok"] and s.get("duty_ok", True) is not False else "FINDING"
+            ok = (s["resonance_ok"] and s.get("duty_ok", True) and s.get("pcc_voltage_ok", True)
+                  and s.get("pcc_current_ok", True))
             near = f"{s['nearest_order']:>4}" if s["nearest_order"] is not None else "   -"
             lines.append(f"  {s['step']:>4} {s['kvar_nameplate']:>7.0f} {_fmt(s['h_estimate'], 2, 6)} "
-                         f"{_fmt(s['h_scan'], 2, 7)} {near} {_fmt(s['margin_pct'], 1, 8)}  {res}")
+                         f"{_fmt(s['h_scan'], 2, 7)} {near} {_fmt(s['margin_pct'], 1, 8)} "
+                         f"{_fmt(s.get('thd_v_pct'), 2, 8)} {_fmt(s.get('thd_v_pcc_pct'), 2, 8)} "
+                         f"{_fmt(s.get('cap_v_rms_pct'), 1, 6)} {_fmt(s.get('cap_v_peak_pct'), 1, 5)} "
+                         f"{_fmt(s.get('cap_i_rms_pct'), 1, 6)} {_fmt(s.get('cap_kvar_pct'), 1, 6)} "
+                         f"{_fmt(s.get('tdd_pct'), 1, 5)}  {'ok' if ok else 'FINDING'}")
     return "\n".join(lines)
 
 

@@ -43,8 +43,9 @@ def _r(x, nd=4):
     return round(v, nd) if math.isfinite(v) else None
 
 
-def _steps(sc: BankScan, extra_by_step: dict | None) -> list[dict]:
+def _steps(sc: BankScan, extra_by_step: dict | None, assessment=None) -> list[dict]:
     out = []
+    duty = {d.step: d.fields for d in assessment.steps} if assessment is not None else {}
     for s in sc.steps:
         d = {
             "step": s.step,
@@ -62,6 +63,7 @@ def _steps(sc: BankScan, extra_by_step: dict | None) -> list[dict]:
             "damping_sensitive": bool(s.damping_sensitive),
             "peaks": [{"h": _r(h, 4), "z_ohm": _r(z, 6), "amplification": _r(a, 4)} for h, z, a in s.peaks],
         }
+        d.update(duty.get(s.step, {}))
         if extra_by_step and s.step in extra_by_step:
             d.update(extra_by_step[s.step])
         out.append(d)
@@ -104,12 +106,19 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "sc_mva": _r(sc.sc_mva, 4),
             "sc_mva_iec60909": _r(res.sc_mva_iec60909.get(b.bus), 4),
             "x_r_at_bus": _r(sc.x_r, 4),
-            "steps": _steps(sc, extra.get((b.name, "nominal"))),
+            "steps": _steps(sc, extra.get((b.name, "nominal")), res.assessment_for(b.name, "nominal")),
         }
+        asm = res.assessment_for(b.name, "nominal")
+        if asm is not None:
+            entry["bank_off"] = asm.bank_off
+            entry["limits"] = asm.info
+        entry["duty_ok"] = all(s.get("duty_ok", True) for s in entry["steps"])
+        entry["resonance_ok"] = all(s["resonance_ok"] for s in entry["steps"])
         weak = res.scans_for(b.name, "weak")
         if weak is not None:
             entry["weak_supply"] = {"sc_mva": _r(weak.sc_mva, 4), "x_r_at_bus": _r(weak.x_r, 4),
-                                    "steps": _steps(weak, extra.get((b.name, "weak")))}
+                                    "steps": _steps(weak, extra.get((b.name, "weak")),
+                                                    res.assessment_for(b.name, "weak"))}
         entry.update(extra.get(("bank", b.name), {}))
         banks.append(entry)
     model = res.extras.get("model")
@@ -133,6 +142,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "sc_mva_iec60909_at_pcc": _r(res.sc_mva_iec60909.get(res.pcc_bus), 4),
         },
         "pcc_bus": res.pcc_bus,
+        "sc_mva_pcc": _r(res.sc_mva_pcc, 4),
         "harmonic_orders": {"injected": list(res.orders.injected), "background": list(res.orders.background),
                             "characteristic": list(res.orders.characteristic), "pulses": list(res.orders.pulses)},
         "banks": banks,

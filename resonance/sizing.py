@@ -655,8 +655,8 @@ def simulate_controller(p_kw, q_kvar, dt_h: float, stages_kvar: Sequence[float],
     """
     p = _check_nonneg("p_kw", p_kw).ravel()
     q = np.asarray(q_kvar, dtype=float).ravel()
-    if q.shape != p.shape or not np.all(np.isfinite(q)):
-        raise InputError.single(_ARGS, "q_kvar", "must be finite and the same length as p_kw")
+    if q.shape != p.shape or p.size == 0 or not np.all(np.isfinite(q)):
+        raise InputError.single(_ARGS, "q_kvar", "must be finite, non-empty and the same length as p_kw")
     dt_h = _check_pos("dt_h", dt_h)
     st = np.asarray(stages_kvar, dtype=float).ravel()
     if not np.all(np.isfinite(st)) or np.any(st <= 0):
@@ -699,7 +699,7 @@ def simulate_controller(p_kw, q_kvar, dt_h: float, stages_kvar: Sequence[float],
                 break
             made += 1
             t_next = t + t_gap
-            t = t_next if t_gap > 0 else t
+            t = t_next
         step[i] = k
         ops[i] = made
     q_net = q - cum[step]

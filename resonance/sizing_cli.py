@@ -168,7 +168,10 @@ def _report(args, data: IntervalData, bus_kv: float, stages_offered, need, plan,
                  "total_kvar": plan.total_kvar, "total_net_kvar": plan.total_net_kvar,
                  "steps_net_kvar": list(plan.steps_net_kvar), "q_design_kvar": plan.q_design_kvar,
                  "q_max_kvar": plan.q_max_kvar, "shortfall_kvar": plan.shortfall_kvar, "coverage": plan.coverage,
-                 "output_factor": plan.output_factor},
+                 "output_factor": plan.output_factor,
+                 # capacitor fundamental voltage U_C = U / (1 - p) against its rating [%] (REFERENCES.md
+                 # "Detuned banks"); above 100 % the capacitors run over their rated voltage
+                 "v_cap_pct_of_rated": 100.0 * bus_kv / (1.0 - (args.detuning_pct or 0.0) / 100.0) / args.rated_kv},
         "controller": {"pf_after": {**_pcts(ctrl.pf),
                                     "period": float(power_factor(kwh, np.maximum(ctrl.q_net_kvar, 0).sum() * data.dt_h))},
                        "fraction_at_or_above_target": ctrl.fraction_at_or_above_target,

@@ -257,6 +257,8 @@ def read_intervals(path) -> IntervalData:
         probs.add(data[j + 1][0], "timestamp", f"{sec[j] / 60:g} min after the previous row is not a whole "
                   f"multiple of the usual spacing of {dt_s / 60:g} min")
     probs.raise_if_any()
+    p.setflags(write=False)
+    q.setflags(write=False)
     return IntervalData(file, tuple(ts), p, q, dt_s / 3600.0, q_source, int((whole - 1).sum()))  # type: ignore[arg-type]
 
 

@@ -122,7 +122,7 @@ def characteristic_orders(pulse: int, h_max: float) -> np.ndarray:
     Raises
     ------
     ValueError
-        ``pulse`` not an integer >= 2.
+        ``pulse`` not an integer >= 2, or ``h_max`` not finite.
 
     Notes
     -----
@@ -136,6 +136,8 @@ def characteristic_orders(pulse: int, h_max: float) -> np.ndarray:
     """
     if isinstance(pulse, bool) or not isinstance(pulse, numbers.Integral) or pulse < 2:
         raise ValueError(f"pulse must be an integer >= 2, got {pulse!r}")
+    if not math.isfinite(h_max):
+        raise ValueError(f"h_max must be finite, got {h_max!r}")
     p = int(pulse)
     k = np.arange(1, int(math.floor((h_max + 1) / p)) + 1)
     h = np.unique(np.concatenate([k * p - 1, k * p + 1]))

@@ -151,6 +151,15 @@ class StudyResult:
     findings: tuple
     warnings: tuple = field(default_factory=tuple)
     extras: dict = field(default_factory=dict)
+    assessments: tuple = field(default_factory=tuple)
+    sc_mva_pcc: float = float("nan")
+
+    def assessment_for(self, bank: str, scenario: str = "nominal"):
+        """Penetration and duty of one bank in one scenario (None if absent)."""
+        for a in self.assessments:
+            if a.bank == bank and a.scenario == scenario:
+                return a
+        return None
 
     @property
     def passed(self) -> bool:
@@ -346,6 +355,27 @@ def run_study(case: Case, model=None) -> StudyResult:
             others = [o for o in banks if o is not b]
             scans.append(_scan_bank(a, b, others, st.other_banks, pcc, h, settings, orders, st.margin_pct,
                                     vm[b.name], scenario, pattern, st.h_step))
+    # penetration, capacitor duty and distortion limits of every step
+    from .assess import assess_bank, build_injection  # noqa: PLC0415
+
+    assessments = []
+    sc_pcc = float("nan")
+    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
+        if a is None:
+            continue
+        inj = build_injection(case, a, model.model_bus)
+        s_pcc = a.base_mva / abs(thevenin_pu(a, np.array([pcc]), settings)[0])
+        if scenario == "nominal":
+            sc_pcc = float(s_pcc)
+        for b in banks:
+            others = [o for o in banks if o is not b]
+            extra = None
+            if st.other_banks == "full" and others and inj.h.size:
+                extra = np.zeros((inj.h.size, a.n_bus), complex)
+                for ob in others:
+                    extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]
+            assessments.append(assess_bank(case, a, b, inj, vm[b.name], pcc, float(s_pcc), settings, scenario,
+                                           diag_extra=extra))
     try:
         sc_iec = netmodel.iec60909_sc_mva(model, sorted({b.bus for b in banks} | {pcc_name}))
     except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
@@ -365,9 +395,14 @@ def run_study(case: Case, model=None) -> StudyResult:
             if s.damping_sensitive and s.h_scan is not None:
                 warnings_.append(f"bank {sc.bank.name} step {s.step} ({sc.scenario}): peak at h = {s.h_scan:.2f} "
                                  "is lightly damped; harmonic voltages there depend strongly on the load model")
+        asm = next((x for x in assessments if x.bank == sc.bank.name and x.scenario == sc.scenario), None)
+        if asm is not None:
+            for sd in asm.steps:
+                findings.extend(sd.findings)
         if sc.steps and sc.steps[0].h_scan is None:
             warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
     _ = math
     return StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909=sc_iec, pcc_bus=pcc_name,
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
-                       extras={"model": model, "sources": sources})
+                       extras={"model": model, "sources": sources}, assessments=tuple(assessments),
+                       sc_mva_pcc=sc_pcc)
