@@ -287,7 +287,8 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
             "pcc_i_limits": {"row": clim.row, "tdd_pct": clim.tdd_pct, "source": clim.source,
                              "isc_over_il": round(ratio, 2) if math.isfinite(ratio) else None,
                              "i_l_a": round(i_l, 3), "i_l_basis": il_basis, "i_sc_a": round(i_sc, 2)},
-            "duty_limits": {"name": lim.name, "citation": lim.citation, "v_rms_pct": lim.v_rms * 100,
-                            "v_peak_pct": lim.v_peak * 100, "i_rms_pct": lim.i_rms * 100, "kvar_pct": lim.q * 100},
+            "duty_limits": {"name": lim.name, "citation": lim.citation, "v_rms_pct": round(lim.v_rms * 100, 6),
+                            "v_peak_pct": round(lim.v_peak * 100, 6), "i_rms_pct": round(lim.i_rms * 100, 6),
+                            "kvar_pct": round(lim.q * 100, 6)},
             "orders": [int(x) for x in h]}
     return BankAssessment(bank=bank.name, scenario=scenario, steps=tuple(steps), bank_off=off, pen=pen, info=info)

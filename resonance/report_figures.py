@@ -1,0 +1,355 @@
+"""Figure drawers for the submittal report (edge layer, matplotlib Agg).
+
+Every drawer paints into an axes it is given, so the same code fills a region
+of a report page and a stand-alone PNG/SVG figure.  Drawers take the study
+objects or plain numbers; they compute nothing beyond what a label needs.
+The look follows :data:`resonance.plots.STYLE`.
+"""
+
+from __future__ import annotations
+
+import math
+
+import matplotlib
+
+matplotlib.use("Agg")
+import numpy as np  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
+
+from .plots import STYLE, _style_axes, mark_orders  # noqa: E402
+from .study import BankScan, StudyResult  # noqa: E402
+
+__all__ = [
+    "FONT",
+    "PNG_DPI",
+    "RC",
+    "CAP_TOLERANCE",
+    "new_figure",
+    "step_color",
+    "draw_scan_all",
+    "draw_scan_step",
+    "draw_scan_compare",
+    "draw_spectrum",
+    "draw_duty",
+    "draw_detuning_band",
+    "ordinal",
+]
+
+FONT = "DejaVu Sans"
+#: resolution of stand-alone PNG figures [dots per inch]; modest for speed, readable on screen
+PNG_DPI = 110
+#: rc settings for every report figure: one font, TrueType in PDF (text stays extractable),
+#: fixed SVG ids and hash salt so the same input gives byte-identical SVG files
+RC = {
+    "font.family": FONT,
+    "font.size": 8.0,
+    "pdf.fonttype": 42,
+    "svg.fonttype": "path",
+    "svg.hashsalt": "resonance-report",
+    "svg.id": "resonance",
+    "path.simplify": True,
+    "axes.titlesize": 9.0,
+    "axes.labelsize": 8.0,
+    "legend.fontsize": 6.5,
+}
+#: capacitance tolerance of capacitor units, -5 / +10 % [memory; editions differ]
+#: (REFERENCES.md, "Detuned (series reactor) banks").  Capacitance lost with age
+#: raises the tuning order [common practice].
+CAP_TOLERANCE = (-0.05, 0.10)
+
+
+def new_figure(w_in: float, h_in: float) -> Figure:
+    """A bare matplotlib figure (no pyplot state) of the given size [in]."""
+    return Figure(figsize=(w_in, h_in), dpi=PNG_DPI)
+
+
+def ordinal(n: int) -> str:
+    """``5 -> '5th'``, ``3 -> '3rd'`` [unitless]."""
+    n = int(n)
+    suf = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{n}{suf}"
+
+
+def step_color(k: int, n: int):
+    """Colour of step ``k`` of ``n`` on the sequential step map."""
+    import matplotlib as mpl  # noqa: PLC0415
+
+    cmap = mpl.colormaps[STYLE["cmap"]]
+    return cmap(0.1 + 0.8 * (k - 1) / max(n - 1, 1))
+
+
+def _label_axes(ax, bus: str, title: str) -> None:
+    ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
+    ax.set_ylabel(f"|Z| at bus {bus} [ohm]", color=STYLE["ink"])
+    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9)
+
+
+def _ylim_log(ax, curves, lo_h, hi_h, h):
+    sel = (h >= lo_h) & (h <= hi_h)
+    vals = np.concatenate([c[sel] for c in curves if c is not None])
+    vals = vals[np.isfinite(vals) & (vals > 0)]
+    if vals.size:
+        ax.set_ylim(vals.min() / 1.6, vals.max() * 3.0)
+
+
+def _order_ticks(ax, res: StudyResult, h_hi: float) -> None:
+    """Order numbers along the top edge of a scan axes."""
+    inj = set(res.orders.injected) | set(res.orders.background)
+    for h, _kind in res.orders.all():
+        if h <= h_hi:
+            ax.annotate(str(h), (h, 1.0), xycoords=("data", "axes fraction"), xytext=(0, 2),
+                        textcoords="offset points", ha="center", va="bottom", fontsize=6,
+                        color=STYLE["injected"] if h in inj else STYLE["characteristic"])
+
+
+def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
+    """All steps of one bank overlaid, bank off dotted, resonances marked.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Target axes.
+    res : StudyResult
+        Study (orders of concern, screening margin).
+    sc : BankScan
+        The bank's scan in one scenario: ``h`` [unitless], ``z_ohm`` [ohm].
+    title : str
+        Axes title [unitless].
+    """
+    _style_axes(ax)
+    h_max = float(sc.h[-1])
+    mark_orders(ax, res, h_max, res.case.study.margin_pct)
+    n = len(sc.steps)
+    ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
+    for st in sc.steps:
+        col = step_color(st.step, n)
+        lab = f"step {st.step}: {st.kvar_nameplate:g} kvar" + (f", h {st.h_scan:.2f}" if st.h_scan else "")
+        ax.semilogy(sc.h, sc.z_ohm[st.step], color=col, lw=1.1, label=lab)
+        if st.h_scan is not None:
+            ax.plot([st.h_scan], [st.z_peak_ohm], ls="none", marker="v" if st.resonance_ok else "X", ms=5,
+                    color=col if st.resonance_ok else STYLE["injected"], mec=STYLE["ink"], mew=0.4, zorder=5)
+    ax.set_xlim(1.0, h_max)
+    _ylim_log(ax, list(sc.z_ohm), 1.0, h_max, sc.h)
+    _order_ticks(ax, res, h_max)
+    _label_axes(ax, sc.bank.bus, title)
+    ax.legend(frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+
+
+def _step_view(st, st_w, h_max: float) -> float:
+    hs = [x.h_scan for x in (st, st_w) if x is not None and x.h_scan is not None]
+    return min(h_max, max(15.0, 1.8 * max(hs))) if hs else h_max
+
+
+def draw_scan_step(ax, res: StudyResult, sc: BankScan, k: int, weak: BankScan | None = None) -> None:
+    """One step's scan with its resonance marked and the screening bands shaded.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Target axes.
+    res : StudyResult
+        Study (orders of concern, screening margin [%]).
+    sc : BankScan
+        Nominal-supply scan of the bank [ohm].
+    k : int
+        Step, 1..N [unitless].
+    weak : BankScan, optional
+        Weak-supply scan drawn dashed [ohm].
+    """
+    _style_axes(ax)
+    margin = res.case.study.margin_pct
+    st = sc.steps[k - 1]
+    st_w = weak.steps[k - 1] if weak is not None and k <= len(weak.steps) else None
+    h_hi = _step_view(st, st_w, float(sc.h[-1]))
+    mark_orders(ax, res, h_hi, margin)
+    col = step_color(k, len(sc.steps))
+    ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
+    ax.semilogy(sc.h, sc.z_ohm[k], color=col, lw=1.5, label=f"step {k}, nominal supply")
+    curves = [sc.z_ohm[0], sc.z_ohm[k]]
+    if st_w is not None:
+        ax.semilogy(weak.h, weak.z_ohm[k], color=col, lw=1.0, ls="--", label=f"step {k}, weak supply")
+        curves.append(weak.z_ohm[k])
+    ax.axvline(st.h_estimate, color=STYLE["ink"], lw=0.6, ls=(0, (1, 2)), zorder=2)
+    ax.annotate(f"h_est {st.h_estimate:.2f}", (st.h_estimate, 0.02), xycoords=("data", "axes fraction"),
+                xytext=(2, 0), textcoords="offset points", rotation=90, fontsize=6, color=STYLE["ink"],
+                va="bottom", ha="left")
+    for s_, ls_ in ((st, "nominal"), (st_w, "weak")):
+        if s_ is None or s_.h_scan is None:
+            continue
+        bad = not s_.resonance_ok
+        ax.plot([s_.h_scan], [s_.z_peak_ohm], ls="none", marker="X" if bad else "v", ms=6,
+                color=STYLE["injected"] if bad else col, mec=STYLE["ink"], mew=0.5, zorder=6)
+        where = "" if s_.margin_pct is None else (
+            f", {abs(s_.margin_pct):.1f} % {'above' if s_.margin_pct > 0 else 'below'} the {ordinal(s_.nearest_order)}")
+        ax.annotate(f"{ls_}: h = {s_.h_scan:.2f}{where}", (s_.h_scan, s_.z_peak_ohm), xytext=(7, 4 if ls_ == "nominal" else -10),
+                    textcoords="offset points", fontsize=6.5, color=STYLE["injected"] if bad else STYLE["ink"],
+                    ha="left", va="bottom", zorder=7)
+    ax.set_xlim(1.0, h_hi)
+    _ylim_log(ax, curves, 1.0, h_hi, sc.h)
+    _order_ticks(ax, res, h_hi)
+    verdict = "inside" if not st.resonance_ok else "outside"
+    res_txt = (f"resonance h = {st.h_scan:.2f}, {verdict} the +-{margin:g} % band" if st.h_scan is not None
+               else "no resonance in the scan range")
+    _label_axes(ax, sc.bank.bus, f"Step {k}: {st.kvar_nameplate:g} kvar nameplate - {res_txt}")
+    ax.legend(frameon=False, loc="upper right")
+
+
+def draw_scan_compare(ax, res: StudyResult, plain: BankScan, detuned: BankScan, k: int | None = None) -> None:
+    """Plain bank and detuned candidate, same step, same axes.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Target axes.
+    res : StudyResult
+        Study (orders of concern).
+    plain, detuned : BankScan
+        Scans of the plain bank and of the detuned candidate [ohm].
+    k : int, optional
+        Step (default: the last step of each) [unitless].
+    """
+    _style_axes(ax)
+    h_max = float(min(plain.h[-1], detuned.h[-1]))
+    mark_orders(ax, res, h_max, res.case.study.margin_pct)
+    kp = k or len(plain.steps)
+    kd = min(k or len(detuned.steps), len(detuned.steps))
+    ax.semilogy(plain.h, plain.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
+    ax.semilogy(plain.h, plain.z_ohm[kp], color=STYLE["injected"], lw=1.3, label=f"plain bank, step {kp}")
+    p_pct = detuned.bank.p * 100.0
+    ax.semilogy(detuned.h, detuned.z_ohm[kd], color=STYLE["ink"], lw=1.3,
+                label=f"detuned p = {p_pct:.3g} % (n = {1 / math.sqrt(detuned.bank.p):.2f}), step {kd}")
+    ax.set_xlim(1.0, h_max)
+    _ylim_log(ax, [plain.z_ohm[0], plain.z_ohm[kp], detuned.z_ohm[kd]], 1.0, h_max, plain.h)
+    _order_ticks(ax, res, h_max)
+    _label_axes(ax, plain.bank.bus, f"Bank {plain.bank.name}: plain and detuned, full bank in service")
+    ax.legend(frameon=False, loc="upper right")
+
+
+def draw_spectrum(ax, h, v_pct, env_pct, limit_pct: float, limit_label: str, title: str) -> None:
+    """Harmonic voltage per order as bars against the individual limit.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Target axes.
+    h : array_like
+        Orders [unitless].
+    v_pct : array_like
+        Harmonic voltage of the step shown [% of nominal fundamental].
+    env_pct : array_like or None
+        Highest value over all steps, drawn as markers [% of nominal fundamental].
+    limit_pct : float or None
+        Individual-harmonic limit [% of nominal fundamental].
+    limit_label : str
+        Legend text for the limit [unitless].
+    title : str
+        Axes title [unitless].
+    """
+    _style_axes(ax)
+    h = np.asarray(h, float)
+    v = np.asarray(v_pct, float)
+    over = (v > limit_pct) if limit_pct is not None else np.zeros(v.shape, bool)
+    ax.bar(h, v, width=0.7, color=np.where(over, STYLE["injected"], STYLE["ink"]), label="step shown")
+    if env_pct is not None:
+        ax.plot(h, np.asarray(env_pct, float), ls="none", marker="_", ms=9, mew=1.4, color=STYLE["characteristic"],
+                label="highest of all steps")
+    if limit_pct is not None:
+        ax.axhline(limit_pct, color=STYLE["injected"], lw=1.0, ls="--", label=limit_label)
+    ax.set_xlim(0.5, max(float(h.max()) + 1.5, 15.0) if h.size else 15.0)
+    top = max([float(np.nanmax(v)) if v.size else 0.0, limit_pct or 0.0,
+               float(np.nanmax(env_pct)) if env_pct is not None and len(env_pct) else 0.0])
+    ax.set_ylim(0.0, 1.2 * top if top > 0 else 1.0)
+    ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
+    ax.set_ylabel("V_h [% of nominal]", color=STYLE["ink"])
+    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9)
+    ax.legend(frameon=False, loc="upper right")
+
+
+#: (per-step key, panel title) of the four duty quantities in IEEE Std 18 order
+DUTY_PANELS = (("v_rms", "rms voltage [% of rated]"), ("v_peak", "crest voltage [% of rated crest]"),
+               ("i_rms", "rms current [% of nominal]"), ("kvar", "reactive power [% of rated kvar]"))
+
+
+def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str) -> None:
+    """Capacitor duty per step as bars against its limit, one panel per quantity.
+
+    Parameters
+    ----------
+    axes : sequence of 4 matplotlib.axes.Axes
+        Target axes, in the order of :data:`DUTY_PANELS`.
+    steps : array_like of int
+        Step numbers [unitless].
+    values : dict
+        Quantity -> per-step values (None where absent) [% of rating].
+    limits_pct : dict
+        Quantity -> limit [% of rating].
+    limit_name : str
+        Name of the limit set for the legend [unitless].
+    """
+    x = np.asarray(steps, int)
+    for ax, (q, ttl) in zip(axes, DUTY_PANELS):
+        _style_axes(ax)
+        v = np.array([np.nan if a is None else float(a) for a in values.get(q, [None] * x.size)])
+        lim = limits_pct.get(q)
+        bad = (v > lim) if lim is not None else np.zeros(v.shape, bool)
+        ax.bar(x, np.nan_to_num(v), width=0.65, color=np.where(bad, STYLE["injected"], STYLE["ink"]))
+        if lim is not None:
+            ax.axhline(lim, color=STYLE["injected"], lw=1.0, ls="--", label=f"{limit_name}: {lim:g} %")
+            ax.legend(frameon=False, loc="lower right")
+        top = np.nanmax(np.append(v, lim if lim is not None else 0.0))
+        ax.set_ylim(0.0, 1.15 * top if np.isfinite(top) and top > 0 else 1.0)
+        ax.set_xticks(x)
+        ax.set_xlabel("step [-]", color=STYLE["ink"])
+        ax.set_title(ttl, color=STYLE["ink"], loc="left", fontsize=8)
+
+
+def draw_detuning_band(ax, n_tuned: float, p: float, h_parallel, steps, dominant: int | None,
+                       title: str) -> None:
+    """Tuning order with its capacitance-tolerance band and each step's parallel resonance.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Target axes.
+    n_tuned : float
+        Series tuning order of the detuned step, ``1/sqrt(p)`` [unitless].
+    p : float
+        Detuning factor X_L/X_C [unitless].
+    h_parallel : array_like
+        Parallel resonance of each step with the supply (``1/sqrt(p + X_s/X_C)``) [unitless].
+    steps : array_like of int
+        Step numbers [unitless].
+    dominant : int or None
+        Lowest injected order (the one the tuning must stay below) [unitless].
+    title : str
+        Axes title [unitless].
+
+    Notes
+    -----
+    With the capacitance off nameplate by a fraction ``c``, the tuning order moves to
+    ``n / sqrt(1 + c)``; the band spans :data:`CAP_TOLERANCE`.
+    """
+    _style_axes(ax)
+    lo = n_tuned / math.sqrt(1.0 + CAP_TOLERANCE[1])
+    hi = n_tuned / math.sqrt(1.0 + CAP_TOLERANCE[0])
+    y = np.asarray(steps, int)
+    ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.8, lw=0,
+               label=f"tuning order with capacitance {CAP_TOLERANCE[0] * 100:+.0f}/{CAP_TOLERANCE[1] * 100:+.0f} %: "
+                     f"{lo:.2f}-{hi:.2f}")
+    ax.axvline(n_tuned, color=STYLE["ink"], lw=1.2, label=f"tuning order n = {n_tuned:.2f} (p = {p * 100:.3g} %)")
+    if dominant is not None:
+        ax.axvline(dominant, color=STYLE["injected"], lw=1.2, label=f"lowest injected order {dominant}")
+        ax.axvline(0.9 * dominant, color=STYLE["injected"], lw=0.8, ls="--",
+                   label=f"90 % of it: {0.9 * dominant:.2f}")
+    hp = np.asarray(h_parallel, float)
+    ax.plot(hp, y, ls="none", marker="o", ms=4, color=STYLE["characteristic"], mec=STYLE["ink"], mew=0.4,
+            label="parallel resonance with the supply, per step")
+    xs = [lo, hi, n_tuned] + ([dominant] if dominant else []) + list(hp[np.isfinite(hp)])
+    ax.set_xlim(max(1.0, min(xs) - 0.6), max(xs) + 0.8)
+    ax.set_ylim(y.min() - 0.7, y.max() + 0.7) if y.size else None
+    ax.set_yticks(y)
+    ax.invert_yaxis()
+    ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
+    ax.set_ylabel("step [-]", color=STYLE["ink"])
+    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9)
+    ax.legend(frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
