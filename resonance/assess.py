@@ -97,7 +97,7 @@ def build_injection(case: Case, arr: NetworkArrays, model_bus: dict) -> Injectio
                      src_i_pu=i_pu, src_phase_deg=ph, bg_v_pu=bg_v, bg_phase_deg=bg_ph)
 
 
-def demand_current_a(case: Case, v_pcc_kv: float) -> tuple[float, str]:
+def demand_current_a(case: Case, v_pcc_kv: float, arr: NetworkArrays | None = None) -> tuple[float, str]:
     """Maximum demand current I_L at the PCC for IEEE 519 current limits.
 
     Parameters
@@ -106,6 +106,9 @@ def demand_current_a(case: Case, v_pcc_kv: float) -> tuple[float, str]:
         Validated case.
     v_pcc_kv : float
         PCC nominal voltage [kV].
+    arr : NetworkArrays, optional
+        Network whose linear loads are summed (a network file's loads are
+        not in the case tables) [pu].
 
     Returns
     -------
@@ -119,8 +122,13 @@ def demand_current_a(case: Case, v_pcc_kv: float) -> tuple[float, str]:
     case's linear loads plus the harmonic sources' rating taken as active power,
     ``|sum(P + jQ) + sum(S_src)| / (sqrt3 U)`` (the sources are plant load too).
     """
-    p = sum(ld.kw for ld in case.load) + sum(hs.kva for hs in case.harmonic_source)
-    q = sum(ld.kw * math.tan(math.acos(ld.pf)) for ld in case.load)
+    if arr is not None:
+        p_load = float(np.sum(arr.load_p_pu)) * arr.base_mva * 1000.0
+        q = float(np.sum(arr.load_q_pu)) * arr.base_mva * 1000.0
+    else:
+        p_load = sum(ld.kw for ld in case.load)
+        q = sum(ld.kw * math.tan(math.acos(ld.pf)) for ld in case.load)
+    p = p_load + sum(hs.kva for hs in case.harmonic_source)
     pf = p / math.hypot(p, q) if p > 0 else 1.0
     if case.study.max_demand_a:
         return float(case.study.max_demand_a), "study.max_demand_a"
@@ -196,7 +204,7 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
     vlim = ieee519_voltage_limits(v_kv_pcc, st.ieee519_edition, file=case.source_file)
     i_base_pcc = base * 1000.0 / (math.sqrt(3) * v_kv_pcc)  # [A]
     i_base_bank = base * 1000.0 / (math.sqrt(3) * bank.bus_kv)
-    i_l, il_basis = demand_current_a(case, v_kv_pcc)
+    i_l, il_basis = demand_current_a(case, v_kv_pcc, arr)
     i_sc = sc_mva_pcc * 1000.0 / (math.sqrt(3) * v_kv_pcc)
     ratio = i_sc / i_l if i_l > 0 else float("inf")
     clim = ieee519_current_limits(ratio if math.isfinite(ratio) else 1e9, h if h.size else np.array([5.0]),

@@ -274,6 +274,25 @@ def test_size_limit_is_inclusive_and_default_admits_largest_bundled(tmp_path):
     assert len(big.encode("utf-8")) < DEFAULT_MAX_BYTES
 
 
+def test_file_growing_after_stat_is_capped(tmp_path, monkeypatch):
+    # the size seen by stat is faked smaller than the file, as if it grew in between
+    from resonance import safeload
+
+    path = _write(tmp_path, _genuine("case9")[0])
+    real = os.stat(path)
+    fake = os.stat_result((real.st_mode, 0, 0, 1, 0, 0, 10, 0, 0, 0))
+
+    class _Os:
+        fspath = staticmethod(os.fspath)
+
+        @staticmethod
+        def stat(p):
+            return fake
+
+    monkeypatch.setattr(safeload, "os", _Os)
+    _refused(path, "", "limit of 100 bytes", max_bytes=100)
+
+
 @pytest.mark.parametrize("bad", [0, -1, 1.5, True])
 def test_bad_max_bytes_is_a_programming_error(tmp_path, bad):
     with pytest.raises(ValueError):
