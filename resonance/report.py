@@ -1,0 +1,1179 @@
+"""Submittal report: one PDF (matplotlib only) plus every figure and table as files.
+
+Edge layer.  :func:`write_report` reads the study result and the results
+dictionary of :func:`resonance.results.to_dict`; keys of later study stages
+(penetration, capacitor duty, detuning) are read defensively, so their
+sections fill in as those keys appear and say "not evaluated in this version"
+until then.
+
+Keys read, beyond those :func:`~resonance.results.to_dict` always writes
+---------------------------------------------------------------------------
+per step (``banks[].steps[]`` and ``banks[].weak_supply.steps[]``):
+    ``thd_v_pct`` (THD at the bank bus [%]), ``thd_v_pcc_pct`` (or
+    ``pcc_thd_v_pct``, or ``pcc.thd_v_pct``) (THD at the PCC [%]),
+    ``cap_v_rms_pct``, ``cap_v_peak_pct``, ``cap_i_rms_pct``, ``cap_kvar_pct``
+    [% of rating], ``duty_ok`` [bool]; per-order voltages either as
+    ``harmonics`` / ``per_order``: ``[{"h", "v_bus_pct" | "v_pct", "v_pcc_pct"}]``
+    or as ``v_h_pct`` / ``v_pcc_h_pct``: ``{order: pct}`` [% of nominal].
+per bank (``banks[]``):
+    ``detuning.recommended`` ``{tuning_order, detuning_pct, rated_kv, steps_kvar, ...}``,
+    ``detuning.candidates[]`` (any scalar keys; shown as a table).
+study extras (``res.extras``):
+    a detuned candidate's :class:`~resonance.study.BankScan` (found by type
+    anywhere one level deep, matched on the bank name) for the side-by-side scan.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as _dt
+import io
+import math
+import textwrap
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import matplotlib
+
+matplotlib.use("Agg")
+import numpy as np  # noqa: E402
+from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
+
+from . import __version__  # noqa: E402
+from . import report_figures as rf  # noqa: E402
+from .plots import STYLE  # noqa: E402
+from .results import CAUTION  # noqa: E402
+from .study import BankScan, StudyResult  # noqa: E402
+
+__all__ = ["write_report", "Table", "Column", "report_tables", "NOT_EVALUATED", "SECTIONS"]
+
+NOT_EVALUATED = "not evaluated in this version"
+#: section headings in report order (tests look for them)
+SECTIONS = ("Summary", "Input data", "Frequency scans", "Detuned bank compared with the plain bank",
+            "Harmonic voltage distortion", "Capacitor duty", "Detuning recommendation",
+            "Methods and assumptions", "References")
+
+REFERENCES = (
+    "IEEE Std 18-2002, IEEE Standard for Shunt Power Capacitors (continuous operating limits).",
+    "IEEE Std 519-2014 / IEEE Std 519-2022, IEEE Standard for Harmonic Control in Electric Power Systems.",
+    "IEEE Std 1036, IEEE Guide for the Application of Shunt Power Capacitors.",
+    "IEC 60909-0:2016, Short-circuit currents in three-phase a.c. systems - Calculation of currents.",
+    "IEC 60831-1, Shunt power capacitors of the self-healing type for a.c. systems up to 1000 V.",
+    "IEC 61000-3-6, Assessment of emission limits for distorting installations (summation law).",
+    "pandapower: L. Thurner et al., IEEE Trans. Power Systems 33(6), 2018 (load flow, IEC 60909).",
+)
+
+# ---------------------------------------------------------------------------------------------
+# page geometry [in]: A4 portrait
+PAGE_W, PAGE_H = 8.27, 11.69
+M_LEFT, M_RIGHT, M_TOP, M_BOTTOM = 0.75, 0.65, 0.95, 0.85
+TEXT_W = PAGE_W - M_LEFT - M_RIGHT
+INK = STYLE["ink"]
+FAIL_RED = STYLE["injected"]
+HEAD_FILL = "#e8ecf0"
+ZEBRA = "#f6f7f9"
+
+
+# ---------------------------------------------------------------------------------------------
+# defensive readers of the results dictionary
+
+def _get(d: Any, *keys: str):
+    """First present, non-None value among ``keys`` of mapping ``d`` (dotted keys go one level down)."""
+    if not isinstance(d, dict):
+        return None
+    for k in keys:
+        if "." in k:
+            a, b = k.split(".", 1)
+            v = d.get(a)
+            v = v.get(b) if isinstance(v, dict) else None
+        else:
+            v = d.get(k)
+        if v is not None:
+            return v
+    return None
+
+
+def _thd_bus(step: dict):
+    return _num(_get(step, "thd_v_pct", "thd_v_bus_pct"))
+
+
+def _thd_pcc(step: dict):
+    return _num(_get(step, "thd_v_pcc_pct", "pcc_thd_v_pct", "pcc.thd_v_pct"))
+
+
+#: duty quantity -> per-step key [% of rating]
+DUTY_KEYS = {"v_rms": "cap_v_rms_pct", "v_peak": "cap_v_peak_pct", "i_rms": "cap_i_rms_pct", "kvar": "cap_kvar_pct"}
+DUTY_LABEL = {"v_rms": "V rms", "v_peak": "V peak", "i_rms": "I rms", "kvar": "Q"}
+
+
+def _num(x):
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return None
+    return v if math.isfinite(v) else None
+
+
+def _spectrum(step: dict, where: str) -> dict[int, float]:
+    """Per-order voltage of one step at ``where`` ("bus" or "pcc") [% of nominal]; {} when absent."""
+    keys = ("v_bus_pct", "v_pct", "v_h_pct", "v_bank_pct") if where == "bus" else ("v_pcc_pct", "pcc_v_pct")
+    for lk in ("harmonics", "per_order", "orders"):
+        rows = step.get(lk) if isinstance(step, dict) else None
+        if isinstance(rows, list) and rows and isinstance(rows[0], dict):
+            out = {}
+            for r in rows:
+                h, v = _num(r.get("h")), _num(_get(r, *keys))
+                if h is not None and v is not None and h > 1.5:
+                    out[int(round(h))] = v
+            if out:
+                return out
+    dk = ("v_h_pct", "v_bus_h_pct") if where == "bus" else ("v_pcc_h_pct", "pcc_v_h_pct")
+    m = _get(step, *dk)
+    if isinstance(m, dict):
+        out = {}
+        for h, v in m.items():
+            hh, vv = _num(h), _num(v)
+            if hh is not None and vv is not None and hh > 1.5:
+                out[int(round(hh))] = vv
+        return out
+    return {}
+
+
+def _detuning(bank: dict) -> tuple[dict | None, list[dict]]:
+    d = bank.get("detuning") if isinstance(bank, dict) else None
+    if not isinstance(d, dict):
+        return None, []
+    rec = d.get("recommended") if isinstance(d.get("recommended"), dict) else None
+    cands = [c for c in (d.get("candidates") or []) if isinstance(c, dict)]
+    return rec, cands
+
+
+def _detuned_scan(res: StudyResult, name: str) -> BankScan | None:
+    """A detuned candidate's nominal scan for bank ``name`` among the study extras, if any."""
+    def hits(v):
+        if isinstance(v, BankScan):
+            yield v
+        elif isinstance(v, dict):
+            for w in v.values():
+                if isinstance(w, BankScan):
+                    yield w
+        elif isinstance(v, (list, tuple)):
+            for w in v:
+                if isinstance(w, BankScan):
+                    yield w
+
+    for v in (res.extras or {}).values():
+        for s in hits(v):
+            if s.bank.name == name and s.bank.p > 0 and s.scenario == "nominal":
+                return s
+    return None
+
+
+def _pcc_kv(res: StudyResult, data: dict) -> float | None:
+    model = res.extras.get("model") if res.extras else None
+    try:
+        return float(model.arrays.bus_kv[model.model_bus[data["pcc_bus"]]])
+    except Exception:  # noqa: BLE001 - no model: fall back on the case
+        sup = res.case.supply
+        return float(sup.kv) if sup is not None and sup.bus == data.get("pcc_bus") else None
+
+
+def _duty_limit_set(data: dict):
+    from .duty import duty_limits  # noqa: PLC0415
+    try:
+        return duty_limits(data["settings"]["duty_limits"])
+    except Exception:  # noqa: BLE001 - an unknown set leaves the limit columns without a limit
+        return None
+
+
+def _duty_limits_pct(data: dict) -> dict:
+    lim = _duty_limit_set(data)
+    if lim is None:
+        return {}
+    return {"v_rms": 100 * lim.v_rms, "v_peak": 100 * lim.v_peak, "i_rms": 100 * lim.i_rms, "kvar": 100 * lim.q}
+
+
+def _v519(v_kv: float | None, data: dict):
+    if v_kv is None:
+        return None
+    from .limits import ieee519_voltage_limits  # noqa: PLC0415
+    try:
+        return ieee519_voltage_limits(v_kv, str(data["settings"].get("ieee519_edition", "2014")))
+    except Exception:  # noqa: BLE001 - unknown edition: no limit shown
+        return None
+
+
+def _has_penetration(bank: dict) -> bool:
+    return any(_thd_bus(s) is not None or _thd_pcc(s) is not None for s in bank["steps"])
+
+
+def _has_duty(bank: dict) -> bool:
+    return any(_num(s.get(k)) is not None for s in bank["steps"] for k in DUTY_KEYS.values())
+
+
+def _safe(name: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+
+
+# ---------------------------------------------------------------------------------------------
+# tables
+
+def _f(nd: int) -> Callable[[Any], str]:
+    def fmt(v):
+        x = _num(v)
+        return "-" if x is None else f"{x:.{nd}f}"
+    return fmt
+
+
+def _s(v) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    if isinstance(v, float):
+        return f"{v:g}"
+    if isinstance(v, (list, tuple)):
+        return ", ".join(_s(x) for x in v)
+    return str(v)
+
+
+@dataclass(frozen=True)
+class Column:
+    """One table column: label, unit, formatter of the raw value and alignment."""
+
+    label: str
+    unit: str = ""
+    fmt: Callable[[Any], str] = _s
+    align: str = "right"
+    wrap: int = 0  # wrap the cell text at this many characters (0: never)
+
+
+@dataclass(frozen=True)
+class Table:
+    """A report table: raw rows for the CSV, formatted cells for the PDF.
+
+    ``bad`` holds (row, column) cells drawn in red (a value beyond its limit).
+    """
+
+    name: str
+    title: str
+    columns: tuple
+    rows: tuple
+    note: str = ""
+    bad: frozenset = field(default_factory=frozenset)
+
+    def csv(self) -> str:
+        """CSV text: header ``label [unit]``, raw values (empty for None)."""
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow([c.label.replace("\n", " ") + (f" [{c.unit}]" if c.unit else "") for c in self.columns])
+        for r in self.rows:
+            w.writerow(["" if v is None else (_s(v) if isinstance(v, (list, tuple, bool)) else v) for v in r])
+        return buf.getvalue()
+
+    def cells(self) -> list[list[str]]:
+        """Formatted cell text."""
+        out = []
+        for r in self.rows:
+            row = []
+            for c, v in zip(self.columns, r):
+                t = c.fmt(v)
+                if c.wrap and len(t) > c.wrap:
+                    t = "\n".join(textwrap.wrap(t, c.wrap))
+                row.append(t)
+            out.append(row)
+        return out
+
+
+def _step_rows(bank: dict, steps: list[dict], lim: dict, pcc_thd_lim: float | None):
+    cols = [Column("step", "-", _s), Column("kvar\nnameplate", "kvar", _f(0)), Column("kvar\ndelivered", "kvar", _f(1)),
+            Column("h_est", "-", _f(2)), Column("h_scan", "-", _f(2)), Column("nearest\norder", "-", _s),
+            Column("margin", "%", _f(1)), Column("THD\nbank bus", "%", _f(2)),
+            Column("THD PCC" + (f"\nlim {pcc_thd_lim:g}" if pcc_thd_lim else ""), "%", _f(2))]
+    for q in DUTY_KEYS:
+        cols.append(Column(f"{DUTY_LABEL[q]}" + (f"\nlim {lim[q]:g}" if q in lim else ""), "%", _f(1)))
+    cols.append(Column("result", "", _s, "center"))
+    rows, bad = [], set()
+    kind_abbr = {"injected": "inj", "background": "bg", "characteristic": "char"}
+    for i, s in enumerate(steps):
+        near = s.get("nearest_order")
+        near_t = "-" if near is None else f"{near} {kind_abbr.get(s.get('nearest_kind'), '')}".strip()
+        duty_ok = s.get("duty_ok")
+        ok = bool(s.get("resonance_ok")) and duty_ok is not False
+        row = [s.get("step"), s.get("kvar_nameplate"), s.get("kvar_delivered"), s.get("h_estimate"),
+               s.get("h_scan"), near_t, s.get("margin_pct"), _thd_bus(s), _thd_pcc(s)]
+        if not s.get("resonance_ok"):
+            bad |= {(i, 4), (i, 6)}
+        if pcc_thd_lim is not None and _thd_pcc(s) is not None and _thd_pcc(s) > pcc_thd_lim:
+            bad.add((i, 8))
+        for j, (q, k) in enumerate(DUTY_KEYS.items()):
+            v = _num(s.get(k))
+            row.append(v)
+            if v is not None and q in lim and v > lim[q]:
+                bad.add((i, 9 + j))
+        row.append("pass" if ok else "FAIL")
+        if not ok:
+            bad.add((i, len(cols) - 1))
+        rows.append(row)
+    return tuple(cols), tuple(tuple(r) for r in rows), frozenset(bad)
+
+
+def _summary_table(bank: dict, steps: list[dict], scen: str, lim: dict, pcc_thd_lim) -> Table:
+    cols, rows, bad = _step_rows(bank, steps, lim, pcc_thd_lim)
+    suffix = "" if scen == "nominal" else "_weak"
+    return Table(f"table_summary_{_safe(bank['name'])}{suffix}.csv",
+                 f"Bank {bank['name']}: every step, {scen} supply", cols, rows,
+                 "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
+                 "char characteristic). Duty columns in % of the capacitor rating; '-' = not evaluated.", bad)
+
+
+def _input_tables(res: StudyResult, data: dict) -> list[Table]:
+    c = res.case
+    t = []
+    sup = c.supply
+    if sup is not None:
+        bg = ", ".join(f"{h}: {v:g}" for h, v in sorted(sup.background_pct.items())) or "none"
+        t.append(Table("table_input_supply.csv", "Supply (utility at the point of common coupling)",
+                       (Column("bus", "", _s, "left"), Column("voltage", "kV"), Column("S_sc", "MVA"),
+                        Column("X/R", "-"), Column("S_sc weak", "MVA"), Column("X/R weak", "-"),
+                        Column("background V_h\norder: %", "% of nominal", _s, "left", 34)),
+                       ((sup.bus, sup.kv, sup.sc_mva, sup.x_r, sup.sc_mva_min, sup.x_r_min, bg),)))
+    t.append(Table("table_input_transformers.csv", "Transformers",
+                   (Column("name", "", _s, "left"), Column("HV bus", "", _s, "left"), Column("LV bus", "", _s, "left"),
+                    Column("rating", "kVA"), Column("HV", "kV"), Column("LV", "kV"), Column("Z", "%"),
+                    Column("X/R", "-")),
+                   tuple((x.name, x.hv_bus, x.lv_bus, x.kva, x.hv_kv, x.lv_kv, x.z_pct, x.x_r) for x in c.transformer)))
+    t.append(Table("table_input_cables.csv", "Cables and lines",
+                   (Column("name", "", _s, "left"), Column("from bus", "", _s, "left"), Column("to bus", "", _s, "left"),
+                    Column("length", "m"), Column("R", "ohm/km"), Column("X", "ohm/km"), Column("C", "nF/km"),
+                    Column("in\nparallel", "-")),
+                   tuple((x.name, x.from_bus, x.to_bus, x.length_m, x.r_ohm_per_km, x.x_ohm_per_km, x.c_nf_per_km,
+                          x.parallel) for x in c.cable)))
+    t.append(Table("table_input_loads.csv", "Linear loads",
+                   (Column("name", "", _s, "left", 30), Column("bus", "", _s, "left"), Column("P", "kW"),
+                    Column("power factor", "-"), Column("Q (from P, pf)", "kvar", _f(1))),
+                   tuple((x.name, x.bus, x.kw, x.pf, x.kw * math.tan(math.acos(x.pf))) for x in c.load)))
+    spec = {name: sp for name, sp, _p in (res.extras.get("sources") or [])}
+    pulses = {name: p for name, _sp, p in (res.extras.get("sources") or [])}
+    rows = []
+    for x in c.harmonic_source:
+        kind = x.spectrum if isinstance(x.spectrum, str) else "table in case"
+        sp = spec.get(x.name) or (x.spectrum if isinstance(x.spectrum, dict) else {})
+        rows.append((x.name, x.bus, x.kva, kind, pulses.get(x.name),
+                     ", ".join(f"{h}: {v:g}" for h, v in sorted(sp.items()))))
+    t.append(Table("table_input_harmonic_sources.csv", "Harmonic sources",
+                   (Column("name", "", _s, "left", 22), Column("bus", "", _s, "left"), Column("rating", "kVA"),
+                    Column("spectrum", "", _s, "left", 22), Column("pulses", "-"),
+                    Column("I_h, order: %", "% of fundamental", _s, "left", 40)), tuple(rows)))
+    t.append(Table("table_input_banks.csv", "Capacitor banks",
+                   (Column("name", "", _s, "left"), Column("bus", "", _s, "left"), Column("rated", "kV"),
+                    Column("stages", "kvar", _s, "left", 30), Column("total", "kvar"),
+                    Column("detuning p", "%"), Column("reactor X/R", "-")),
+                   tuple((b.name, b.bus, b.rated_kv, list(b.steps_kvar), sum(b.steps_kvar), b.detuning_pct,
+                          b.reactor_q if b.detuning_pct else None) for b in c.bank)))
+    return t
+
+
+def _detuning_tables(bank: dict) -> list[Table]:
+    rec, cands = _detuning(bank)
+    out = []
+    if rec:
+        out.append(Table(f"table_detuning_recommended_{_safe(bank['name'])}.csv",
+                         f"Bank {bank['name']}: recommended detuned bank",
+                         (Column("quantity", "", _s, "left"), Column("value", "", _s, "left", 60)),
+                         tuple((k, _fmt_any(v)) for k, v in rec.items() if not isinstance(v, dict))))
+    if cands:
+        pref = ["tuning_order", "detuning_pct", "rated_kv", "steps_kvar"]
+        keys = pref + [k for c in cands for k in c if k not in pref and not isinstance(c[k], (dict, list))]
+        keys = [k for i, k in enumerate(keys) if k not in keys[:i] and any(k in c for c in cands)]
+        cols = tuple(Column(k.replace("_", " "), "", _fmt_any, "right", 24) for k in keys)
+        out.append(Table(f"table_detuning_candidates_{_safe(bank['name'])}.csv",
+                         f"Bank {bank['name']}: detuning candidates", cols,
+                         tuple(tuple(c.get(k) for k in keys) for c in cands)))
+    return out
+
+
+def _fmt_any(v) -> str:
+    if isinstance(v, float):
+        return f"{v:.4g}"
+    if isinstance(v, (list, tuple)):
+        vals = [_fmt_any(x) for x in v]
+        if len(set(vals)) == 1 and len(vals) > 2:
+            return f"{len(vals)} x {vals[0]}"
+        return ", ".join(vals)
+    return _s(v)
+
+
+def _spectrum_table(bank: dict) -> Table | None:
+    steps = bank["steps"]
+    bus = [_spectrum(s, "bus") for s in steps]
+    pcc = [_spectrum(s, "pcc") for s in steps]
+    orders = sorted({h for d in bus + pcc for h in d})
+    if not orders:
+        return None
+    cols = [Column("order h", "-", _s)]
+    rows = []
+    for h in orders:
+        rows.append([h] + [d.get(h) for d in bus] + [d.get(h) for d in pcc])
+    for s in steps:
+        cols.append(Column(f"bus\nstep {s['step']}", "%", _f(2)))
+    for s in steps:
+        cols.append(Column(f"PCC\nstep {s['step']}", "%", _f(2)))
+    keep = [0] + [j for j in range(1, len(cols)) if any(r[j] is not None for r in rows)]
+    return Table(f"table_spectrum_{_safe(bank['name'])}.csv", f"Bank {bank['name']}: harmonic voltage per order",
+                 tuple(cols[j] for j in keep), tuple(tuple(r[j] for j in keep) for r in rows),
+                 "V_h in % of the nominal fundamental voltage.")
+
+
+def report_tables(res: StudyResult, data: dict) -> list[Table]:
+    """Every table of the report (summary, inputs, spectra, detuning).
+
+    Parameters
+    ----------
+    res : StudyResult
+        Study result.
+    data : dict
+        Results dictionary from :func:`resonance.results.to_dict`.
+
+    Returns
+    -------
+    list of Table
+        Tables in report order.
+    """
+    lim = _duty_limits_pct(data)
+    v519 = _v519(_pcc_kv(res, data), data)
+    out = []
+    for b in data["banks"]:
+        out.append(_summary_table(b, b["steps"], "nominal", lim, v519.thd_pct if v519 else None))
+        if b.get("weak_supply"):
+            out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", lim, v519.thd_pct if v519 else None))
+    out += _input_tables(res, data)
+    for b in data["banks"]:
+        st = _spectrum_table(b)
+        if st is not None:
+            out.append(st)
+        out += _detuning_tables(b)
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# page composition
+
+class _Doc:
+    """Flowing layout on A4 pages: a cursor moves down; a block that does not fit starts a page."""
+
+    def __init__(self, title: str):
+        self.title = title
+        self.pages: list[Figure] = []
+        self.y = PAGE_H
+        self.fig: Figure | None = None
+        self.toc: list[tuple[str, int]] = []
+
+    # geometry helpers: y is inches from the top of the page
+    def _fy(self, y_in: float) -> float:
+        return 1.0 - y_in / PAGE_H
+
+    def new_page(self) -> None:
+        self.fig = Figure(figsize=(PAGE_W, PAGE_H))
+        self.pages.append(self.fig)
+        self.y = M_TOP
+
+    def room(self) -> float:
+        return PAGE_H - M_BOTTOM - self.y
+
+    def ensure(self, h: float) -> None:
+        if self.fig is None or self.room() < h:
+            self.new_page()
+
+    def text(self, x_in: float, y_in: float, s: str, **kw) -> None:
+        kw.setdefault("color", INK)
+        kw.setdefault("va", "top")
+        self.fig.text(x_in / PAGE_W, self._fy(y_in), s, **kw)
+
+    def heading(self, s: str, size: float = 13, toc: bool = True, gap: float = 0.12) -> None:
+        self.ensure(0.9)
+        if self.y > M_TOP + 0.01:
+            self.y += gap
+        self.text(M_LEFT, self.y, s, fontsize=size, weight="bold")
+        if toc:
+            self.toc.append((s, len(self.pages)))
+        self.y += size / 72 * 1.55
+
+    def para(self, s: str, size: float = 8.5, color: str = INK, weight: str = "normal", indent: float = 0.0,
+             gap: float = 0.06) -> None:
+        width = int((TEXT_W - indent) * 72 / (size * 0.54))
+        lines = []
+        for part in s.split("\n"):
+            lines += textwrap.wrap(part, width) or [""]
+        lh = size / 72 * 1.38
+        i = 0
+        while i < len(lines):
+            self.ensure(lh * min(2, len(lines) - i))
+            n = max(1, min(len(lines) - i, int(self.room() / lh)))
+            self.text(M_LEFT + indent, self.y, "\n".join(lines[i:i + n]), fontsize=size, color=color, weight=weight,
+                      linespacing=1.38)
+            self.y += n * lh
+            i += n
+        self.y += gap
+
+    def bullets(self, items, size: float = 8.5) -> None:
+        for it in items:
+            width = int((TEXT_W - 0.2) * 72 / (size * 0.54))
+            lines = textwrap.wrap(it, width) or [""]
+            lh = size / 72 * 1.38
+            self.ensure(lh * len(lines))
+            self.text(M_LEFT + 0.05, self.y, "\u2022", fontsize=size)
+            self.text(M_LEFT + 0.2, self.y, "\n".join(lines), fontsize=size, linespacing=1.38)
+            self.y += lh * len(lines) + 0.03
+        self.y += 0.05
+
+    def kv(self, pairs, size: float = 9.0, key_w: float = 1.7, mono_keys: tuple = ()) -> None:
+        lh = size / 72 * 1.5
+        for k, v in pairs:
+            self.ensure(lh)
+            self.text(M_LEFT, self.y, k, fontsize=size, weight="bold")
+            fam = "DejaVu Sans Mono" if k in mono_keys else rf.FONT
+            self.text(M_LEFT + key_w, self.y, v, fontsize=size, family=fam)
+            self.y += lh
+
+    def table(self, t: Table, size: float = 7.5) -> None:
+        cells = t.cells()
+        heads = [c.label + (f"\n[{c.unit}]" if c.unit else "") for c in t.columns]
+
+        def widths(sz):
+            cw = sz / 72 * 0.56
+            w = []
+            for j, h in enumerate(heads):
+                n = max([len(x) for x in h.split("\n")] + [len(x) for r in cells for x in r[j].split("\n")])
+                w.append(n * cw + 0.12)
+            return w
+
+        w = widths(size)
+        while sum(w) > TEXT_W and size > 5.5:
+            size -= 0.25
+            w = widths(size)
+        if sum(w) > TEXT_W:
+            w = [x * TEXT_W / sum(w) for x in w]
+        elif sum(w) < TEXT_W * 0.7 and len(w) > 3:
+            w = [x * 0.7 * TEXT_W / sum(w) for x in w]
+        lh = size / 72 * 1.3
+        head_h = max(h.count("\n") + 1 for h in heads) * lh + 0.08
+        row_h = [max(x.count("\n") + 1 for x in r) * lh + 0.06 for r in cells] if cells else []
+        self.ensure(0.3 + head_h + (row_h[0] if row_h else lh) + 0.1)
+        self.text(M_LEFT, self.y, t.title, fontsize=size + 1.5, weight="bold")
+        self.y += (size + 1.5) / 72 * 1.6
+        if not cells:
+            self.para("none in this case", size=size)
+            return
+        i = 0
+        first = True
+        while i < len(cells):
+            if not first:
+                self.ensure(head_h + row_h[i] + 0.1)
+                if self.y <= M_TOP + 0.01:
+                    self.text(M_LEFT, self.y, t.title + " (continued)", fontsize=size + 1.5, weight="bold")
+                    self.y += (size + 1.5) / 72 * 1.6
+            self._table_head(heads, w, head_h, size, lh)
+            while i < len(cells) and self.room() >= row_h[i]:
+                self._table_row(cells[i], t, i, w, row_h[i], size, lh)
+                i += 1
+            first = False
+            if i < len(cells):
+                self.new_page()
+        x0 = M_LEFT
+        self.fig.add_artist(_hline(x0, x0 + sum(w), self.y, 0.8))
+        self.y += 0.08
+        if t.note:
+            self.para(t.note, size=6.8, color="#4a5663")
+
+    def _table_head(self, heads, w, head_h, size, lh):
+        x = M_LEFT
+        self.fig.add_artist(_rect(x, self.y, sum(w), head_h, HEAD_FILL))
+        for j, h in enumerate(heads):
+            self.text(x + w[j] / 2, self.y + 0.04, h, fontsize=size, weight="bold", ha="center", linespacing=1.2)
+            x += w[j]
+        self.fig.add_artist(_hline(M_LEFT, M_LEFT + sum(w), self.y + head_h, 0.8))
+        self.y += head_h
+
+    def _table_row(self, row, t, i, w, h, size, lh):
+        if i % 2 == 1:
+            self.fig.add_artist(_rect(M_LEFT, self.y, sum(w), h, ZEBRA))
+        x = M_LEFT
+        for j, txt in enumerate(row):
+            al = t.columns[j].align
+            xx = {"left": x + 0.05, "center": x + w[j] / 2, "right": x + w[j] - 0.06}[al]
+            bad = (i, j) in t.bad
+            self.text(xx, self.y + 0.03, txt, fontsize=size, ha=al, linespacing=1.2,
+                      color=FAIL_RED if bad else INK, weight="bold" if bad else "normal")
+            x += w[j]
+        self.y += h
+
+    def region(self, h: float) -> tuple[Figure, tuple[float, float, float, float]]:
+        """Reserve ``h`` inches for a figure; returns the page and the rectangle (x, y_bottom, w, h) [in]."""
+        self.ensure(h)
+        rect = (M_LEFT - 0.1, PAGE_H - self.y - h, TEXT_W + 0.2, h)
+        self.y += h + 0.1
+        return self.fig, rect
+
+    def finish(self, footer_left: str) -> None:
+        n = len(self.pages)
+        for i, fig in enumerate(self.pages, start=1):
+            if i > 1:
+                fig.text(M_LEFT / PAGE_W, 1 - 0.45 / PAGE_H, self.title, fontsize=8, color=INK, va="bottom")
+                fig.text(1 - M_RIGHT / PAGE_W, 1 - 0.45 / PAGE_H, f"resonance {__version__}", fontsize=8,
+                         color="#6b7785", va="bottom", ha="right")
+                fig.add_artist(_hline(M_LEFT, PAGE_W - M_RIGHT, 0.52, 0.6))
+            fig.add_artist(_hline(M_LEFT, PAGE_W - M_RIGHT, PAGE_H - 0.55, 0.6))
+            fig.text(M_LEFT / PAGE_W, 0.4 / PAGE_H, footer_left, fontsize=7, color="#6b7785", va="top")
+            fig.text(1 - M_RIGHT / PAGE_W, 0.4 / PAGE_H, f"page {i} of {n}", fontsize=8, color=INK, va="top", ha="right")
+
+
+def _hline(x0, x1, y_top_in, lw):
+    from matplotlib.lines import Line2D  # noqa: PLC0415
+    y = 1 - y_top_in / PAGE_H
+    return Line2D([x0 / PAGE_W, x1 / PAGE_W], [y, y], lw=lw, color=INK)
+
+
+def _rect(x_in, y_top_in, w_in, h_in, color):
+    from matplotlib.patches import Rectangle  # noqa: PLC0415
+    return Rectangle((x_in / PAGE_W, 1 - (y_top_in + h_in) / PAGE_H), w_in / PAGE_W, h_in / PAGE_H,
+                     facecolor=color, edgecolor="none", zorder=-1)
+
+
+# ---------------------------------------------------------------------------------------------
+# figures: one spec draws into any rectangle of any figure (report page or stand-alone file)
+
+@dataclass(frozen=True)
+class _FigSpec:
+    name: str          # file stem
+    size: tuple        # stand-alone size (w, h) [in]
+    draw: Callable     # draw(fig, rect_in) with rect_in = (x, y_bottom, w, h) [in] inside fig
+    page_h: float      # height on the report page [in]
+
+
+def _axes(fig: Figure, rect, pad=(0.72, 0.25, 0.5, 0.42)):
+    """Axes inside ``rect`` (x, y_bottom, w, h) [in] with padding (left, right, bottom, top) [in]."""
+    fw, fh = fig.get_size_inches()
+    x, y, w, h = rect
+    l, r, b, t = pad
+    return fig.add_axes(((x + l) / fw, (y + b) / fh, (w - l - r) / fw, (h - b - t) / fh))
+
+
+def _grid(fig: Figure, rect, nrow, ncol, pad=(0.62, 0.2, 0.45, 0.35)):
+    x, y, w, h = rect
+    out = []
+    for i in range(nrow):
+        for j in range(ncol):
+            out.append(_axes(fig, (x + j * w / ncol, y + (nrow - 1 - i) * h / nrow, w / ncol, h / nrow), pad))
+    return out
+
+
+def _legend_pad(n_entries: int) -> tuple:
+    return (0.72, 1.75, 0.5, 0.42)
+
+
+def _fig_specs(res: StudyResult, data: dict) -> dict[str, list[_FigSpec]]:
+    """Figure specs per report section."""
+    specs: dict[str, list[_FigSpec]] = {"scans": [], "compare": [], "spectra": [], "duty": [], "band": []}
+    banks = {b["name"]: b for b in data["banks"]}
+    v_pcc = _pcc_kv(res, data)
+    lim519_pcc = _v519(v_pcc, data)
+    lim_duty = _duty_limits_pct(data)
+    dl = _duty_limit_set(data)
+    for sc in res.scans:
+        if sc.scenario != "nominal":
+            continue
+        b = sc.bank
+        s = _safe(b.name)
+        weak = res.scans_for(b.name, "weak")
+        specs["scans"].append(_FigSpec(
+            f"fig_scan_{s}_all", (8.2, 4.0),
+            lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, _legend_pad(len(sc.steps))), res, sc,
+                                                   f"Bank {sc.bank.name}: all steps, nominal supply"), 4.0))
+        if weak is not None:
+            specs["scans"].append(_FigSpec(
+                f"fig_scan_{s}_weak_all", (8.2, 4.0),
+                lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, _legend_pad(len(w.steps))), res, w,
+                                                        f"Bank {w.bank.name}: all steps, weak supply"), 4.0))
+        for st in sc.steps:
+            specs["scans"].append(_FigSpec(
+                f"fig_scan_{s}_step{st.step}", (7.4, 4.1),
+                lambda fig, r, sc=sc, k=st.step, w=weak: rf.draw_scan_step(_axes(fig, r), res, sc, k, w), 4.35))
+        det = _detuned_scan(res, b.name)
+        if det is not None:
+            specs["compare"].append(_FigSpec(
+                f"fig_compare_{s}_detuned", (7.4, 4.0),
+                lambda fig, r, sc=sc, d=det: rf.draw_scan_compare(_axes(fig, r), res, sc, d), 4.0))
+        bank = banks.get(b.name)
+        if bank is None:
+            continue
+        steps = bank["steps"]
+        panels = []
+        for where, lim, label in (("bus", _v519(b.bus_kv, data), f"bank bus {b.bus}"),
+                                  ("pcc", lim519_pcc, f"PCC {data.get('pcc_bus')}")):
+            spx = [_spectrum(x, where) for x in steps]
+            if not any(spx):
+                continue
+            thd = [(_thd_bus(x) if where == "bus" else _thd_pcc(x)) for x in steps]
+            worst = int(np.nanargmax([t if t is not None else -1.0 for t in thd])) if any(
+                t is not None for t in thd) else len(steps) - 1
+            hs = sorted({h for d in spx for h in d})
+            env = [max(d.get(h, 0.0) for d in spx) for h in hs]
+            vals = [spx[worst].get(h, 0.0) for h in hs]
+            ref = "" if where == "pcc" else " (for reference; IEEE 519 applies at the PCC)"
+            panels.append((hs, vals, env, lim.individual_pct if lim else None,
+                           f"IEEE 519-{data['settings'].get('ieee519_edition')} individual limit"
+                           + (f" {lim.individual_pct:g} %" if lim else ""),
+                           f"{label}: step {steps[worst]['step']} (highest THD){ref}"))
+        if panels:
+            def draw_sp(fig, r, panels=panels):
+                for ax, p in zip(_grid(fig, r, len(panels), 1, (0.72, 0.25, 0.5, 0.35)), panels):
+                    rf.draw_spectrum(ax, *p)
+            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 3.0 * len(panels)), draw_sp,
+                                             3.0 * len(panels)))
+        if _has_duty(bank):
+            vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
+            nums = [x["step"] for x in steps]
+            lname = dl.name if dl else str(data["settings"].get("duty_limits"))
+            specs["duty"].append(_FigSpec(
+                f"fig_duty_{s}", (7.4, 5.4),
+                lambda fig, r, v=vals, n=nums, ln=lname: rf.draw_duty(_grid(fig, r, 2, 2), n, v, lim_duty, ln), 5.4))
+        rec, _c = _detuning(bank)
+        n_t = _num(_get(rec, "tuning_order")) if rec else None
+        p_pct = _num(_get(rec, "detuning_pct")) if rec else None
+        if rec and (n_t or p_pct):
+            p = p_pct / 100.0 if p_pct else 1.0 / n_t**2
+            n_t = n_t or 1.0 / math.sqrt(p)
+            q_r = np.cumsum([float(q) for q in (rec.get("steps_kvar") or b.stages_kvar)])
+            u_r = _num(rec.get("rated_kv")) or b.rated_kv
+            # X_s / X_C = U^2 Q_R / (S_sc U_R^2); h_p = 1/sqrt(p + X_s/X_C)  [derived, REFERENCES.md detuning]
+            xs_xc = b.bus_kv**2 * q_r / 1000.0 / (sc.sc_mva * u_r**2)
+            hp = 1.0 / np.sqrt(p + xs_xc)
+            dom = min(res.orders.injected) if res.orders.injected else None
+            specs["band"].append(_FigSpec(
+                f"fig_detuning_{s}", (8.2, 3.6),
+                lambda fig, r, n_t=n_t, p=p, hp=hp, k=np.arange(1, hp.size + 1), d=dom, nm=b.name:
+                rf.draw_detuning_band(_axes(fig, r, (0.72, 2.6, 0.5, 0.42)), n_t, p, hp, k, d,
+                                      f"Bank {nm}: recommended detuning"), 3.6))
+    return specs
+
+
+def _save_spec(spec: _FigSpec, out, cache: dict) -> list[str]:
+    fig = cache.get(spec.size)
+    if fig is None:
+        fig = cache[spec.size] = rf.new_figure(*spec.size)
+    else:
+        fig.clear()
+    spec.draw(fig, (0.0, 0.0) + tuple(spec.size))
+    names = [f"{spec.name}.png", f"{spec.name}.svg"]
+    fig.savefig(out.file(names[0]), dpi=rf.PNG_DPI, metadata={"Software": None})
+    fig.savefig(out.file(names[1]), metadata={"Date": None})
+    return names
+
+
+# ---------------------------------------------------------------------------------------------
+# words generated from the data
+
+def _steps_list(ks: list[int]) -> str:
+    ks = [str(k) for k in ks]
+    if len(ks) <= 1:
+        return "".join(ks)
+    return ", ".join(ks[:-1]) + " and " + ks[-1]
+
+
+def _res_sentence(steps: list[dict], margin: float, scen: str) -> str:
+    bad = [s for s in steps if not s.get("resonance_ok")]
+    with_h = [s for s in steps if s.get("h_scan") is not None and s.get("margin_pct") is not None]
+    if not with_h:
+        return f"{scen.capitalize()} supply: no step shows a resonance in the scan range."
+    worst = min(with_h, key=lambda s: abs(s["margin_pct"]))
+    side = "above" if worst["margin_pct"] > 0 else "below"
+    where = (f"step {worst['step']} (h = {worst['h_scan']:.2f}, {abs(worst['margin_pct']):.1f} % {side} the "
+             f"{worst.get('nearest_kind') or ''} {rf.ordinal(worst['nearest_order'])})")
+    if bad:
+        word = "step" if len(bad) == 1 else "steps"
+        return (f"{scen.capitalize()} supply: {len(bad)} of {len(steps)} steps resonate inside the +-{margin:g} % "
+                f"screening band of an order of concern ({word} {_steps_list([s['step'] for s in bad])}); "
+                f"the closest is {where}.")
+    return (f"{scen.capitalize()} supply: no step resonates inside the +-{margin:g} % screening band; "
+            f"the closest is {where}.")
+
+
+def _verdict(bank: dict, data: dict, lim: dict, v519) -> list[str]:
+    margin = data["settings"]["margin_pct"]
+    kind = (f"a detuned bank (p = {bank['detuning_pct']:g} %, tuning order {bank['tuning_order']:.2f})"
+            if bank.get("detuning_pct") else "a plain (undetuned) bank")
+    n = len(bank["steps"])
+    total = sum(bank["stages_kvar"])
+    out = [f"Bank {bank['name']} at bus {bank['bus']} ({bank['bus_kv']:g} kV) is {kind} of {n} steps, "
+           f"{total:g} kvar at {bank['rated_kv']:g} kV; short-circuit power at the bus {bank['sc_mva']:.2f} MVA."]
+    out.append(_res_sentence(bank["steps"], margin, "nominal"))
+    if bank.get("weak_supply"):
+        out.append(_res_sentence(bank["weak_supply"]["steps"], margin, "weak"))
+    steps = bank["steps"]
+    if _has_penetration(bank):
+        tb = [(s["step"], _thd_bus(s)) for s in steps if _thd_bus(s) is not None]
+        tp = [(s["step"], _thd_pcc(s)) for s in steps if _thd_pcc(s) is not None]
+        parts = []
+        if tb:
+            k, v = max(tb, key=lambda x: x[1])
+            parts.append(f"the highest voltage THD at the bank bus is {v:.2f} % (step {k})")
+        if tp:
+            k, v = max(tp, key=lambda x: x[1])
+            lim_t = f" against the IEEE 519 limit of {v519.thd_pct:g} %" if v519 else ""
+            over = "" if not v519 else (" - exceeded" if v > v519.thd_pct else " - within the limit")
+            parts.append(f"at the PCC {v:.2f} % (step {k}){lim_t}{over}")
+        out.append("Harmonic penetration: " + "; ".join(parts) + ".")
+    else:
+        out.append(f"Harmonic penetration (THD at the bank bus and the PCC): {NOT_EVALUATED}.")
+    if _has_duty(bank):
+        fails = []
+        for s in steps:
+            over = [DUTY_LABEL[q] for q, k in DUTY_KEYS.items()
+                    if _num(s.get(k)) is not None and q in lim and _num(s.get(k)) > lim[q]]
+            if over or s.get("duty_ok") is False:
+                fails.append((s["step"], over))
+        name = data["settings"].get("duty_limits")
+        if fails:
+            detail = "; ".join(f"step {k}: {', '.join(o) if o else 'duty check failed'}" for k, o in fails)
+            out.append(f"Capacitor duty exceeds the {name} limits on {len(fails)} of {n} steps ({detail}).")
+        else:
+            out.append(f"Capacitor duty is within the {name} limits on every step.")
+    else:
+        out.append(f"Capacitor duty against the {data['settings'].get('duty_limits')} limits: {NOT_EVALUATED}.")
+    rec, _c = _detuning(bank)
+    if rec:
+        bits = []
+        if _num(rec.get("detuning_pct")) is not None:
+            bits.append(f"p = {_num(rec['detuning_pct']):g} %")
+        if _num(rec.get("tuning_order")) is not None:
+            bits.append(f"tuning order {_num(rec['tuning_order']):.2f}")
+        if _num(rec.get("rated_kv")) is not None:
+            bits.append(f"capacitors rated {_num(rec['rated_kv']):g} kV")
+        if rec.get("steps_kvar"):
+            bits.append(f"steps {_fmt_any(rec['steps_kvar'])} kvar")
+        out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
+    elif not bank.get("detuning_pct"):
+        out.append(f"Detuning proposal: {NOT_EVALUATED}.")
+    fails = [s for s in steps if not s.get("resonance_ok") or s.get("duty_ok") is False]
+    wfails = [s for s in (bank.get("weak_supply") or {}).get("steps", []) if not s.get("resonance_ok")
+              or s.get("duty_ok") is False]
+    if fails or wfails:
+        out.append(f"Verdict: the bank as specified does not pass the screening ({len(fails)} step(s) with a finding "
+                   f"at nominal supply, {len(wfails)} at weak supply). Review the findings before it is bought.")
+    else:
+        out.append("Verdict: the bank as specified passes every screening check evaluated in this version.")
+    return out
+
+
+_R_MODEL = {
+    "constant": "series resistance constant with frequency (no skin effect; common practice for screening)",
+    "sqrt_h": "series resistance rising as sqrt(h) (skin-effect approximation; common practice)",
+    "breuer": "series resistance R(1 + 0.1 h^1.5)/1.1 (Breuer et al., IEEE Trans. PAS; from memory)",
+}
+_L_MODEL = {
+    "parallel_rl": "linear loads as parallel R-L: R = V^2/P, X = h V^2/Q (common practice)",
+    "series_rl": "linear loads as series R-L drawing P and Q at the fundamental",
+    "cigre_c4": "linear loads by the CIGRE 36.05 model: R = V^2/P, X_s = 0.073 h R, X_p = h R/(6.7 Q/P - 0.74) "
+                "(coefficients from memory)",
+    "none": "linear loads ignored (no load damping; conservative peaks)",
+}
+
+
+def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
+    st = data["settings"]
+    v_pcc = _pcc_kv(res, data)
+    v519 = _v519(v_pcc, data)
+    dl = _duty_limit_set(data)
+    m = [
+        "Supply: Thevenin source at the supply bus, X = V^2/S_sc split by the X/R ratio, reactance proportional "
+        "to h." + (" A weak-supply scenario repeats the scan with the minimum short-circuit power."
+                   if data["supply"].get("sc_mva_min") else ""),
+        "Transformers: X = (Z%/100) V^2/S_T, proportional to h; cables and lines: series R + jX per km with the "
+        "shunt capacitance (pi section).",
+        f"Resistance model ({st.get('resistance_model')}): {_R_MODEL.get(st.get('resistance_model'), st.get('resistance_model'))}.",
+        f"Load model ({st.get('load_model')}): {_L_MODEL.get(st.get('load_model'), st.get('load_model'))}.",
+        "Capacitors: constant capacitance from the nameplate kvar at the rated voltage (Q = Q_R (U/U_R)^2); detuned "
+        "steps with a series reactor p = X_L/X_C of the given X/R. Delivered kvar uses the load-flow bus voltage "
+        "(pandapower) with the step in service.",
+        f"Frequency scan: driving-point impedance |Z(h)| at the bank bus for every step, h = 1 to {st.get('h_max'):g} "
+        f"in steps of {st.get('h_step'):g}, peaks refined locally; h_est = sqrt(S_sc/Q_C) is the hand check "
+        "(IEEE Std 1036). Other banks: " + ("in service at full size." if st.get("other_banks") == "full"
+                                            else "out of service."),
+        f"Screening: a resonance within +-{st.get('margin_pct'):g} % of an injected, background or characteristic "
+        "order (k p +- 1) is a finding (common practice).",
+        "Short-circuit power at each bank bus is cross-checked with IEC 60909-0:2016 through pandapower.",
+        f"Voltage distortion limits: IEEE Std 519-{st.get('ieee519_edition')}, applied at the PCC "
+        f"(bus {data.get('pcc_bus')}" + (f", {v_pcc:g} kV" if v_pcc else "") + ")"
+        + (f": individual {v519.individual_pct:g} %, THD {v519.thd_pct:g} % ({v519.source})." if v519 else "."),
+        "Capacitor duty limits: " + (f"{dl.citation} - rms voltage {dl.v_rms:g}, crest voltage {dl.v_peak:g}, rms "
+                                     f"current {dl.i_rms:g}, reactive power {dl.q:g} pu. {dl.note}." if dl else
+                                     str(st.get("duty_limits"))),
+        "Summation of several sources: " + ("arithmetic sum of magnitudes (worst case)." if st.get("summation") ==
+                                            "arithmetic" else "IEC 61000-3-6 summation law, exponents 1 (h < 5), "
+                                            "1.4 (5-10), 2 (h > 10) (from memory)."),
+    ]
+    mem = []
+    if dl:
+        for q, src in (("rms voltage", dl.v_rms_source), ("crest voltage", dl.v_peak_source),
+                       ("rms current", dl.i_rms_source), ("reactive power", dl.q_source)):
+            if "memory" in src:
+                mem.append(f"Capacitor {q} limit of {dl.name}: {src}.")
+    if v519 and "memory" in v519.source:
+        mem.append(f"IEEE 519 voltage limits at {v_pcc:g} kV: {v519.source}.")
+    if st.get("summation") != "arithmetic":
+        mem.append("IEC 61000-3-6 summation exponents (from memory).")
+    if st.get("resistance_model") == "breuer":
+        mem.append("Breuer resistance law 1 + 0.1 h^1.5 (from memory).")
+    if st.get("load_model") == "cigre_c4":
+        mem.append("CIGRE 36.05 load model coefficients 0.073, 6.7 and 0.74 (from memory).")
+    for b in data["banks"]:
+        if _detuning(b)[0]:
+            mem.append(f"Capacitance tolerance {rf.CAP_TOLERANCE[0] * 100:+.0f}/{rf.CAP_TOLERANCE[1] * 100:+.0f} % "
+                       "used for the detuning band (from memory; editions differ).")
+            break
+    for spec in _builtin_notes(res):
+        mem.append(spec)
+    mem.append(f"The +-{st.get('margin_pct'):g} % screening band around the orders of concern is common practice, "
+               "not a limit of a standard.")
+    return m, mem
+
+
+def _builtin_notes(res: StudyResult) -> list[str]:
+    from .spectra import BUILTIN_SPECTRA  # noqa: PLC0415
+    out = []
+    for name in sorted({hs.spectrum for hs in res.case.harmonic_source if isinstance(hs.spectrum, str)}):
+        sp = BUILTIN_SPECTRA.get(name)
+        note = getattr(sp, "note", "") if sp is not None else ""
+        if note and "memory" in note:
+            out.append(f"Built-in spectrum '{name}': {note}")
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# the report
+
+def write_report(res: StudyResult, data: dict, out, *, date: str | None = None) -> list[str]:
+    """Stage the PDF report, every figure (PNG and SVG) and every table (CSV).
+
+    Parameters
+    ----------
+    res : StudyResult
+        Study result from :func:`resonance.study.run_study`.
+    data : dict
+        Results dictionary from :func:`resonance.results.to_dict` (the content of
+        ``results.json``); keys of later stages are optional.
+    out : OutputDir
+        Output directory; files are staged with ``out.file(name)``.
+    date : str, optional
+        Date printed on the cover (today, ISO format, when None) [unitless].
+
+    Returns
+    -------
+    list of str
+        Names of the staged files, ``report.pdf`` first.
+
+    Notes
+    -----
+    The PDF carries no creation date and SVGs use a fixed id salt, so the same
+    input gives the same content apart from the cover date.
+    """
+    with matplotlib.rc_context(rf.RC):
+        return _write(res, data, out, date or _dt.date.today().isoformat())
+
+
+def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
+    names: list[str] = []
+    title = data["case"]["title"]
+    doc = _Doc(title)
+    tables = report_tables(res, data)
+    tbl = {t.name: t for t in tables}
+    specs = _fig_specs(res, data)
+    lim = _duty_limits_pct(data)
+    v519 = _v519(_pcc_kv(res, data), data)
+    cache: dict = {}
+
+    # --- cover
+    doc.new_page()
+    doc.y = 1.3
+    doc.text(M_LEFT, doc.y, "Capacitor bank harmonic screening study", fontsize=11, color="#6b7785")
+    doc.y += 0.3
+    for line in textwrap.wrap(title, 52):
+        doc.text(M_LEFT, doc.y, line, fontsize=19, weight="bold")
+        doc.y += 0.36
+    doc.y += 0.25
+    n_find = len(data.get("findings", []))
+    doc.kv([("Case file", str(data["case"].get("file") or "-")),
+            ("SHA-256", str(data["case"].get("sha256") or "-")),
+            ("Tool", f"{data['tool']['name']} {data['tool']['version']}"),
+            ("Date of report", date),
+            ("System frequency", f"{data['case']['frequency_hz']} Hz"),
+            ("Banks", ", ".join(f"{b['name']} ({b['bus']}, {sum(b['stages_kvar']):g} kvar)" for b in data["banks"])),
+            ("PCC", str(data.get("pcc_bus"))),
+            ("Screening result", "all checks evaluated pass" if data.get("passed") else
+             f"{n_find} finding(s) beyond a limit - see the summary")],
+           mono_keys=("SHA-256",))
+    doc.y += 0.35
+    doc.text(M_LEFT, doc.y, "Engineer:", fontsize=10, weight="bold")
+    doc.fig.add_artist(_hline(M_LEFT + 1.0, M_LEFT + 4.2, doc.y + 0.2, 0.6))
+    doc.text(M_LEFT + 4.5, doc.y, "Date:", fontsize=10, weight="bold")
+    doc.fig.add_artist(_hline(M_LEFT + 5.0, PAGE_W - M_RIGHT, doc.y + 0.2, 0.6))
+    doc.y += 0.45
+    doc.text(M_LEFT, doc.y, "Signature:", fontsize=10, weight="bold")
+    doc.fig.add_artist(_hline(M_LEFT + 1.0, M_LEFT + 4.2, doc.y + 0.2, 0.6))
+    doc.y += 0.55
+    box_top = doc.y
+    doc.y += 0.12
+    doc.para(CAUTION, size=9.5, weight="bold", indent=0.12)
+    doc.fig.add_artist(_rect(M_LEFT, box_top, TEXT_W, doc.y - box_top + 0.02, "#fbf1dc"))
+    doc.y += 0.35
+    cover, toc_y = doc.fig, doc.y
+
+    # --- summary per bank
+    for b in data["banks"]:
+        doc.new_page()
+        doc.heading(f"1 Summary - bank {b['name']}")
+        pairs = [("Bus", f"{b['bus']}, {b['bus_kv']:g} kV"),
+                 ("Capacitors", f"{len(b['stages_kvar'])} stages, {_fmt_any(b['stages_kvar'])} kvar at "
+                                f"{b['rated_kv']:g} kV ({sum(b['stages_kvar']):g} kvar)"),
+                 ("Detuning", f"p = {b['detuning_pct']:g} %, tuning order {b['tuning_order']:.2f}"
+                  if b.get("detuning_pct") else "none (plain bank)"),
+                 ("S_sc at the bus", f"{b['sc_mva']:.2f} MVA (IEC 60909: "
+                  + (f"{b['sc_mva_iec60909']:.2f} MVA" if b.get("sc_mva_iec60909") else "-") + f"), X/R "
+                  + (f"{b['x_r_at_bus']:.2f}" if b.get("x_r_at_bus") else "-"))]
+        if b.get("weak_supply"):
+            pairs.append(("Weak supply", f"S_sc {b['weak_supply']['sc_mva']:.2f} MVA at the bus"))
+        doc.kv(pairs, size=8.5, key_w=1.35)
+        doc.y += 0.1
+        doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.2)
+        if b.get("weak_supply"):
+            doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.2)
+        doc.text(M_LEFT, doc.y, "Verdict", fontsize=9.5, weight="bold")
+        doc.y += 0.2
+        verdict = _verdict(b, data, lim, v519)
+        doc.bullets(verdict, size=8.3)
+        notes = [w for w in data.get("warnings", []) if f"bank {b['name']} " in w]
+        if notes:
+            doc.text(M_LEFT, doc.y, "Notes", fontsize=9, weight="bold")
+            doc.y += 0.2
+            doc.bullets(notes, size=7.5)
+    other_notes = [w for w in data.get("warnings", []) if not any(f"bank {b['name']} " in w for b in data["banks"])]
+    if other_notes:
+        doc.bullets(other_notes, size=7.5)
+
+    # --- input data
+    doc.new_page()
+    doc.heading("2 Input data")
+    doc.para(f"As read from {data['case'].get('file')}; units in brackets. Bus voltages are line-to-line.")
+    if res.case.network is not None:
+        doc.para(f"Network elements beyond the tables below come from the pandapower file "
+                 f"{res.case.network.pandapower_json}.")
+    for t in tables:
+        if t.name.startswith("table_input_"):
+            doc.table(t)
+
+    # --- scans
+    for sc in res.scans:
+        if sc.scenario != "nominal":
+            continue
+        doc.new_page()
+        doc.heading(f"3 Frequency scans - bank {sc.bank.name}")
+        doc.para("Driving-point impedance magnitude at the bank bus against harmonic order. Shaded: the "
+                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern (darker and solid "
+                 "red line: injected or background order; dashed grey: characteristic order). Markers: resonance "
+                 "of each step (X inside a band). Dotted: bank off.")
+        mine = [s for s in specs["scans"] if s.name.startswith(f"fig_scan_{_safe(sc.bank.name)}_")]
+        for s in mine:
+            if s.name.endswith("_step1"):
+                doc.new_page()
+                doc.text(M_LEFT, doc.y, f"Bank {sc.bank.name}: one plot per step (dashed: weak supply)",
+                         fontsize=9.5, weight="bold")
+                doc.y += 0.25
+            fig, rect = doc.region(s.page_h)
+            s.draw(fig, rect)
+            names += _save_spec(s, out, cache)
+
+    # --- detuned vs plain
+    doc.heading("4 Detuned bank compared with the plain bank")
+    if specs["compare"]:
+        for s in specs["compare"]:
+            fig, rect = doc.region(s.page_h)
+            s.draw(fig, rect)
+            names += _save_spec(s, out, cache)
+    else:
+        doc.para(f"Scan of a detuned candidate: {NOT_EVALUATED}.")
+
+    # --- spectra
+    doc.heading("5 Harmonic voltage distortion")
+    if specs["spectra"]:
+        doc.para("Bars: harmonic voltage of the step with the highest THD; ticks: highest value over all steps; "
+                 "dashed: IEEE 519 individual-harmonic limit (red bars exceed it).")
+        for s in specs["spectra"]:
+            fig, rect = doc.region(s.page_h)
+            s.draw(fig, rect)
+            names += _save_spec(s, out, cache)
+    else:
+        doc.para(f"Harmonic voltage spectra at the bank bus and the PCC: {NOT_EVALUATED}.")
+    for t in tables:
+        if t.name.startswith("table_spectrum_"):
+            doc.table(t, size=6.5)
+
+    # --- duty
+    doc.heading("6 Capacitor duty")
+    if specs["duty"]:
+        doc.para(f"Continuous duty of the capacitors per step against the {data['settings'].get('duty_limits')} "
+                 "limits (dashed); red bars exceed a limit.")
+        for s in specs["duty"]:
+            fig, rect = doc.region(s.page_h)
+            s.draw(fig, rect)
+            names += _save_spec(s, out, cache)
+    else:
+        doc.para(f"Capacitor duty (rms and crest voltage, rms current, reactive power): {NOT_EVALUATED}.")
+
+    # --- detuning
+    doc.heading("7 Detuning recommendation")
+    det_tables = [t for t in tables if t.name.startswith("table_detuning_")]
+    if specs["band"] or det_tables:
+        for s in specs["band"]:
+            fig, rect = doc.region(s.page_h)
+            s.draw(fig, rect)
+            names += _save_spec(s, out, cache)
+        for t in det_tables:
+            doc.table(t)
+    else:
+        doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
+
+    # --- methods and references
+    doc.heading("8 Methods and assumptions")
+    meth, mem = _methods(res, data)
+    doc.bullets(meth)
+    doc.text(M_LEFT, doc.y, "Taken from memory or common practice (verify against the documents)", fontsize=9.5,
+             weight="bold")
+    doc.y += 0.22
+    doc.bullets(mem)
+    doc.heading("9 References")
+    doc.bullets(REFERENCES)
+
+    # --- contents on the cover, then running header and page numbers
+    y = toc_y
+    cover.text(M_LEFT / PAGE_W, 1 - y / PAGE_H, "Contents", fontsize=10, weight="bold", color=INK, va="top")
+    y += 0.25
+    for head, page in doc.toc:
+        if y > PAGE_H - M_BOTTOM - 0.2:
+            break
+        cover.text((M_LEFT + 0.1) / PAGE_W, 1 - y / PAGE_H, head, fontsize=8.5, color=INK, va="top")
+        cover.text(1 - M_RIGHT / PAGE_W, 1 - y / PAGE_H, str(page), fontsize=8.5, color=INK, va="top", ha="right")
+        y += 0.19
+    sha = str(data["case"].get("sha256") or "")
+    doc.finish(f"{data['case'].get('file')}  sha256 {sha[:12]}  -  screening aid; see the caution on page 1")
+
+    pdf_name = "report.pdf"
+    with PdfPages(out.file(pdf_name), metadata={"CreationDate": None, "Creator": f"resonance {__version__}",
+                                               "Producer": None, "Title": title}) as pdf:
+        for fig in doc.pages:
+            pdf.savefig(fig)
+    for t in tables:
+        out.write_text(t.name, t.csv())
+        names.append(t.name)
+    return [pdf_name] + names
