@@ -8,13 +8,15 @@ the file, the field (e.g. ``transformer[0].z_pct``) and what is wrong.
 
 from __future__ import annotations
 
+import difflib
 import math
 import tomllib
 from collections import deque
 from pathlib import Path
-from typing import Any, Literal, Union
+from typing import Annotated, Any, Literal, Union
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, Strict, ValidationError, field_validator, model_validator
 
 from .errors import InputError, InputProblem
 
@@ -31,13 +33,22 @@ __all__ = [
     "load_case",
     "parse_case",
     "bus_voltages_kv",
+    "check_case",
+    "case_hints",
+    "sc_kva_estimate",
 ]
+
+#: a number given as a TOML number: ``true`` or ``"13.8"`` are refused rather
+#: than read as 1.0 or 13.8 (an int is accepted where a float is expected)
+Num = Annotated[float, Strict()]
+#: an integer given as a TOML integer
+Int = Annotated[int, Strict()]
 
 
 class _Strict(BaseModel):
     """Base: unknown keys are errors, values are frozen once read."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True, str_strip_whitespace=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, str_strip_whitespace=True, allow_inf_nan=False)
 
 
 Name = Field(min_length=1, max_length=80)
@@ -53,13 +64,13 @@ class Supply(_Strict):
     """
 
     bus: str = Name
-    kv: float = Field(gt=0.05, le=800.0)
-    sc_mva: float = Field(gt=0.0, le=1.0e6)
-    x_r: float = Field(gt=0.0, le=200.0)
-    sc_mva_min: float | None = Field(default=None, gt=0.0, le=1.0e6)
-    x_r_min: float | None = Field(default=None, gt=0.0, le=200.0)
-    background_pct: dict[int, float] = Field(default_factory=dict)
-    background_phase_deg: dict[int, float] = Field(default_factory=dict)
+    kv: Num = Field(gt=0.05, le=800.0)
+    sc_mva: Num = Field(gt=0.0, le=1.0e6)
+    x_r: Num = Field(gt=0.0, le=200.0)
+    sc_mva_min: Num | None = Field(default=None, gt=0.0, le=1.0e6)
+    x_r_min: Num | None = Field(default=None, gt=0.0, le=200.0)
+    background_pct: dict[int, Num] = Field(default_factory=dict)
+    background_phase_deg: dict[int, Num] = Field(default_factory=dict)
 
     @field_validator("background_pct")
     @classmethod
@@ -71,8 +82,18 @@ class Supply(_Strict):
                 raise ValueError(f"order {h}: {pct} % must be between 0 and 30 % of nominal")
         return v
 
+    @field_validator("background_phase_deg")
+    @classmethod
+    def _bg_phase(cls, v: dict[int, float]) -> dict[int, float]:
+        for h in v:
+            if h < 2:
+                raise ValueError(f"harmonic order {h} must be an integer >= 2")
+        return v
+
     @model_validator(mode="after")
     def _weak(self) -> "Supply":
+        if self.x_r_min is not None and self.sc_mva_min is None:
+            raise ValueError("x_r_min is given without sc_mva_min; the weak-supply scenario needs sc_mva_min")
         if self.sc_mva_min is not None and self.sc_mva_min > self.sc_mva:
             raise ValueError(f"sc_mva_min ({self.sc_mva_min}) is larger than sc_mva ({self.sc_mva});"
                              " the weak-supply scenario must not be stronger than the nominal one")
@@ -85,11 +106,11 @@ class Transformer(_Strict):
     name: str = Name
     hv_bus: str = Name
     lv_bus: str = Name
-    kva: float = Field(gt=0.0, le=2.0e6)
-    hv_kv: float = Field(gt=0.05, le=800.0)
-    lv_kv: float = Field(gt=0.05, le=800.0)
-    z_pct: float = Field(gt=0.5, le=30.0)
-    x_r: float = Field(gt=0.1, le=200.0)
+    kva: Num = Field(gt=0.0, le=2.0e6)
+    hv_kv: Num = Field(gt=0.05, le=800.0)
+    lv_kv: Num = Field(gt=0.05, le=800.0)
+    z_pct: Num = Field(gt=0.5, le=30.0)
+    x_r: Num = Field(gt=0.1, le=200.0)
 
     @model_validator(mode="after")
     def _sides(self) -> "Transformer":
@@ -106,16 +127,20 @@ class Cable(_Strict):
     name: str = Name
     from_bus: str = Name
     to_bus: str = Name
-    length_m: float = Field(ge=0.0, le=200_000.0)
-    r_ohm_per_km: float = Field(ge=0.0, le=50.0)
-    x_ohm_per_km: float = Field(ge=0.0, le=10.0)
-    c_nf_per_km: float = Field(default=0.0, ge=0.0, le=5000.0)
-    parallel: int = Field(default=1, ge=1, le=20)
+    length_m: Num = Field(ge=0.0, le=200_000.0)
+    r_ohm_per_km: Num = Field(ge=0.0, le=50.0)
+    x_ohm_per_km: Num = Field(ge=0.0, le=10.0)
+    c_nf_per_km: Num = Field(default=0.0, ge=0.0, le=5000.0)
+    parallel: Int = Field(default=1, ge=1, le=20)
 
     @model_validator(mode="after")
     def _ends(self) -> "Cable":
         if self.from_bus == self.to_bus:
             raise ValueError("from_bus and to_bus are the same bus")
+        if self.length_m * math.hypot(self.r_ohm_per_km, self.x_ohm_per_km) == 0.0:
+            raise ValueError("zero series impedance (length_m, r_ohm_per_km and x_ohm_per_km give 0 ohm); "
+                             "a cable without impedance is a busbar: put the equipment on one bus, "
+                             "or give the cable's real length and impedance")
         return self
 
 
@@ -124,8 +149,8 @@ class Load(_Strict):
 
     name: str = Name
     bus: str = Name
-    kw: float = Field(ge=0.0, le=5.0e6)
-    pf: float = Field(gt=0.0, le=1.0)
+    kw: Num = Field(ge=0.0, le=5.0e6)
+    pf: Num = Field(gt=0.0, le=1.0)
 
 
 class HarmonicSource(_Strict):
@@ -138,9 +163,9 @@ class HarmonicSource(_Strict):
 
     name: str = Name
     bus: str = Name
-    kva: float = Field(gt=0.0, le=2.0e6)
-    spectrum: Union[str, dict[int, float]]
-    phase_deg: dict[int, float] = Field(default_factory=dict)
+    kva: Num = Field(gt=0.0, le=2.0e6)
+    spectrum: Union[str, dict[int, Num]]
+    phase_deg: dict[int, Num] = Field(default_factory=dict)
 
     @field_validator("spectrum")
     @classmethod
@@ -155,6 +180,14 @@ class HarmonicSource(_Strict):
                     raise ValueError(f"order {h}: {pct} % must be between 0 and 200 % of the fundamental")
         return v
 
+    @field_validator("phase_deg")
+    @classmethod
+    def _phase(cls, v: dict[int, float]) -> dict[int, float]:
+        for h in v:
+            if h < 2:
+                raise ValueError(f"harmonic order {h} must be an integer >= 2")
+        return v
+
 
 class Bank(_Strict):
     """Capacitor bank: stage sizes at the rated voltage, switched in order.
@@ -166,10 +199,10 @@ class Bank(_Strict):
 
     name: str = Name
     bus: str = Name
-    rated_kv: float = Field(gt=0.05, le=800.0)
-    steps_kvar: list[float] = Field(min_length=1, max_length=64)
-    detuning_pct: float | None = Field(default=None, gt=0.0, lt=50.0)
-    reactor_q: float = Field(default=50.0, gt=1.0, le=1000.0)
+    rated_kv: Num = Field(gt=0.05, le=800.0)
+    steps_kvar: list[Num] = Field(min_length=1, max_length=64)
+    detuning_pct: Num | None = Field(default=None, gt=0.0, lt=50.0)
+    reactor_q: Num = Field(default=50.0, gt=1.0, le=1000.0)
 
     @field_validator("steps_kvar")
     @classmethod
@@ -189,18 +222,18 @@ class NetworkFile(_Strict):
 class StudySettings(_Strict):
     """Study settings, all with defaults (see docs/case-file.md)."""
 
-    h_max: float = Field(default=50.0, ge=2.0, le=100.0)
-    h_step: float = Field(default=0.01, ge=0.0005, le=0.05)
+    h_max: Num = Field(default=50.0, ge=2.0, le=100.0)
+    h_step: Num = Field(default=0.01, ge=0.0005, le=0.05)
     resistance_model: Literal["constant", "sqrt_h", "breuer"] = "constant"
     load_model: Literal["parallel_rl", "series_rl", "cigre_c4", "none"] = "parallel_rl"
-    margin_pct: float = Field(default=10.0, ge=0.0, le=50.0)
+    margin_pct: Num = Field(default=10.0, ge=0.0, le=50.0)
     other_banks: Literal["off", "full"] = "off"
     duty_limits: Literal["ieee18-2002", "ieee18-2012", "ieee18-1992", "iec60831-1", "iec60871-1"] = "ieee18-2002"
     ieee519_edition: Literal["2014", "2022"] = "2014"
     summation: Literal["arithmetic", "iec61000-3-6", "phasor"] = "arithmetic"
     pcc_bus: str | None = None
-    max_demand_kw: float | None = Field(default=None, gt=0.0)
-    max_demand_a: float | None = Field(default=None, gt=0.0)
+    max_demand_kw: Num | None = Field(default=None, gt=0.0)
+    max_demand_a: Num | None = Field(default=None, gt=0.0)
 
 
 class Case(_Strict):
@@ -228,6 +261,11 @@ class Case(_Strict):
             return self.study.pcc_bus
         return self.supply.bus if self.supply else ""
 
+    @property
+    def hints(self) -> tuple[InputProblem, ...]:
+        """Non-fatal warnings about likely mistakes (see :func:`case_hints`)."""
+        return case_hints(self)
+
 
 _HINTS = {
     "extra_forbidden": "unknown key (typo?)",
@@ -240,7 +278,7 @@ def _loc_to_field(loc: tuple) -> str:
     for part in loc:
         if isinstance(part, int):
             out += f"[{part}]"
-        elif str(part) in ("str", "dict[int,float]", "function-after[_spec(), dict[int,float]]"):
+        elif str(part) in ("str", "constrained-str", "[key]") or str(part).startswith(("dict[", "function-")):
             continue
         else:
             out += ("." if out else "") + str(part)
@@ -284,6 +322,13 @@ def _problems_from_validation(err: ValidationError, file: str) -> list[InputProb
             msg = f"{msg}; got {e.get('input')!r}"
         elif kind == "value_error":
             msg = msg.removeprefix("Value error, ")
+        given = e.get("input")
+        if ".spectrum" in fld and kind == "string_type" and isinstance(given, dict):
+            continue  # a table was given: the table branch of the union reports what is wrong in it
+        if kind in ("float_type", "int_type", "bool_type") or kind.endswith("_parsing"):
+            msg = f"{msg}; got {e.get('input')!r}"
+        elif kind == "finite_number":
+            msg = f"must be a finite number; got {e.get('input')!r}"
         key = (fld, msg)
         if fld.endswith(".spectrum") and kind in ("string_type", "dict_type"):
             # a union error: report once, in plain words

@@ -21,7 +21,7 @@ from .case import Case, bus_voltages_kv
 from .errors import InputError, InputProblem, ModelError
 from .network import BRANCH_LINE, BRANCH_OTHER, BRANCH_TRAFO, NetworkArrays
 
-__all__ = ["PlantModel", "build_model", "load_flow_vm_pu", "iec60909_sc_mva", "supply_impedance_pu"]
+__all__ = ["PlantModel", "LoadFlow", "build_model", "load_flow_vm_pu", "iec60909_sc_mva", "supply_impedance_pu"]
 
 
 def _pp():
@@ -410,51 +410,98 @@ def build_model(case: Case) -> PlantModel:
                       sc_mva_supply_min=sc_min, x_r_supply_min=xr_min)
 
 
+class LoadFlow:
+    """Fundamental load flows of one plant with its banks at chosen outputs.
+
+    The net is copied once, the supply is put behind its Thevenin impedance
+    and each bank becomes a constant-impedance shunt whose output is changed
+    between runs; later runs start from the previous solution.
+
+    Parameters
+    ----------
+    model : PlantModel
+        Plant model (its net is copied, never modified).
+    bank_buses : dict
+        Bank name -> bus name.
+    weak : bool
+        Use the weak-supply short-circuit power (``sc_mva_supply_min``).
+
+    References
+    ----------
+    pandapower documentation, ``runpp`` (Newton-Raphson power flow).
+    """
+
+    def __init__(self, model: PlantModel, bank_buses: dict, weak: bool = False):
+        self._pp = _pp()
+        self.model = model
+        self.net = copy.deepcopy(model.net)
+        sc = model.sc_mva_supply_min if weak and model.sc_mva_supply_min else model.sc_mva_supply
+        xr = model.x_r_supply_min if weak and model.x_r_supply_min else model.x_r_supply
+        _supply_behind_impedance(self._pp, self.net, model, sc, xr)
+        self.shunt = {}
+        for name, bus in bank_buses.items():
+            b = model.bus_pp[bus]
+            self.shunt[name] = int(self._pp.create_shunt(self.net, b, q_mvar=0.0, p_mw=0.0,
+                                                         vn_kv=float(self.net.bus.at[b, "vn_kv"])))
+        self._solved = False
+
+    def vm_pu(self, q_kvar: dict) -> np.ndarray:
+        """Bus voltages with the banks at the given outputs.
+
+        Parameters
+        ----------
+        q_kvar : dict
+            Bank name -> reactive power at the bus nominal voltage [kvar]
+            (constant impedance; banks not named are off).
+
+        Returns
+        -------
+        ndarray, shape (n_model_bus,)
+            Voltage magnitude per model bus [pu].
+
+        Raises
+        ------
+        ModelError
+            The load flow did not converge.
+        """
+        for name, idx in self.shunt.items():
+            self.net.shunt.at[idx, "q_mvar"] = -float(q_kvar.get(name, 0.0)) / 1000.0
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                self._pp.runpp(self.net, calculate_voltage_angles=False, trafo_model="pi", numba=False,
+                               init="results" if self._solved else "flat", voltage_depend_loads=False)
+        except Exception as e:  # pandapower raises its own LoadflowNotConverged and others
+            self._solved = False
+            raise ModelError(f"fundamental load flow did not converge ({type(e).__name__})") from None
+        self._solved = True
+        vm = np.ones(self.model.arrays.n_bus)
+        for name, m in self.model.model_bus.items():
+            vm[m] = float(self.net.res_bus.at[self.model.bus_pp[name], "vm_pu"])
+        return vm
+
+
 def load_flow_vm_pu(model: PlantModel, shunts: list[tuple[str, float]]) -> np.ndarray:
-    """Fundamental load flow with extra capacitive shunts in service.
+    """One fundamental load flow with capacitive shunts in service (see :class:`LoadFlow`).
 
     Parameters
     ----------
     model : PlantModel
         Plant model (its net is copied, never modified).
     shunts : list of (bus name, q_kvar)
-        Reactive power of each capacitor at the bus's nominal voltage [kvar]
-        (positive = delivered); constant-impedance.
+        Reactive power of each capacitor at the bus's nominal voltage [kvar].
 
     Returns
     -------
     ndarray, shape (n_model_bus,)
         Bus voltage magnitude per model bus [pu].
-
-    Raises
-    ------
-    ModelError
-        The load flow did not converge.
-
-    References
-    ----------
-    pandapower documentation, ``runpp`` (Newton-Raphson power flow).
     """
-    pp = _pp()
-    net = copy.deepcopy(model.net)
-    _supply_behind_impedance(pp, net, model)
-    for bus, q_kvar in shunts:
-        b = model.bus_pp[bus]
-        pp.create_shunt(net, b, q_mvar=-q_kvar / 1000.0, p_mw=0.0, vn_kv=float(net.bus.at[b, "vn_kv"]))
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            pp.runpp(net, calculate_voltage_angles=False, trafo_model="pi", numba=False, init="flat",
-                     voltage_depend_loads=False)
-    except Exception as e:  # pandapower raises its own LoadflowNotConverged and others
-        raise ModelError(f"fundamental load flow did not converge ({type(e).__name__})") from None
-    vm = np.ones(model.arrays.n_bus)
-    for name, m in model.model_bus.items():
-        vm[m] = float(net.res_bus.at[model.bus_pp[name], "vm_pu"])
-    return vm
+    lf = LoadFlow(model, {f"s{i}": bus for i, (bus, _) in enumerate(shunts)})
+    return lf.vm_pu({f"s{i}": q for i, (_, q) in enumerate(shunts)})
 
 
-def _supply_behind_impedance(pp, net, model: PlantModel) -> None:
+def _supply_behind_impedance(pp, net, model: PlantModel, sc_mva: float | None = None,
+                             x_r: float | None = None) -> None:
     """Put each external grid behind its Thevenin impedance (load-flow copy only).
 
     pandapower's external grid is an ideal source in the load flow; the
@@ -468,7 +515,8 @@ def _supply_behind_impedance(pp, net, model: PlantModel) -> None:
             continue
         b = int(net.ext_grid.at[gi, "bus"])
         if b == sup:
-            sc, xr = model.sc_mva_supply, model.x_r_supply
+            sc = sc_mva if sc_mva else model.sc_mva_supply
+            xr = x_r if x_r else model.x_r_supply
         else:
             sc = float(net.ext_grid.at[gi, "s_sc_max_mva"]) if "s_sc_max_mva" in net.ext_grid else float("nan")
             rx = float(net.ext_grid.at[gi, "rx_max"]) if "rx_max" in net.ext_grid else float("nan")

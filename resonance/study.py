@@ -335,18 +335,22 @@ def run_study(case: Case, model=None) -> StudyResult:
     pattern = YPattern.build(arr)
     warnings_: list[str] = []
     # fundamental voltage of every step from a load flow with that step in service
-    vm: dict[str, np.ndarray] = {}
-    for b in banks:
-        others = [o for o in banks if o is not b]
-        base_sh = [(o.bus, float(o.q_cap_nominal_kvar()[-1] / (1 - o.p))) for o in others] if st.other_banks == "full" else []
-        v = np.ones(b.n_steps)
-        for s in range(b.n_steps):
-            q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
-            try:
-                v[s] = netmodel.load_flow_vm_pu(model, base_sh + [(b.bus, q)])[b.index]
-            except ModelError as e:
-                warnings_.append(f"bank {b.name} step {s + 1}: {e}; nominal voltage assumed")
-        vm[b.name] = v
+    vm: dict[tuple[str, str], np.ndarray] = {}
+    full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
+    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
+        if a is None:
+            continue
+        lf = netmodel.LoadFlow(model, {b.name: b.bus for b in banks}, weak=(scenario == "weak"))
+        for b in banks:
+            base_q = {o.name: full[o.name] for o in banks if o is not b} if st.other_banks == "full" else {}
+            v = np.ones(b.n_steps)
+            for s in range(b.n_steps):
+                q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
+                try:
+                    v[s] = lf.vm_pu({**base_q, b.name: q})[b.index]
+                except ModelError as e:
+                    warnings_.append(f"bank {b.name} step {s + 1} ({scenario}): {e}; nominal voltage assumed")
+            vm[(b.name, scenario)] = v
     scans = []
     for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
         if a is None:
@@ -354,7 +358,7 @@ def run_study(case: Case, model=None) -> StudyResult:
         for b in banks:
             others = [o for o in banks if o is not b]
             scans.append(_scan_bank(a, b, others, st.other_banks, pcc, h, settings, orders, st.margin_pct,
-                                    vm[b.name], scenario, pattern, st.h_step))
+                                    vm[(b.name, scenario)], scenario, pattern, st.h_step))
     # penetration, capacitor duty and distortion limits of every step
     from .assess import assess_bank, build_injection  # noqa: PLC0415
 
@@ -374,7 +378,7 @@ def run_study(case: Case, model=None) -> StudyResult:
                 extra = np.zeros((inj.h.size, a.n_bus), complex)
                 for ob in others:
                     extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]
-            assessments.append(assess_bank(case, a, b, inj, vm[b.name], pcc, float(s_pcc), settings, scenario,
+            assessments.append(assess_bank(case, a, b, inj, vm[(b.name, scenario)], pcc, float(s_pcc), settings, scenario,
                                            diag_extra=extra))
     try:
         sc_iec = netmodel.iec60909_sc_mva(model, sorted({b.bus for b in banks} | {pcc_name}))
