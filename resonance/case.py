@@ -273,6 +273,12 @@ _HINTS = {
 }
 
 
+def _one_line(text: str, limit: int = 80) -> str:
+    """``text`` with control characters escaped and cut to ``limit`` characters (keys come from the file)."""
+    t = "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in str(text))
+    return t if len(t) <= limit else t[: limit - 3] + "..."
+
+
 def _loc_to_field(loc: tuple) -> str:
     out = ""
     for part in loc:
@@ -281,7 +287,7 @@ def _loc_to_field(loc: tuple) -> str:
         elif str(part) in ("str", "constrained-str", "[key]") or str(part).startswith(("dict[", "function-")):
             continue
         else:
-            out += ("." if out else "") + str(part)
+            out += ("." if out else "") + _one_line(str(part), 40)
     return out
 
 
@@ -317,18 +323,18 @@ def _problems_from_validation(err: ValidationError, file: str) -> list[InputProb
         elif kind == "missing":
             msg = "required key is missing"
         elif kind.startswith("literal_error"):
-            msg = f"{msg}; got {e.get('input')!r}"
+            msg = f"{msg}; got {_one_line(repr(e.get('input')), 60)}"
         elif kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
-            msg = f"{msg}; got {e.get('input')!r}"
+            msg = f"{msg}; got {_one_line(repr(e.get('input')), 60)}"
         elif kind == "value_error":
             msg = msg.removeprefix("Value error, ")
         given = e.get("input")
         if ".spectrum" in fld and kind == "string_type" and isinstance(given, dict):
             continue  # a table was given: the table branch of the union reports what is wrong in it
         if kind in ("float_type", "int_type", "bool_type") or kind.endswith("_parsing"):
-            msg = f"{msg}; got {e.get('input')!r}"
+            msg = f"{msg}; got {_one_line(repr(e.get('input')), 60)}"
         elif kind == "finite_number":
-            msg = f"must be a finite number; got {e.get('input')!r}"
+            msg = f"must be a finite number; got {_one_line(repr(e.get('input')), 60)}"
         key = (fld, msg)
         if fld.endswith(".spectrum") and kind in ("string_type", "dict_type"):
             # a union error: report once, in plain words
@@ -337,41 +343,67 @@ def _problems_from_validation(err: ValidationError, file: str) -> list[InputProb
         if key in seen:
             continue
         seen.add(key)
-        probs.append(InputProblem(file, fld, msg))
+        probs.append(InputProblem(file, fld, _one_line(msg, 300)))
     return probs
 
 
+#: fault current above which a supply short-circuit power is taken to be in kVA [kA]
+#: (common practice: public supplies rarely exceed about 100 kA; 300 kA leaves room)
+_I_SC_MAX_KA = 300.0
+
+
+def _is_num(x: Any) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
+
+
+def _rows(raw: dict, key: str) -> list[tuple[int, dict]]:
+    """``(index, table)`` of an array of tables in the raw document (anything else: none)."""
+    v = raw.get(key)
+    return [(i, t) for i, t in enumerate(v) if isinstance(t, dict)] if isinstance(v, list) else []
+
+
+def _volts_hint(file: str, field: str, v: float) -> InputProblem:
+    return InputProblem(file, field, f"{v:g} kV looks like a value in volts; give kV (e.g. {v / 1000:g})")
+
+
 def _unit_hints(raw: dict, file: str) -> list[InputProblem]:
-    """Catch unit mistakes that the ranges alone would report less clearly."""
+    """Catch unit mistakes that the ranges alone would report less clearly (these are errors)."""
     probs = []
     sup = raw.get("supply") if isinstance(raw.get("supply"), dict) else {}
     kv = sup.get("kv")
-    if isinstance(kv, (int, float)) and kv > 1000:
-        probs.append(InputProblem(file, "supply.kv", f"{kv} kV looks like a value in volts; give kV (e.g. {kv / 1000:g})"))
-    for i, t in enumerate(raw.get("transformer") or []):
-        if not isinstance(t, dict):
-            continue
+    if _is_num(kv) and kv > 1000:
+        probs.append(_volts_hint(file, "supply.kv", kv))
+    sc = sup.get("sc_mva")
+    if _is_num(sc) and _is_num(kv) and 0.05 < kv <= 800 and sc > 0:
+        # far above any public supply's fault current the value was given in kVA
+        i_ka = sc / (math.sqrt(3.0) * kv)
+        if i_ka > _I_SC_MAX_KA:
+            probs.append(InputProblem(file, "supply.sc_mva", f"{sc:g} MVA is a fault current of {i_ka:,.0f} kA at "
+                                      f"{kv:g} kV; that looks like a value in kVA (give MVA, e.g. {sc / 1000:g})"))
+    for i, t in _rows(raw, "transformer"):
         hv = t.get("hv_kv")
         for k in ("hv_kv", "lv_kv"):
             v = t.get(k)
-            volts_lv = (k == "lv_kv" and isinstance(v, (int, float)) and isinstance(hv, (int, float))
-                        and v > hv and v >= 100 and v / 1000 < hv)
-            if isinstance(v, (int, float)) and (v > 1000 or volts_lv):
-                probs.append(InputProblem(file, f"transformer[{i}].{k}", f"{v} kV looks like a value in volts; give kV (e.g. {v / 1000:g})"))
+            volts_lv = (k == "lv_kv" and _is_num(v) and _is_num(hv) and v > hv and v >= 100 and v / 1000 < hv)
+            if _is_num(v) and (v > 1000 or volts_lv):
+                probs.append(_volts_hint(file, f"transformer[{i}].{k}", v))
         z = t.get("z_pct")
-        if isinstance(z, (int, float)) and 0 < z <= 0.5:
-            probs.append(InputProblem(file, f"transformer[{i}].z_pct", f"{z} looks like per unit; give percent (e.g. {z * 100:g})"))
-    for i, b in enumerate(raw.get("bank") or []):
-        if not isinstance(b, dict):
-            continue
-        v = b.get("rated_kv")
-        if isinstance(v, (int, float)) and v > 1000:
-            probs.append(InputProblem(file, f"bank[{i}].rated_kv", f"{v} kV looks like a value in volts; give kV (e.g. {v / 1000:g})"))
-    for i, l in enumerate(raw.get("load") or []):
-        if isinstance(l, dict):
-            pf = l.get("pf")
-            if isinstance(pf, (int, float)) and 10 <= pf <= 100:
-                probs.append(InputProblem(file, f"load[{i}].pf", f"{pf} looks like a percentage; give the power factor as a fraction (e.g. {pf / 100:g})"))
+        if _is_num(z) and 0 < z <= 0.5:
+            probs.append(InputProblem(file, f"transformer[{i}].z_pct", f"{z:g} looks like per unit; give percent (e.g. {z * 100:g})"))
+    for i, bk in _rows(raw, "bank"):
+        v = bk.get("rated_kv")
+        if _is_num(v) and v > 1000:
+            probs.append(_volts_hint(file, f"bank[{i}].rated_kv", v))
+        p = bk.get("detuning_pct")
+        if _is_num(p) and 0 < p < 0.5:
+            # detuned banks are built with p of about 5.67 to 14 % (REFERENCES: detuned banks, memory)
+            probs.append(InputProblem(file, f"bank[{i}].detuning_pct", f"{p:g} looks like a fraction; give percent "
+                                      f"(e.g. {p * 100:g}); detuned banks use about 5 to 14 %"))
+    for i, ld in _rows(raw, "load"):
+        pf = ld.get("pf")
+        if _is_num(pf) and 10 <= pf <= 100:
+            probs.append(InputProblem(file, f"load[{i}].pf", f"{pf:g} looks like a percentage; give the power factor "
+                                      f"as a fraction (e.g. {pf / 100:g})"))
     return probs
 
 
@@ -559,8 +591,7 @@ def check_case(case: Case) -> list[InputProblem]:
             for i, item in enumerate(getattr(case, table)):
                 b = getattr(item, key)
                 if b not in defined:
-                    probs.append(InputProblem(file, f"{table}[{i}].{key}",
-                                              f"bus {b!r} does not exist (buses: {', '.join(sorted(defined))})"))
+                    probs.append(InputProblem(file, f"{table}[{i}].{key}", _no_bus(b, defined)))
                 elif b not in known:
                     probs.append(InputProblem(file, f"{table}[{i}].{key}", f"bus {b!r} is not connected to the supply"))
         for table, a, b in (("transformer", "hv_bus", "lv_bus"), ("cable", "from_bus", "to_bus")):
@@ -577,7 +608,11 @@ def check_case(case: Case) -> list[InputProblem]:
                                               f"{bk.rated_kv} kV does not suit bus {bk.bus!r} at {kv[bk.bus]:g} kV "
                                               "(expected 0.85 to 1.6 times the bus voltage)"))
         if st.pcc_bus and st.pcc_bus not in defined:
-            probs.append(InputProblem(file, "study.pcc_bus", f"bus {st.pcc_bus!r} does not exist"))
+            probs.append(InputProblem(file, "study.pcc_bus", _no_bus(st.pcc_bus, defined)))
+        elif st.pcc_bus and st.pcc_bus not in known:
+            probs.append(InputProblem(file, "study.pcc_bus", f"bus {st.pcc_bus!r} is not connected to the supply"))
+        if not probs:
+            probs += _bank_beyond_supply(case, kv)
     for i, hs in enumerate(case.harmonic_source):
         for h in list(hs.spectrum.items()) if isinstance(hs.spectrum, dict) else []:
             if h[0] > st.h_max:
@@ -592,4 +627,197 @@ def check_case(case: Case) -> list[InputProblem]:
             if h > st.h_max:
                 probs.append(InputProblem(file, "supply.background_pct",
                                           f"order {h} is above the scan range h_max = {st.h_max:g}"))
+        for h in case.supply.background_phase_deg:
+            if h not in case.supply.background_pct:
+                probs.append(InputProblem(file, "supply.background_phase_deg",
+                                          f"order {h} has an angle but no magnitude in background_pct"))
     return probs
+
+
+def _no_bus(name: str, defined: set[str]) -> str:
+    """'bus ... does not exist' with the closest names as a hint."""
+    close = difflib.get_close_matches(name, sorted(defined), n=1, cutoff=0.6)
+    if not close:
+        close = [d for d in sorted(defined) if d.casefold() == name.casefold()]
+    hint = f"; did you mean {close[0]!r}?" if close else ""
+    shown = sorted(defined)
+    listed = ", ".join(repr(b) for b in shown[:12]) + (", ..." if len(shown) > 12 else "")
+    return f"bus {name!r} does not exist{hint} (buses: {listed})"
+
+
+def sc_kva_estimate(case: Case, kv: dict[str, float] | None = None) -> dict[str, float]:
+    """Short-circuit power at every bus of a table-built case, loads excluded.
+
+    Parameters
+    ----------
+    case : Case
+        Schema-valid case with a supply and no network file.
+    kv : dict, optional
+        Bus name -> nominal voltage [kV] (from :func:`bus_voltages_kv` when None).
+
+    Returns
+    -------
+    dict
+        Bus name -> ``S_sc = U_n^2 / |Z_kk(1)|`` [kVA] for every bus reachable
+        from the supply; empty when the nodal matrix cannot be solved.
+
+    Notes
+    -----
+    Per unit on a 1 MVA base and each bus's nominal voltage: supply
+    ``|Z| = 1/S_sc`` split by X/R; transformer ``Z = (z%/100) / S_T`` split by
+    X/R; cable ``Z = (r + jx) L / (n U^2)``; shunt capacitance and loads left
+    out; nominal ratios.  ``Z_kk`` is the diagonal of the inverse nodal
+    admittance matrix.  It is the validation-time estimate used for hints; the
+    study's own figure comes from the full harmonic model.
+
+    References
+    ----------
+    IEC 60909-0:2016, clause 4.2 (short-circuit impedance at the fault
+    location, here with c = 1 and no correction factors).
+    """
+    if case.supply is None or case.network is not None:
+        return {}
+    if kv is None:
+        kv, _ = bus_voltages_kv(case)
+    names = sorted(kv)
+    idx = {b: k for k, b in enumerate(names)}
+    y = np.zeros((len(names), len(names)), complex)
+
+    def z_split(z_abs: float, x_r: float) -> complex:
+        return z_abs * complex(1.0, x_r) / math.hypot(1.0, x_r)
+
+    def branch(a: str, b: str, z: complex) -> None:
+        if a in idx and b in idx and z != 0:
+            i, j = idx[a], idx[b]
+            y[i, i] += 1 / z
+            y[j, j] += 1 / z
+            y[i, j] -= 1 / z
+            y[j, i] -= 1 / z
+
+    s = case.supply
+    k0 = idx[s.bus]
+    y[k0, k0] += 1 / z_split(1.0 / s.sc_mva, s.x_r)
+    for t in case.transformer:
+        branch(t.hv_bus, t.lv_bus, z_split(t.z_pct / 100.0 / (t.kva / 1000.0), t.x_r))
+    for c in case.cable:
+        if c.from_bus in kv:
+            z_ohm = complex(c.r_ohm_per_km, c.x_ohm_per_km) * c.length_m / 1000.0 / c.parallel
+            branch(c.from_bus, c.to_bus, z_ohm / kv[c.from_bus] ** 2)
+    try:
+        with np.errstate(all="raise"):
+            zkk = np.diagonal(np.linalg.inv(y))
+    except (np.linalg.LinAlgError, FloatingPointError):
+        return {}
+    return {b: float(1000.0 / abs(zkk[idx[b]])) for b in names if abs(zkk[idx[b]]) > 0}
+
+
+def _bank_kvar_at_bus(bk: Bank, bus_kv: float) -> float:
+    """Whole bank at the bus nominal voltage, ``Q_R (U_n/U_R)^2`` [kvar]."""
+    return float(sum(bk.steps_kvar)) * (bus_kv / bk.rated_kv) ** 2
+
+
+def _bank_beyond_supply(case: Case, kv: dict[str, float]) -> list[InputProblem]:
+    """A bank at least as large as the short-circuit power at its bus resonates at or below the fundamental."""
+    sc = sc_kva_estimate(case, kv)
+    probs = []
+    for i, bk in enumerate(case.bank):
+        if bk.bus not in sc or bk.bus not in kv:
+            continue
+        q = _bank_kvar_at_bus(bk, kv[bk.bus])
+        if q >= sc[bk.bus]:
+            # h_r = sqrt(S_sc / Q) (REFERENCES.md, resonance) is <= 1 here
+            probs.append(InputProblem(
+                case.source_file, f"bank[{i}].steps_kvar",
+                f"the whole bank ({q:,.0f} kvar at {kv[bk.bus]:g} kV) is not below the short-circuit power at bus "
+                f"{bk.bus!r} (about {sc[bk.bus]:,.0f} kVA): it would resonate with the supply at "
+                f"h = {math.sqrt(sc[bk.bus] / q):.2f}, at or below the fundamental; check kvar against Mvar "
+                "and supply.sc_mva"))
+    return probs
+
+
+#: nominal voltages typical of 60 Hz and of 50 Hz systems [kV] (common practice:
+#: North American ANSI C84.1 levels against IEC 60038 levels)
+_TYPICAL_KV = {60: (0.208, 0.24, 0.48, 0.6, 2.4, 4.16, 12.47, 13.2, 13.8, 34.5),
+               50: (0.4, 0.415, 0.69, 3.3, 6.6, 10.0, 11.0, 20.0, 33.0)}
+#: a stage below this is taken to be a value in Mvar [kvar] (common practice:
+#: low-voltage PFC stages start at a few kvar)
+_STAGE_MIN_KVAR = 1.0
+#: voltage-rise share above which a bank gets a hint [unitless]
+#: (dV/V ~= Q/S_sc, REFERENCES.md "from memory"; 10 % is common practice for a worry)
+_RISE_HINT = 0.10
+
+
+def case_hints(case: Case) -> tuple[InputProblem, ...]:
+    """Non-fatal warnings about a valid case that probably holds a mistake.
+
+    Parameters
+    ----------
+    case : Case
+        A case that passed :func:`check_case`.
+
+    Returns
+    -------
+    tuple of InputProblem
+        One line each (file, field, hint).  The study still runs; the caller
+        prints these (``warning: <problem>``) and may copy them into the
+        results.
+
+    Notes
+    -----
+    Hints: a stage below 1 kvar (Mvar given as kvar); a bank larger than the
+    transformers feeding its bus; a bank whose switching would raise the
+    voltage by more than 10 % (``dV/V ~= Q/S_sc``); nominal voltages typical of
+    the other supply frequency; a transformer or harmonic source under
+    10 kVA (MVA given as kVA).
+    """
+    file = case.source_file
+    out: list[InputProblem] = []
+    for i, bk in enumerate(case.bank):
+        small = [k + 1 for k, q in enumerate(bk.steps_kvar) if q < _STAGE_MIN_KVAR]
+        if small:
+            q0 = bk.steps_kvar[small[0] - 1]
+            out.append(InputProblem(file, f"bank[{i}].steps_kvar",
+                                    f"stage {small[0]} is {q0:g} kvar; that looks like a value in Mvar "
+                                    f"(give kvar, e.g. {q0 * 1000:g})"))
+    for i, t in enumerate(case.transformer):
+        if t.kva < 10.0:
+            out.append(InputProblem(file, f"transformer[{i}].kva", f"{t.kva:g} kVA looks like a value in MVA "
+                                    f"(give kVA, e.g. {t.kva * 1000:g})"))
+    for i, hs in enumerate(case.harmonic_source):
+        if hs.kva < 1.0:
+            out.append(InputProblem(file, f"harmonic_source[{i}].kva", f"{hs.kva:g} kVA looks like a value in MVA "
+                                    f"(give kVA, e.g. {hs.kva * 1000:g})"))
+    if case.network is None and case.supply is not None:
+        kv, vprobs = bus_voltages_kv(case)
+        for i, bk in enumerate(case.bank):
+            feeding = [t for t in case.transformer if t.lv_bus == bk.bus]
+            if bk.bus in kv and feeding:
+                s_t = sum(t.kva for t in feeding)
+                q = _bank_kvar_at_bus(bk, kv[bk.bus])
+                if q > s_t:
+                    out.append(InputProblem(file, f"bank[{i}].steps_kvar",
+                                            f"the whole bank ({q:,.0f} kvar) is {100 * q / s_t:.0f} % of the "
+                                            f"{s_t:,.0f} kVA of transformers feeding bus {bk.bus!r}; check the units "
+                                            "(a correction bank is normally well below the transformer rating)"))
+        sc = sc_kva_estimate(case, kv) if not vprobs else {}
+        for i, bk in enumerate(case.bank):
+            if bk.bus in sc:
+                q = _bank_kvar_at_bus(bk, kv[bk.bus])
+                if _RISE_HINT < q / sc[bk.bus] < 1.0:
+                    out.append(InputProblem(file, f"bank[{i}].steps_kvar",
+                                            f"the whole bank is {100 * q / sc[bk.bus]:.0f} % of the short-circuit "
+                                            f"power at bus {bk.bus!r} (about {sc[bk.bus]:,.0f} kVA): switching it "
+                                            f"raises the voltage by roughly that much and puts the resonance at "
+                                            f"h = {math.sqrt(sc[bk.bus] / q):.2f}"))
+        other = 50 if case.frequency_hz == 60 else 60
+        volts = sorted(set(kv.values()))
+
+        def typical(v: float, f: int) -> bool:
+            return any(abs(v - t) <= 0.01 * t for t in _TYPICAL_KV[f])
+
+        if volts and any(typical(v, other) for v in volts) and not any(typical(v, case.frequency_hz) for v in volts):
+            shown = ", ".join(f"{v:g}" for v in volts if typical(v, other))
+            out.append(InputProblem(file, "frequency_hz",
+                                    f"{case.frequency_hz} Hz, but the bus voltages ({shown} kV) are typical of "
+                                    f"{other} Hz systems; check frequency_hz"))
+    return tuple(out)

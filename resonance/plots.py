@@ -43,7 +43,9 @@ def mark_orders(ax, res: StudyResult, h_max: float, margin_pct: float) -> None:
         if h > h_max:
             continue
         lo, hi = h * (1 - margin_pct / 100), h * (1 + margin_pct / 100)
-        ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.55 if h in inj else 0.3, lw=0, zorder=0)
+        # bands of characteristic-only orders above the 25th would merge into one wash: lines only
+        if h in inj or h <= 25:
+            ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.55 if h in inj else 0.3, lw=0, zorder=0)
         ax.axvline(h, color=STYLE["injected"] if h in inj else STYLE["characteristic"],
                    lw=0.9 if h in inj else 0.6, ls="-" if h in inj else (0, (3, 3)), zorder=1)
 

@@ -3,7 +3,7 @@
 This module is one of the *independent* references that the tests of ``resonance`` compare
 against. It imports nothing from ``resonance`` and uses no phasor algebra to build its answer:
 it writes the state equations of the circuit below, integrates them over one fundamental
-period with :func:`scipy.integrate.solve_ivp`, and extracts per-order phasors with an FFT of
+period with :func:`scipy.integrate.solve_ivp` (LSODA by default), and extracts per-order phasors with an FFT of
 the sampled waveforms.
 
 Circuit (single-phase equivalent, line-to-neutral, SI units)
@@ -62,8 +62,8 @@ C.-T. Chen, *Linear System Theory and Design*, 3rd ed., Oxford, 1999, section 4.
 of ``x' = A x + B u`` and its discretisation); T. J. Aprille and T. N. Trick, "Steady-state
 analysis of nonlinear circuits with periodic inputs", Proc. IEEE 60(1), 1972 (shooting for the
 periodic initial condition with the monodromy matrix) [from memory]; scipy.integrate.solve_ivp
-(Radau IIA of order 5: E. Hairer and G. Wanner, *Solving Ordinary Differential Equations II*,
-section IV.8).
+with LSODA (L. R. Petzold, "Automatic selection of methods for solving stiff and nonstiff
+systems of ordinary differential equations", SIAM J. Sci. Stat. Comput. 4(1), 1983).
 """
 
 from __future__ import annotations
@@ -325,6 +325,8 @@ class PeriodicSteadyState:
         ``max|x(T) - x(0)| / max|x|`` over the states of the last integrated period [unitless].
     method : str
         "solve_ivp" or "expm" [unitless].
+    integrator : str
+        The ``solve_ivp`` method used ("" for "expm") [unitless].
     """
 
     f1_hz: float
@@ -332,6 +334,7 @@ class PeriodicSteadyState:
     y: np.ndarray
     periodicity_residual: float
     method: str
+    integrator: str
 
     def waveform(self, name: str) -> np.ndarray:
         """Samples of output ``name`` (one of :data:`OUTPUTS`) [V] or [A]."""
@@ -360,6 +363,7 @@ def steady_state(
     n_samples: int = 4096,
     method: str = "solve_ivp",
     rtol: float = 1e-10,
+    integrator: str = "LSODA",
 ) -> PeriodicSteadyState:
     """Periodic steady state of the circuit, sampled over one fundamental period.
 
@@ -371,11 +375,16 @@ def steady_state(
     n_samples : int, optional
         Samples per period; every forced order must be below ``n_samples / 2`` [unitless].
     method : {"solve_ivp", "expm"}, optional
-        Radau integration with the monodromy shooting step, or exact exponential stepping of
-        the state augmented by oscillator states [unitless].
+        ``solve_ivp`` integration with the monodromy shooting step, or exact exponential
+        stepping of the state augmented by oscillator states [unitless].
     rtol : float, optional
         Relative tolerance of ``solve_ivp`` [unitless]; the absolute tolerance per state is
         ``rtol`` times 1e-3 of that state's peak found in a first, coarse pass.
+    integrator : str, optional
+        ``solve_ivp`` method [unitless]. "LSODA" (default) switches between Adams and BDF by
+        itself, so it stays fast when a large load resistor with a detuning reactor makes the
+        system stiff; "Radau" and "BDF" also work (slower); "DOP853"/"RK45" only for
+        non-stiff circuits.
 
     Returns
     -------
@@ -442,25 +451,27 @@ def steady_state(
         x = xa[:n, :n_samples]
         x_end = xa[:n, n_samples]
     elif method == "solve_ivp":
-        a, b = ss.a, ss.b
+        a = ss.a
+        b_cos, b_sin = ss.b @ ca.T, ss.b @ cb.T  # (n, len(orders))
 
         def fun(t: float, x: np.ndarray) -> np.ndarray:
-            return a @ x + b @ u_of(np.array([t]))[:, 0]
+            return a @ x + b_cos @ np.cos(w * t) + b_sin @ np.sin(w * t)
 
         def jac(t: float, x: np.ndarray) -> np.ndarray:
             return a
 
+        options: dict[str, Any] = {"method": integrator}
+        if integrator in ("Radau", "BDF", "LSODA"):
+            options["jac"] = jac
         phi = expm(a * period)
 
         def shoot(atol: np.ndarray | float, tol: float) -> tuple[np.ndarray, Any]:
-            forced = solve_ivp(fun, (0.0, period), np.zeros(n), method="Radau", jac=jac,
-                               rtol=tol, atol=atol)
+            forced = solve_ivp(fun, (0.0, period), np.zeros(n), rtol=tol, atol=atol, **options)
             if not forced.success:
                 raise RuntimeError(f"solve_ivp failed on the forced response: {forced.message}")
             x0_ = np.linalg.solve(np.eye(n) - phi, forced.y[:, -1])
-            sol = solve_ivp(fun, (0.0, period), x0_, method="Radau", jac=jac, rtol=tol,
-                            atol=atol, t_eval=np.append(t_s, period),
-                            max_step=period / 256.0)
+            sol = solve_ivp(fun, (0.0, period), x0_, rtol=tol, atol=atol,
+                            t_eval=np.append(t_s, period), **options)
             if not sol.success:
                 raise RuntimeError(f"solve_ivp failed on the periodic solution: {sol.message}")
             return x0_, sol
@@ -479,7 +490,8 @@ def steady_state(
     x_peak = float(np.max(np.abs(x)))
     residual = float(np.max(np.abs(x_end - x0)) / x_peak) if x_peak > 0.0 else 0.0
     return PeriodicSteadyState(f1_hz=float(p.f1_hz), t_s=t_s, y=y,
-                               periodicity_residual=residual, method=method)
+                               periodicity_residual=residual, method=method,
+                               integrator=integrator if method == "solve_ivp" else "")
 
 
 def simulate(
@@ -489,6 +501,7 @@ def simulate(
     n_samples: int = 4096,
     method: str = "solve_ivp",
     rtol: float = 1e-10,
+    integrator: str = "LSODA",
 ) -> dict[str, np.ndarray]:
     """Per-order rms phasors of the periodic steady state (time-domain simulation + FFT).
 
@@ -498,7 +511,7 @@ def simulate(
         Circuit data (see :class:`TimeDomainCircuit`; SI units).
     orders : iterable of int
         Harmonic orders to report, ``1 <= h < n_samples/2`` [unitless].
-    n_samples, method, rtol
+    n_samples, method, rtol, integrator
         As in :func:`steady_state`.
 
     Returns
@@ -512,5 +525,6 @@ def simulate(
     ----------
     C.-T. Chen, *Linear System Theory and Design*, 3rd ed., 1999, section 4.2.
     """
-    pss = steady_state(params, n_samples=n_samples, method=method, rtol=rtol)
+    pss = steady_state(params, n_samples=n_samples, method=method, rtol=rtol,
+                       integrator=integrator)
     return pss.phasors(orders)
