@@ -137,10 +137,6 @@ class Cable(_Strict):
     def _ends(self) -> "Cable":
         if self.from_bus == self.to_bus:
             raise ValueError("from_bus and to_bus are the same bus")
-        if self.length_m * math.hypot(self.r_ohm_per_km, self.x_ohm_per_km) == 0.0:
-            raise ValueError("zero series impedance (length_m, r_ohm_per_km and x_ohm_per_km give 0 ohm); "
-                             "a cable without impedance is a busbar: put the equipment on one bus, "
-                             "or give the cable's real length and impedance")
         return self
 
 
@@ -572,6 +568,12 @@ def check_case(case: Case) -> list[InputProblem]:
     """
     file = case.source_file
     probs = _names_unique(case, file)
+    for i, c in enumerate(case.cable):
+        if c.length_m * math.hypot(c.r_ohm_per_km, c.x_ohm_per_km) == 0.0:
+            fld = "length_m" if c.length_m == 0 else "r_ohm_per_km"
+            probs.append(InputProblem(file, f"cable[{i}].{fld}",
+                                      "the cable has zero series impedance; a cable without impedance is a busbar: "
+                                      "put the equipment on one bus, or give the real length and impedance"))
     st = case.study
     if st.max_demand_kw is not None and st.max_demand_a is not None:
         probs.append(InputProblem(file, "study.max_demand_a", "give either max_demand_kw or max_demand_a, not both"))
@@ -730,8 +732,8 @@ def _bank_beyond_supply(case: Case, kv: dict[str, float]) -> list[InputProblem]:
                 case.source_file, f"bank[{i}].steps_kvar",
                 f"the whole bank ({q:,.0f} kvar at {kv[bk.bus]:g} kV) is not below the short-circuit power at bus "
                 f"{bk.bus!r} (about {sc[bk.bus]:,.0f} kVA): it would resonate with the supply at "
-                f"h = {math.sqrt(sc[bk.bus] / q):.2f}, at or below the fundamental; check kvar against Mvar "
-                "and supply.sc_mva"))
+                f"h = {math.sqrt(sc[bk.bus] / q):.2f}, at or below the fundamental; check the units of steps_kvar (kvar, not "
+                "Mvar), supply.sc_mva (MVA) and transformer kva (kVA)"))
     return probs
 
 

@@ -222,7 +222,7 @@ class _Lin:
 
 
 def _state_space(p: TimeDomainCircuit) -> _StateSpace:
-    """Assemble the state equations for the four topologies (see Notes of steady_state)."""
+    """Assemble the state equations of the three bank topologies (see Notes of steady_state)."""
     r_ser = p.r_s_ohm + p.r_t_ohm
     l_ser = p.l_s_h + p.l_t_h
     g = 0.0 if p.r_load_ohm is None else 1.0 / p.r_load_ohm
@@ -231,12 +231,11 @@ def _state_space(p: TimeDomainCircuit) -> _StateSpace:
 
     if not detuned:
         states = ["v_c", "i_s"] + (["i_l"] if has_ll else [])
-    elif g > 0.0:
-        states = ["i_s", "i_d", "v_c"] + (["i_l"] if has_ll else [])
     else:
-        # inductor cut-set at the bus (supply, reactor, load inductor, current source):
-        # i_s = i_d + i_l - i_inj is not a state
-        states = ["i_d", "v_c"] + (["i_l"] if has_ll else [])
+        # the supply current is not a state: KCL gives i_s = G v + i_d + i_l - i_inj. With a
+        # load resistor the bus voltage is a state (the fast mode G v' = -S v + ... is what a
+        # large R_load adds); without one, v is algebraic (inductor cut-set at the bus).
+        states = ["i_d", "v_c"] + (["i_l"] if has_ll else []) + (["v"] if g > 0.0 else [])
     L = _Lin(states)
     i_l = L.x("i_l") if has_ll else L.zero()
     e, i_inj, di_inj = L.u(_U_E), L.u(_U_I), L.u(_U_DI)
@@ -256,15 +255,18 @@ def _state_space(p: TimeDomainCircuit) -> _StateSpace:
         deriv["v_c"] = i_bank / p.c_f
     else:
         i_d = L.x("i_d")
+        # differentiate KCL  i_s + i_inj = i_d + i_l + G v  and insert the inductor equations:
+        # G v' + S v = (e - R_ser i_s)/L_ser + (R_d i_d + v_c)/L_d + di_inj,
+        # S = 1/L_ser + 1/L_d + 1/L_load
+        s = 1.0 / l_ser + 1.0 / p.l_d_h + (1.0 / p.l_load_h if has_ll else 0.0)  # type: ignore[operator]
+        v_state = L.x("v") if g > 0.0 else L.zero()
+        i_s = g * v_state + i_d + i_l - i_inj
+        rhs = (e - r_ser * i_s) / l_ser + (p.r_d_ohm * i_d + L.x("v_c")) / p.l_d_h + di_inj
         if g > 0.0:
-            i_s = L.x("i_s")
-            v = (i_s + i_inj - i_d - i_l) / g
+            v = v_state
+            deriv["v"] = (rhs - s * v) / g
         else:
-            # differentiate KCL i_s + i_inj = i_d + i_l and insert the inductor equations:
-            # v (1/L_ser + 1/L_d + 1/L_l) = (e - R_ser i_s)/L_ser + (R_d i_d + v_c)/L_d + di_inj
-            i_s = i_d + i_l - i_inj
-            s = 1.0 / l_ser + 1.0 / p.l_d_h + (1.0 / p.l_load_h if has_ll else 0.0)  # type: ignore[operator]
-            v = ((e - r_ser * i_s) / l_ser + (p.r_d_ohm * i_d + L.x("v_c")) / p.l_d_h + di_inj) / s
+            v = rhs / s
         i_bank = i_d
         deriv["i_d"] = (v - p.r_d_ohm * i_d - L.x("v_c")) / p.l_d_h
         deriv["v_c"] = i_d / p.c_f
@@ -393,18 +395,21 @@ def steady_state(
 
     Notes
     -----
-    States: capacitor voltage ``v_c`` [V], supply current ``i_s`` [A], reactor current
-    ``i_d`` [A], load-inductor current ``i_l`` [A]. With ``L = L_s + L_t``, ``R = R_s + R_t``,
+    States: capacitor voltage ``v_c`` [V], supply current ``i_s`` [A] (bank without
+    reactor), reactor current ``i_d`` [A], load-inductor current ``i_l`` [A], bus voltage ``v``
+    [V] (detuned bank with a load resistor). With ``L = L_s + L_t``, ``R = R_s + R_t``,
     ``G = 1/R_load``, bus voltage ``v``:
 
     * ``L i_s' = e - R i_s - v``;  ``L_load i_l' = v``;  ``C v_c' = i_bank``.
     * Plain bank: ``v = v_c``, ``i_bank = i_s + i_inj - G v - i_l``.
     * Bank with ``R_d`` only: ``v = (i_s + i_inj - i_l + v_c/R_d) / (G + 1/R_d)``,
       ``i_bank = (v - v_c)/R_d``.
-    * Detuned bank: ``L_d i_d' = v - R_d i_d - v_c``, ``i_bank = i_d``; with a load resistor
-      ``v = (i_s + i_inj - i_d - i_l)/G``; without one, the inductors and the current source
-      form a cut-set, ``i_s = i_d + i_l - i_inj`` is eliminated and
-      ``v (1/L + 1/L_d + 1/L_load) = (e - R i_s)/L + (R_d i_d + v_c)/L_d + d(i_inj)/dt``.
+    * Detuned bank: ``L_d i_d' = v - R_d i_d - v_c``, ``i_bank = i_d``. The supply current
+      follows from KCL, ``i_s = G v + i_d + i_l - i_inj``; differentiating KCL gives
+      ``G v' + S v = (e - R i_s)/L + (R_d i_d + v_c)/L_d + d(i_inj)/dt`` with
+      ``S = 1/L + 1/L_d + 1/L_load``. With a load resistor ``v`` is a state (so a large
+      ``R_load`` costs no cancellation ``v = (i_s + i_inj - i_d - i_l)/G``); without one, the
+      inductors and the current source form a cut-set and ``v`` is algebraic (``G = 0``).
 
     Periodic steady state: ``(I - expm(A T)) x0 = x_f`` (see the module docstring).
 
