@@ -491,7 +491,28 @@ def _names_unique(case: Case, file: str) -> list[InputProblem]:
                                           f"duplicate name {item.name!r} (also {table}[{seen[item.name]}])"))
             else:
                 seen[item.name] = i
+    # bank names become output file names (scan_<name>.csv, scan_<name>_weak.csv, ...): names that
+    # map to the same file name, also on a case-insensitive file system, would overwrite each other
+    files: dict[str, int] = {}
+    for i, bk in enumerate(case.bank):
+        key = _file_stem(bk.name).casefold()
+        j = files.get(key)
+        if j is not None and case.bank[j].name != bk.name:
+            probs.append(InputProblem(file, f"bank[{i}].name", f"{bk.name!r} gives the same output file names as "
+                                      f"bank[{j}] {case.bank[j].name!r}; choose names that differ in letters or digits"))
+        files.setdefault(key, i)
+    for i, bk in enumerate(case.bank):
+        key = _file_stem(bk.name).casefold()
+        if key.endswith("_weak") and key[: -len("_weak")] in files:
+            j = files[key[: -len("_weak")]]
+            probs.append(InputProblem(file, f"bank[{i}].name", f"{bk.name!r} collides with the weak-supply outputs "
+                                      f"of bank[{j}] {case.bank[j].name!r}; choose another name"))
     return probs
+
+
+def _file_stem(name: str) -> str:
+    """Bank name as used in output file names (as the CLI and the report write them)."""
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
 
 
 def bus_voltages_kv(case: Case) -> tuple[dict[str, float], list[InputProblem]]:
@@ -550,7 +571,11 @@ def bus_voltages_kv(case: Case) -> tuple[dict[str, float], list[InputProblem]]:
                     continue
                 kv[other] = kv[b]
             queue.append(other)
-    return kv, probs
+    # a mismatch is seen from both ends of the branch: report it once per field
+    first: dict[str, InputProblem] = {}
+    for pr in probs:
+        first.setdefault(pr.field, pr)
+    return kv, list(first.values())
 
 
 def check_case(case: Case) -> list[InputProblem]:
@@ -605,7 +630,9 @@ def check_case(case: Case) -> list[InputProblem]:
         for i, bk in enumerate(case.bank):
             if bk.bus in kv:
                 ratio = bk.rated_kv / kv[bk.bus]
-                if not (0.85 <= ratio <= 1.6):
+                if 0.85 <= ratio / 1000.0 <= 1.6:
+                    probs.append(_volts_hint(file, f"bank[{i}].rated_kv", bk.rated_kv))
+                elif not (0.85 <= ratio <= 1.6):
                     probs.append(InputProblem(file, f"bank[{i}].rated_kv",
                                               f"{bk.rated_kv} kV does not suit bus {bk.bus!r} at {kv[bk.bus]:g} kV "
                                               "(expected 0.85 to 1.6 times the bus voltage)"))

@@ -115,29 +115,41 @@ def _num(x):
     return v if math.isfinite(v) else None
 
 
-def _spectrum(step: dict, where: str) -> dict[int, float]:
-    """Per-order voltage of one step at ``where`` ("bus" or "pcc") [% of nominal]; {} when absent."""
-    keys = ("v_bus_pct", "v_pct", "v_h_pct", "v_bank_pct") if where == "bus" else ("v_pcc_pct", "pcc_v_pct")
-    for lk in ("harmonics", "per_order", "orders"):
+#: per-order quantity -> keys accepted in a ``harmonics`` entry (first present wins)
+_ORDER_KEYS = {
+    "bus": ("v_bank_pct", "v_bus_pct", "v_pct", "v_h_pct"),   # voltage at the bank bus [% of nominal]
+    "pcc": ("v_pcc_pct", "pcc_v_pct"),                        # voltage at the PCC [% of nominal]
+    "cap": ("v_cap_pct",),                                    # voltage across the capacitor [% of rated]
+    "i_pcc": ("i_supply_pct_of_il", "i_pcc_pct_of_il"),       # current into the supply [% of I_L]
+    "i_lim": ("i_limit_pct_of_il",),                          # IEEE 519 current limit [% of I_L]
+}
+_DICT_KEYS = {"bus": ("v_h_pct", "v_bus_h_pct"), "pcc": ("v_pcc_h_pct", "pcc_v_h_pct")}
+
+
+def _order_rows(step: dict) -> list[dict]:
+    for lk in ("harmonics", "per_order"):
         rows = step.get(lk) if isinstance(step, dict) else None
         if isinstance(rows, list) and rows and isinstance(rows[0], dict):
-            out = {}
-            for r in rows:
-                h, v = _num(r.get("h")), _num(_get(r, *keys))
-                if h is not None and v is not None and h > 1.5:
-                    out[int(round(h))] = v
-            if out:
-                return out
-    dk = ("v_h_pct", "v_bus_h_pct") if where == "bus" else ("v_pcc_h_pct", "pcc_v_h_pct")
-    m = _get(step, *dk)
+            return rows
+    return []
+
+
+def _spectrum(step: dict, where: str) -> dict[int, float]:
+    """Per-order value of one step (see :data:`_ORDER_KEYS` for ``where``); {} when absent."""
+    out = {}
+    for r in _order_rows(step):
+        h, v = _num(r.get("h")), _num(_get(r, *_ORDER_KEYS[where]))
+        if h is not None and v is not None and h > 1.5:
+            out[int(round(h))] = v
+    if out:
+        return out
+    m = _get(step, *_DICT_KEYS.get(where, ()))
     if isinstance(m, dict):
-        out = {}
         for h, v in m.items():
             hh, vv = _num(h), _num(v)
             if hh is not None and vv is not None and hh > 1.5:
                 out[int(round(hh))] = vv
-        return out
-    return {}
+    return out
 
 
 def _detuning(bank: dict) -> tuple[dict | None, list[dict]]:
@@ -187,13 +199,6 @@ def _duty_limit_set(data: dict):
         return None
 
 
-def _duty_limits_pct(data: dict) -> dict:
-    lim = _duty_limit_set(data)
-    if lim is None:
-        return {}
-    return {"v_rms": 100 * lim.v_rms, "v_peak": 100 * lim.v_peak, "i_rms": 100 * lim.i_rms, "kvar": 100 * lim.q}
-
-
 def _v519(v_kv: float | None, data: dict):
     if v_kv is None:
         return None
@@ -202,6 +207,41 @@ def _v519(v_kv: float | None, data: dict):
         return ieee519_voltage_limits(v_kv, str(data["settings"].get("ieee519_edition", "2014")))
     except Exception:  # noqa: BLE001 - unknown edition: no limit shown
         return None
+
+
+@dataclass(frozen=True)
+class _Limits:
+    """Limits a bank's steps are compared with, as the results give them (or looked up)."""
+
+    duty: dict            # quantity -> [% of rating]
+    duty_name: str
+    pcc_ind: float | None  # [% of nominal]
+    pcc_thd: float | None  # [% of nominal]
+    pcc_src: str
+    tdd: float | None      # [% of I_L]
+    i_src: str
+
+
+def _limits(res: StudyResult, data: dict, bank: dict) -> _Limits:
+    lim = bank.get("limits") if isinstance(bank.get("limits"), dict) else {}
+    dl = lim.get("duty_limits") if isinstance(lim.get("duty_limits"), dict) else None
+    if dl:
+        duty = {q: _num(dl.get(f"{q}_pct")) for q in DUTY_KEYS}
+        duty = {q: v for q, v in duty.items() if v is not None}
+        name = str(dl.get("name") or data["settings"].get("duty_limits"))
+    else:
+        d = _duty_limit_set(data)
+        duty = ({"v_rms": 100 * d.v_rms, "v_peak": 100 * d.v_peak, "i_rms": 100 * d.i_rms, "kvar": 100 * d.q}
+                if d else {})
+        name = d.name if d else str(data["settings"].get("duty_limits"))
+    pv = lim.get("pcc_v_limits") if isinstance(lim.get("pcc_v_limits"), dict) else None
+    if pv:
+        ind, thd, src = _num(pv.get("individual_pct")), _num(pv.get("thd_pct")), str(pv.get("source") or "")
+    else:
+        v = _v519(_pcc_kv(res, data), data)
+        ind, thd, src = (v.individual_pct, v.thd_pct, v.source) if v else (None, None, "")
+    pi = lim.get("pcc_i_limits") if isinstance(lim.get("pcc_i_limits"), dict) else {}
+    return _Limits(duty, name, ind, thd, src, _num(pi.get("tdd_pct")), str(pi.get("source") or ""))
 
 
 def _has_penetration(bank: dict) -> bool:
@@ -286,46 +326,72 @@ class Table:
         return out
 
 
-def _step_rows(bank: dict, steps: list[dict], lim: dict, pcc_thd_lim: float | None):
+def _fails(s: dict, lim: _Limits) -> list[str]:
+    """Short codes of the checks a step fails: res, duty, V (PCC voltage), I (PCC current)."""
+    out = []
+    if s.get("resonance_ok") is False:
+        out.append("res")
+    duty_over = any(_num(s.get(k)) is not None and q in lim.duty and _num(s.get(k)) > lim.duty[q]
+                    for q, k in DUTY_KEYS.items())
+    if s.get("duty_ok") is False or duty_over:
+        out.append("duty")
+    thd = _thd_pcc(s)
+    if s.get("pcc_voltage_ok") is False or (thd is not None and lim.pcc_thd is not None and thd > lim.pcc_thd):
+        out.append("V")
+    tdd = _num(s.get("tdd_pct"))
+    if s.get("pcc_current_ok") is False or (tdd is not None and lim.tdd is not None and tdd > lim.tdd):
+        out.append("I")
+    return out
+
+
+def _lim_head(label: str, v) -> str:
+    return label + (f"\nlim {v:g}" if v is not None else "")
+
+
+def _step_rows(steps: list[dict], lim: _Limits):
     cols = [Column("step", "-", _s), Column("kvar\nnameplate", "kvar", _f(0)), Column("kvar\ndelivered", "kvar", _f(1)),
             Column("h_est", "-", _f(2)), Column("h_scan", "-", _f(2)), Column("nearest\norder", "-", _s),
             Column("margin", "%", _f(1)), Column("THD\nbank bus", "%", _f(2)),
-            Column("THD PCC" + (f"\nlim {pcc_thd_lim:g}" if pcc_thd_lim else ""), "%", _f(2))]
+            Column(_lim_head("THD\nPCC", lim.pcc_thd), "%", _f(2)), Column(_lim_head("TDD\nPCC", lim.tdd), "%", _f(1))]
     for q in DUTY_KEYS:
-        cols.append(Column(f"{DUTY_LABEL[q]}" + (f"\nlim {lim[q]:g}" if q in lim else ""), "%", _f(1)))
-    cols.append(Column("result", "", _s, "center"))
+        cols.append(Column(_lim_head(DUTY_LABEL[q], lim.duty.get(q)), "%", _f(1)))
+    cols.append(Column("result", "", _s, "left"))
     rows, bad = [], set()
     kind_abbr = {"injected": "inj", "background": "bg", "characteristic": "char"}
     for i, s in enumerate(steps):
         near = s.get("nearest_order")
         near_t = "-" if near is None else f"{near} {kind_abbr.get(s.get('nearest_kind'), '')}".strip()
-        duty_ok = s.get("duty_ok")
-        ok = bool(s.get("resonance_ok")) and duty_ok is not False
+        tdd = _num(s.get("tdd_pct"))
         row = [s.get("step"), s.get("kvar_nameplate"), s.get("kvar_delivered"), s.get("h_estimate"),
-               s.get("h_scan"), near_t, s.get("margin_pct"), _thd_bus(s), _thd_pcc(s)]
-        if not s.get("resonance_ok"):
+               s.get("h_scan"), near_t, s.get("margin_pct"), _thd_bus(s), _thd_pcc(s), tdd]
+        if s.get("resonance_ok") is False:
             bad |= {(i, 4), (i, 6)}
-        if pcc_thd_lim is not None and _thd_pcc(s) is not None and _thd_pcc(s) > pcc_thd_lim:
+        if lim.pcc_thd is not None and _thd_pcc(s) is not None and _thd_pcc(s) > lim.pcc_thd:
             bad.add((i, 8))
+        if lim.tdd is not None and tdd is not None and tdd > lim.tdd:
+            bad.add((i, 9))
         for j, (q, k) in enumerate(DUTY_KEYS.items()):
             v = _num(s.get(k))
             row.append(v)
-            if v is not None and q in lim and v > lim[q]:
-                bad.add((i, 9 + j))
-        row.append("pass" if ok else "FAIL")
-        if not ok:
+            if v is not None and q in lim.duty and v > lim.duty[q]:
+                bad.add((i, 10 + j))
+        f = _fails(s, lim)
+        row.append("pass" if not f else "FAIL " + ",".join(f))
+        if f:
             bad.add((i, len(cols) - 1))
         rows.append(row)
     return tuple(cols), tuple(tuple(r) for r in rows), frozenset(bad)
 
 
-def _summary_table(bank: dict, steps: list[dict], scen: str, lim: dict, pcc_thd_lim) -> Table:
-    cols, rows, bad = _step_rows(bank, steps, lim, pcc_thd_lim)
+def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits) -> Table:
+    cols, rows, bad = _step_rows(steps, lim)
     suffix = "" if scen == "nominal" else "_weak"
     return Table(f"table_summary_{_safe(bank['name'])}{suffix}.csv",
                  f"Bank {bank['name']}: every step, {scen} supply", cols, rows,
                  "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
-                 "char characteristic). Duty columns in % of the capacitor rating; '-' = not evaluated.", bad)
+                 "char characteristic). THD in % of nominal voltage, TDD in % of I_L, duty in % of the capacitor "
+                 f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes: res resonance, duty capacitor duty, "
+                 "V PCC voltage distortion, I PCC current distortion.", bad)
 
 
 def _input_tables(res: StudyResult, data: dict) -> list[Table]:
@@ -405,25 +471,49 @@ def _fmt_any(v) -> str:
     return _s(v)
 
 
-def _spectrum_table(bank: dict) -> Table | None:
-    steps = bank["steps"]
-    bus = [_spectrum(s, "bus") for s in steps]
-    pcc = [_spectrum(s, "pcc") for s in steps]
-    orders = sorted({h for d in bus + pcc for h in d})
-    if not orders:
-        return None
-    cols = [Column("order h", "-", _s)]
-    rows = []
-    for h in orders:
-        rows.append([h] + [d.get(h) for d in bus] + [d.get(h) for d in pcc])
-    for s in steps:
-        cols.append(Column(f"bus\nstep {s['step']}", "%", _f(2)))
-    for s in steps:
-        cols.append(Column(f"PCC\nstep {s['step']}", "%", _f(2)))
-    keep = [0] + [j for j in range(1, len(cols)) if any(r[j] is not None for r in rows)]
-    return Table(f"table_spectrum_{_safe(bank['name'])}.csv", f"Bank {bank['name']}: harmonic voltage per order",
-                 tuple(cols[j] for j in keep), tuple(tuple(r[j] for j in keep) for r in rows),
-                 "V_h in % of the nominal fundamental voltage.")
+def _spectrum_tables(bank: dict, lim: _Limits, scen: str = "nominal") -> list[Table]:
+    """Per-order tables of a bank: one CSV in long form; PDF tables order x step per location."""
+    steps = bank["steps"] if scen == "nominal" else (bank.get("weak_supply") or {}).get("steps", [])
+    rows_long = [(s.get("step"), r) for s in steps for r in _order_rows(s)]
+    out = []
+    safe = _safe(bank["name"]) + ("" if scen == "nominal" else "_weak")
+    if rows_long:
+        keys = []
+        for _k, r in rows_long:
+            keys += [k for k in r if k not in keys and k != "h" and not isinstance(r[k], (dict, list))]
+        cols = (Column("step", "-"), Column("h", "-")) + tuple(Column(k, "", _s) for k in keys)
+        out.append(Table(f"table_harmonics_{safe}.csv", f"Bank {bank['name']}: per-order results, {scen} supply",
+                         cols, tuple((k, r.get("h"), *[r.get(x) for x in keys]) for k, r in rows_long)))
+    for where, what, unit in (("bus", f"harmonic voltage at bus {bank['bus']}", "% of nominal"),
+                              ("pcc", "harmonic voltage at the PCC", "% of nominal"),
+                              ("i_pcc", "harmonic current into the supply at the PCC", "% of I_L")):
+        per = [_spectrum(s, where) for s in steps]
+        orders = sorted({h for d in per for h in d})
+        if not orders:
+            continue
+        cols = [Column("order h", "-", _s)] + [Column(f"step {s['step']}", unit.split()[0], _f(2)) for s in steps]
+        lims = None
+        if where == "pcc" and lim.pcc_ind is not None:
+            lims = {h: lim.pcc_ind for h in orders}
+        elif where == "i_pcc":
+            lims = {}
+            for s in steps:
+                for h, v in _spectrum(s, "i_lim").items():
+                    lims.setdefault(h, v)
+        if lims:
+            cols.append(Column("limit", unit.split()[0], _f(2)))
+        rows, bad = [], set()
+        for i, h in enumerate(orders):
+            row = [h] + [d.get(h) for d in per]
+            if lims:
+                row.append(lims.get(h))
+                for j, d in enumerate(per):
+                    if d.get(h) is not None and lims.get(h) is not None and d[h] > lims[h]:
+                        bad.add((i, 1 + j))
+            rows.append(tuple(row))
+        out.append(Table(f"table_spectrum_{where}_{safe}.csv", f"Bank {bank['name']}: {what}, {scen} supply "
+                         f"[{unit}]", tuple(cols), tuple(rows), bad=frozenset(bad)))
+    return out
 
 
 def report_tables(res: StudyResult, data: dict) -> list[Table]:
@@ -441,18 +531,15 @@ def report_tables(res: StudyResult, data: dict) -> list[Table]:
     list of Table
         Tables in report order.
     """
-    lim = _duty_limits_pct(data)
-    v519 = _v519(_pcc_kv(res, data), data)
     out = []
     for b in data["banks"]:
-        out.append(_summary_table(b, b["steps"], "nominal", lim, v519.thd_pct if v519 else None))
+        lim = _limits(res, data, b)
+        out.append(_summary_table(b, b["steps"], "nominal", lim))
         if b.get("weak_supply"):
-            out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", lim, v519.thd_pct if v519 else None))
+            out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", lim))
     out += _input_tables(res, data)
     for b in data["banks"]:
-        st = _spectrum_table(b)
-        if st is not None:
-            out.append(st)
+        out += _spectrum_tables(b, _limits(res, data, b))
         out += _detuning_tables(b)
     return out
 
@@ -476,8 +563,14 @@ class _Doc:
 
     def new_page(self) -> None:
         self.fig = Figure(figsize=(PAGE_W, PAGE_H))
-        self.pages.append(self.fig)
+        self.pages.append((self.fig, None))
         self.y = M_TOP
+
+    def shared_pages(self, fig: Figure, updates) -> None:
+        """Pages that are one figure re-pointed by ``update()`` before each is saved."""
+        for u in updates:
+            self.pages.append((fig, u))
+        self.fig = None
 
     def room(self) -> float:
         return PAGE_H - M_BOTTOM - self.y
@@ -616,17 +709,25 @@ class _Doc:
         self.y += h + 0.1
         return self.fig, rect
 
-    def finish(self, footer_left: str) -> None:
+    def save(self, pdf, footer_left: str) -> None:
+        """Running header, footer and page numbers on every page; write each page to ``pdf``."""
         n = len(self.pages)
-        for i, fig in enumerate(self.pages, start=1):
-            if i > 1:
-                fig.text(M_LEFT / PAGE_W, 1 - 0.45 / PAGE_H, self.title, fontsize=8, color=INK, va="bottom")
-                fig.text(1 - M_RIGHT / PAGE_W, 1 - 0.45 / PAGE_H, f"resonance {__version__}", fontsize=8,
-                         color="#6b7785", va="bottom", ha="right")
-                fig.add_artist(_hline(M_LEFT, PAGE_W - M_RIGHT, 0.52, 0.6))
-            fig.add_artist(_hline(M_LEFT, PAGE_W - M_RIGHT, PAGE_H - 0.55, 0.6))
-            fig.text(M_LEFT / PAGE_W, 0.4 / PAGE_H, footer_left, fontsize=7, color="#6b7785", va="top")
-            fig.text(1 - M_RIGHT / PAGE_W, 0.4 / PAGE_H, f"page {i} of {n}", fontsize=8, color=INK, va="top", ha="right")
+        numbers: dict[int, Any] = {}
+        for i, (fig, update) in enumerate(self.pages, start=1):
+            if id(fig) not in numbers:
+                if i > 1:
+                    fig.text(M_LEFT / PAGE_W, 1 - 0.45 / PAGE_H, self.title, fontsize=8, color=INK, va="bottom")
+                    fig.text(1 - M_RIGHT / PAGE_W, 1 - 0.45 / PAGE_H, f"resonance {__version__}", fontsize=8,
+                             color="#6b7785", va="bottom", ha="right")
+                    fig.add_artist(_hline(M_LEFT, PAGE_W - M_RIGHT, 0.52, 0.6))
+                fig.add_artist(_hline(M_LEFT, PAGE_W - M_RIGHT, PAGE_H - 0.55, 0.6))
+                fig.text(M_LEFT / PAGE_W, 0.4 / PAGE_H, footer_left, fontsize=7, color="#6b7785", va="top")
+                numbers[id(fig)] = fig.text(1 - M_RIGHT / PAGE_W, 0.4 / PAGE_H, "", fontsize=8, color=INK,
+                                            va="top", ha="right")
+            if update is not None:
+                update()
+            numbers[id(fig)].set_text(f"page {i} of {n}")
+            pdf.savefig(fig)
 
 
 def _hline(x0, x1, y_top_in, lw):
@@ -669,37 +770,64 @@ def _grid(fig: Figure, rect, nrow, ncol, pad=(0.62, 0.2, 0.45, 0.35)):
     return out
 
 
-def _legend_pad(n_entries: int) -> tuple:
-    return (0.72, 1.75, 0.5, 0.42)
+LEGEND_PAD = (0.72, 1.75, 0.5, 0.42)
+STEP_SIZE = (7.4, 4.1)     # stand-alone per-step figure [in]
+STEP_PAGE_H = 4.75         # height of one per-step plot on a page [in]
 
 
-def _fig_specs(res: StudyResult, data: dict) -> dict[str, list[_FigSpec]]:
-    """Figure specs per report section."""
-    specs: dict[str, list[_FigSpec]] = {"scans": [], "compare": [], "spectra": [], "duty": [], "band": []}
+def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
+    steps = bank["steps"]
+    ed = data["settings"].get("ieee519_edition")
+    v_bus = _v519(b.bus_kv, data)
+    out = []
+    for where, ind, label, ylab in (
+            ("bus", v_bus.individual_pct if v_bus else None, f"bank bus {b.bus}", "V_h [% of nominal]"),
+            ("pcc", lim.pcc_ind, f"PCC {data.get('pcc_bus')}", "V_h [% of nominal]"),
+            ("i_pcc", None, f"current into the supply at the PCC {data.get('pcc_bus')}", "I_h [% of I_L]")):
+        spx = [_spectrum(x, where) for x in steps]
+        if not any(spx):
+            continue
+        if where == "i_pcc":
+            tdd = [_num(x.get("tdd_pct")) for x in steps]
+            worst = int(np.argmax([t if t is not None else -1.0 for t in tdd]))
+        else:
+            thd = [(_thd_bus(x) if where == "bus" else _thd_pcc(x)) for x in steps]
+            worst = int(np.argmax([t if t is not None else -1.0 for t in thd]))
+        hs = sorted({h for d in spx for h in d})
+        env = [max(d.get(h, 0.0) for d in spx) for h in hs]
+        vals = [spx[worst].get(h, 0.0) for h in hs]
+        if where == "i_pcc":
+            il = _spectrum(steps[worst], "i_lim")
+            limit = [il.get(h) for h in hs] if il else None
+            lab = f"IEEE 519-{ed} current limit per order"
+            crit = "highest TDD"
+        else:
+            limit, crit = ind, "highest THD"
+            lab = f"IEEE 519-{ed} individual limit" + (f" {ind:g} %" if ind is not None else "")
+        ref = " (reference only; IEEE 519 applies at the PCC)" if where == "bus" else ""
+        out.append((hs, vals, env, limit, lab, f"{label}: step {steps[worst]['step']} ({crit}){ref}", ylab))
+    return out
+
+
+def _fig_specs(res: StudyResult, data: dict) -> dict[str, list]:
+    """Figure specs per report section (the per-step plots are handled apart, see :func:`_step_pages`)."""
+    specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": []}
     banks = {b["name"]: b for b in data["banks"]}
-    v_pcc = _pcc_kv(res, data)
-    lim519_pcc = _v519(v_pcc, data)
-    lim_duty = _duty_limits_pct(data)
-    dl = _duty_limit_set(data)
     for sc in res.scans:
         if sc.scenario != "nominal":
             continue
         b = sc.bank
         s = _safe(b.name)
         weak = res.scans_for(b.name, "weak")
-        specs["scans"].append(_FigSpec(
+        specs["overlay"].append(_FigSpec(
             f"fig_scan_{s}_all", (8.2, 4.0),
-            lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, _legend_pad(len(sc.steps))), res, sc,
+            lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, sc,
                                                    f"Bank {sc.bank.name}: all steps, nominal supply"), 4.0))
         if weak is not None:
-            specs["scans"].append(_FigSpec(
+            specs["overlay"].append(_FigSpec(
                 f"fig_scan_{s}_weak_all", (8.2, 4.0),
-                lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, _legend_pad(len(w.steps))), res, w,
+                lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, w,
                                                         f"Bank {w.bank.name}: all steps, weak supply"), 4.0))
-        for st in sc.steps:
-            specs["scans"].append(_FigSpec(
-                f"fig_scan_{s}_step{st.step}", (7.4, 4.1),
-                lambda fig, r, sc=sc, k=st.step, w=weak: rf.draw_scan_step(_axes(fig, r), res, sc, k, w), 4.35))
         det = _detuned_scan(res, b.name)
         if det is not None:
             specs["compare"].append(_FigSpec(
@@ -708,37 +836,22 @@ def _fig_specs(res: StudyResult, data: dict) -> dict[str, list[_FigSpec]]:
         bank = banks.get(b.name)
         if bank is None:
             continue
+        lim = _limits(res, data, bank)
         steps = bank["steps"]
-        panels = []
-        for where, lim, label in (("bus", _v519(b.bus_kv, data), f"bank bus {b.bus}"),
-                                  ("pcc", lim519_pcc, f"PCC {data.get('pcc_bus')}")):
-            spx = [_spectrum(x, where) for x in steps]
-            if not any(spx):
-                continue
-            thd = [(_thd_bus(x) if where == "bus" else _thd_pcc(x)) for x in steps]
-            worst = int(np.nanargmax([t if t is not None else -1.0 for t in thd])) if any(
-                t is not None for t in thd) else len(steps) - 1
-            hs = sorted({h for d in spx for h in d})
-            env = [max(d.get(h, 0.0) for d in spx) for h in hs]
-            vals = [spx[worst].get(h, 0.0) for h in hs]
-            ref = "" if where == "pcc" else " (for reference; IEEE 519 applies at the PCC)"
-            panels.append((hs, vals, env, lim.individual_pct if lim else None,
-                           f"IEEE 519-{data['settings'].get('ieee519_edition')} individual limit"
-                           + (f" {lim.individual_pct:g} %" if lim else ""),
-                           f"{label}: step {steps[worst]['step']} (highest THD){ref}"))
+        panels = _spectrum_panels(bank, b, data, lim)
         if panels:
             def draw_sp(fig, r, panels=panels):
                 for ax, p in zip(_grid(fig, r, len(panels), 1, (0.72, 0.25, 0.5, 0.35)), panels):
                     rf.draw_spectrum(ax, *p)
-            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 3.0 * len(panels)), draw_sp,
-                                             3.0 * len(panels)))
+            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.8 * len(panels)), draw_sp,
+                                             2.8 * len(panels)))
         if _has_duty(bank):
             vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
             nums = [x["step"] for x in steps]
-            lname = dl.name if dl else str(data["settings"].get("duty_limits"))
             specs["duty"].append(_FigSpec(
-                f"fig_duty_{s}", (7.4, 5.4),
-                lambda fig, r, v=vals, n=nums, ln=lname: rf.draw_duty(_grid(fig, r, 2, 2), n, v, lim_duty, ln), 5.4))
+                f"fig_duty_{s}", (7.4, 5.2),
+                lambda fig, r, v=vals, n=nums, lm=lim: rf.draw_duty(_grid(fig, r, 2, 2), n, v, lm.duty, lm.duty_name),
+                5.2))
         rec, _c = _detuning(bank)
         n_t = _num(_get(rec, "tuning_order")) if rec else None
         p_pct = _num(_get(rec, "detuning_pct")) if rec else None
@@ -747,9 +860,8 @@ def _fig_specs(res: StudyResult, data: dict) -> dict[str, list[_FigSpec]]:
             n_t = n_t or 1.0 / math.sqrt(p)
             q_r = np.cumsum([float(q) for q in (rec.get("steps_kvar") or b.stages_kvar)])
             u_r = _num(rec.get("rated_kv")) or b.rated_kv
-            # X_s / X_C = U^2 Q_R / (S_sc U_R^2); h_p = 1/sqrt(p + X_s/X_C)  [derived, REFERENCES.md detuning]
-            xs_xc = b.bus_kv**2 * q_r / 1000.0 / (sc.sc_mva * u_r**2)
-            hp = 1.0 / np.sqrt(p + xs_xc)
+            # X_s/X_C = U^2 Q_R / (S_sc U_R^2); h_p = 1/sqrt(p + X_s/X_C)  [derived, REFERENCES.md "Detuned banks"]
+            hp = 1.0 / np.sqrt(p + b.bus_kv**2 * q_r / 1000.0 / (sc.sc_mva * u_r**2))
             dom = min(res.orders.injected) if res.orders.injected else None
             specs["band"].append(_FigSpec(
                 f"fig_detuning_{s}", (8.2, 3.6),
@@ -759,6 +871,13 @@ def _fig_specs(res: StudyResult, data: dict) -> dict[str, list[_FigSpec]]:
     return specs
 
 
+def _save_fig(fig: Figure, stem: str, out) -> list[str]:
+    names = [f"{stem}.png", f"{stem}.svg"]
+    fig.savefig(out.file(names[0]), dpi=rf.PNG_DPI, metadata={"Software": None})
+    fig.savefig(out.file(names[1]), metadata={"Date": None})
+    return names
+
+
 def _save_spec(spec: _FigSpec, out, cache: dict) -> list[str]:
     fig = cache.get(spec.size)
     if fig is None:
@@ -766,10 +885,40 @@ def _save_spec(spec: _FigSpec, out, cache: dict) -> list[str]:
     else:
         fig.clear()
     spec.draw(fig, (0.0, 0.0) + tuple(spec.size))
-    names = [f"{spec.name}.png", f"{spec.name}.svg"]
-    fig.savefig(out.file(names[0]), dpi=rf.PNG_DPI, metadata={"Software": None})
-    fig.savefig(out.file(names[1]), metadata={"Date": None})
+    return _save_fig(fig, spec.name, out)
+
+
+def _step_files(res: StudyResult, sc: BankScan, weak: BankScan | None, out) -> list[str]:
+    """One PNG and SVG per step, from one figure re-pointed at each step."""
+    fig = rf.new_figure(*STEP_SIZE)
+    plot = rf.StepScanPlot(_axes(fig, (0.0, 0.0) + STEP_SIZE), res, sc, weak)
+    names = []
+    for st in sc.steps:
+        plot.show(st.step)
+        names += _save_fig(fig, f"fig_scan_{_safe(sc.bank.name)}_step{st.step}", out)
     return names
+
+
+def _step_pages(doc: "_Doc", res: StudyResult, sc: BankScan, weak: BankScan | None) -> None:
+    """Two per-step plots a page: one page figure, re-pointed for every pair of steps."""
+    fig = Figure(figsize=(PAGE_W, PAGE_H))
+    fig.text(M_LEFT / PAGE_W, 1 - M_TOP / PAGE_H, f"Bank {sc.bank.name}: one plot per step"
+             + (" (dashed: weak supply)" if weak is not None else ""), fontsize=9.5, weight="bold", color=INK,
+             va="top")
+    top = PAGE_H - M_TOP - 0.3
+    rects = [(M_LEFT - 0.1, top - (i + 1) * STEP_PAGE_H, TEXT_W + 0.2, STEP_PAGE_H - 0.1) for i in range(2)]
+    plots = [rf.StepScanPlot(_axes(fig, r), res, sc, weak) for r in rects]
+    n = len(sc.steps)
+
+    def pair(k):
+        def update():
+            plots[0].show(k)
+            plots[1].ax.set_visible(k + 1 <= n)
+            if k + 1 <= n:
+                plots[1].show(k + 1)
+        return update
+
+    doc.shared_pages(fig, [pair(k) for k in range(1, n + 1, 2)])
 
 
 # ---------------------------------------------------------------------------------------------
@@ -783,65 +932,86 @@ def _steps_list(ks: list[int]) -> str:
 
 
 def _res_sentence(steps: list[dict], margin: float, scen: str) -> str:
-    bad = [s for s in steps if not s.get("resonance_ok")]
+    bad = [s for s in steps if s.get("resonance_ok") is False]
     with_h = [s for s in steps if s.get("h_scan") is not None and s.get("margin_pct") is not None]
     if not with_h:
-        return f"{scen.capitalize()} supply: no step shows a resonance in the scan range."
+        return f"Resonance, {scen} supply: no step shows a resonance near an order of concern in the scan range."
     worst = min(with_h, key=lambda s: abs(s["margin_pct"]))
     side = "above" if worst["margin_pct"] > 0 else "below"
     where = (f"step {worst['step']} (h = {worst['h_scan']:.2f}, {abs(worst['margin_pct']):.1f} % {side} the "
              f"{worst.get('nearest_kind') or ''} {rf.ordinal(worst['nearest_order'])})")
     if bad:
         word = "step" if len(bad) == 1 else "steps"
-        return (f"{scen.capitalize()} supply: {len(bad)} of {len(steps)} steps resonate inside the +-{margin:g} % "
+        return (f"Resonance, {scen} supply: {len(bad)} of {len(steps)} steps resonate inside the +-{margin:g} % "
                 f"screening band of an order of concern ({word} {_steps_list([s['step'] for s in bad])}); "
                 f"the closest is {where}.")
-    return (f"{scen.capitalize()} supply: no step resonates inside the +-{margin:g} % screening band; "
+    return (f"Resonance, {scen} supply: no step resonates inside the +-{margin:g} % screening band; "
             f"the closest is {where}.")
 
 
-def _verdict(bank: dict, data: dict, lim: dict, v519) -> list[str]:
+_CHECK_WORDS = {"resonance": "resonance", "pcc_thd_v": "PCC voltage THD", "pcc_v_individual": "PCC individual "
+                "harmonic voltage", "pcc_tdd": "PCC TDD", "pcc_i_individual": "PCC individual harmonic current"}
+
+
+def _check_word(c: str) -> str:
+    if c.startswith("duty_"):
+        return f"capacitor duty ({DUTY_LABEL.get(c[5:], c[5:])})"
+    return _CHECK_WORDS.get(c, c.replace("_", " "))
+
+
+def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
     margin = data["settings"]["margin_pct"]
     kind = (f"a detuned bank (p = {bank['detuning_pct']:g} %, tuning order {bank['tuning_order']:.2f})"
             if bank.get("detuning_pct") else "a plain (undetuned) bank")
     n = len(bank["steps"])
-    total = sum(bank["stages_kvar"])
     out = [f"Bank {bank['name']} at bus {bank['bus']} ({bank['bus_kv']:g} kV) is {kind} of {n} steps, "
-           f"{total:g} kvar at {bank['rated_kv']:g} kV; short-circuit power at the bus {bank['sc_mva']:.2f} MVA."]
+           f"{sum(bank['stages_kvar']):g} kvar at {bank['rated_kv']:g} kV; short-circuit power at the bus "
+           f"{bank['sc_mva']:.2f} MVA."]
     out.append(_res_sentence(bank["steps"], margin, "nominal"))
     if bank.get("weak_supply"):
         out.append(_res_sentence(bank["weak_supply"]["steps"], margin, "weak"))
     steps = bank["steps"]
     if _has_penetration(bank):
-        tb = [(s["step"], _thd_bus(s)) for s in steps if _thd_bus(s) is not None]
-        tp = [(s["step"], _thd_pcc(s)) for s in steps if _thd_pcc(s) is not None]
         parts = []
+        off = bank.get("bank_off") if isinstance(bank.get("bank_off"), dict) else {}
+        tb = [(s["step"], _thd_bus(s)) for s in steps if _thd_bus(s) is not None]
         if tb:
             k, v = max(tb, key=lambda x: x[1])
-            parts.append(f"the highest voltage THD at the bank bus is {v:.2f} % (step {k})")
+            o = _num(off.get("thd_v_pct"))
+            parts.append(f"the highest voltage THD at the bank bus is {v:.2f} % (step {k})"
+                         + (f", against {o:.2f} % with the bank off" if o is not None else ""))
+        tp = [(s["step"], _thd_pcc(s)) for s in steps if _thd_pcc(s) is not None]
         if tp:
             k, v = max(tp, key=lambda x: x[1])
-            lim_t = f" against the IEEE 519 limit of {v519.thd_pct:g} %" if v519 else ""
-            over = "" if not v519 else (" - exceeded" if v > v519.thd_pct else " - within the limit")
-            parts.append(f"at the PCC {v:.2f} % (step {k}){lim_t}{over}")
-        out.append("Harmonic penetration: " + "; ".join(parts) + ".")
+            lt = (f" against the IEEE 519 limit of {lim.pcc_thd:g} %" + (" - exceeded" if v > lim.pcc_thd else
+                                                                           " - within it")) if lim.pcc_thd else ""
+            parts.append(f"at the PCC {v:.2f} % (step {k}){lt}")
+        td = [(s["step"], _num(s.get("tdd_pct"))) for s in steps if _num(s.get("tdd_pct")) is not None]
+        if td:
+            k, v = max(td, key=lambda x: x[1])
+            lt = (f" against {lim.tdd:g} %" + (" - exceeded" if v > lim.tdd else " - within it")) if lim.tdd else ""
+            parts.append(f"the highest TDD at the PCC is {v:.1f} % of I_L (step {k}){lt}")
+        out.append("Harmonic penetration, nominal supply: " + "; ".join(parts) + ".")
     else:
         out.append(f"Harmonic penetration (THD at the bank bus and the PCC): {NOT_EVALUATED}.")
     if _has_duty(bank):
         fails = []
         for s in steps:
             over = [DUTY_LABEL[q] for q, k in DUTY_KEYS.items()
-                    if _num(s.get(k)) is not None and q in lim and _num(s.get(k)) > lim[q]]
+                    if _num(s.get(k)) is not None and q in lim.duty and _num(s.get(k)) > lim.duty[q]]
             if over or s.get("duty_ok") is False:
                 fails.append((s["step"], over))
-        name = data["settings"].get("duty_limits")
+        worst = max(((s["step"], q, _num(s.get(k)) - lim.duty[q]) for s in steps for q, k in DUTY_KEYS.items()
+                     if _num(s.get(k)) is not None and q in lim.duty), key=lambda x: x[2], default=None)
         if fails:
             detail = "; ".join(f"step {k}: {', '.join(o) if o else 'duty check failed'}" for k, o in fails)
-            out.append(f"Capacitor duty exceeds the {name} limits on {len(fails)} of {n} steps ({detail}).")
-        else:
-            out.append(f"Capacitor duty is within the {name} limits on every step.")
+            out.append(f"Capacitor duty, nominal supply: beyond the {lim.duty_name} limits on {len(fails)} of {n} "
+                       f"steps ({detail}).")
+        elif worst is not None:
+            out.append(f"Capacitor duty, nominal supply: within the {lim.duty_name} limits on every step; the "
+                       f"smallest margin is {-worst[2]:.1f} points ({DUTY_LABEL[worst[1]]}, step {worst[0]}).")
     else:
-        out.append(f"Capacitor duty against the {data['settings'].get('duty_limits')} limits: {NOT_EVALUATED}.")
+        out.append(f"Capacitor duty against the {lim.duty_name} limits: {NOT_EVALUATED}.")
     rec, _c = _detuning(bank)
     if rec:
         bits = []
@@ -856,12 +1026,19 @@ def _verdict(bank: dict, data: dict, lim: dict, v519) -> list[str]:
         out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
     elif not bank.get("detuning_pct"):
         out.append(f"Detuning proposal: {NOT_EVALUATED}.")
-    fails = [s for s in steps if not s.get("resonance_ok") or s.get("duty_ok") is False]
-    wfails = [s for s in (bank.get("weak_supply") or {}).get("steps", []) if not s.get("resonance_ok")
-              or s.get("duty_ok") is False]
-    if fails or wfails:
-        out.append(f"Verdict: the bank as specified does not pass the screening ({len(fails)} step(s) with a finding "
-                   f"at nominal supply, {len(wfails)} at weak supply). Review the findings before it is bought.")
+    finds = [f for f in data.get("findings", []) if f.get("bank") == bank["name"]]
+    if finds:
+        by: dict[str, dict[str, set]] = {}
+        for f in finds:
+            by.setdefault(str(f.get("scenario", "nominal")), {}).setdefault(_check_word(str(f.get("check"))),
+                                                                            set()).add(f.get("step"))
+        parts = []
+        for scen in sorted(by, key=lambda x: (x != "nominal", x)):
+            items = ", ".join(f"{w} (step{'s' if len(k) > 1 else ''} {_steps_list(sorted(x for x in k if x is not None))})"
+                              for w, k in sorted(by[scen].items()))
+            parts.append(f"{scen} supply - {items}")
+        out.append(f"Verdict: the bank as specified does not pass the screening; {len(finds)} finding(s): "
+                   + "; ".join(parts) + ".")
     else:
         out.append("Verdict: the bank as specified passes every screening check evaluated in this version.")
     return out
@@ -983,25 +1160,15 @@ def write_report(res: StudyResult, data: dict, out, *, date: str | None = None) 
         return _write(res, data, out, date or _dt.date.today().isoformat())
 
 
-def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
-    names: list[str] = []
+def _cover(doc: _Doc, data: dict, date: str) -> float:
     title = data["case"]["title"]
-    doc = _Doc(title)
-    tables = report_tables(res, data)
-    tbl = {t.name: t for t in tables}
-    specs = _fig_specs(res, data)
-    lim = _duty_limits_pct(data)
-    v519 = _v519(_pcc_kv(res, data), data)
-    cache: dict = {}
-
-    # --- cover
     doc.new_page()
     doc.y = 1.3
     doc.text(M_LEFT, doc.y, "Capacitor bank harmonic screening study", fontsize=11, color="#6b7785")
     doc.y += 0.3
-    for line in textwrap.wrap(title, 52):
+    for line in textwrap.wrap(title, 48):
         doc.text(M_LEFT, doc.y, line, fontsize=19, weight="bold")
-        doc.y += 0.36
+        doc.y += 0.38
     doc.y += 0.25
     n_find = len(data.get("findings", []))
     doc.kv([("Case file", str(data["case"].get("file") or "-")),
@@ -1011,27 +1178,27 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
             ("System frequency", f"{data['case']['frequency_hz']} Hz"),
             ("Banks", ", ".join(f"{b['name']} ({b['bus']}, {sum(b['stages_kvar']):g} kvar)" for b in data["banks"])),
             ("PCC", str(data.get("pcc_bus"))),
-            ("Screening result", "all checks evaluated pass" if data.get("passed") else
+            ("Screening result", "every check evaluated passes" if data.get("passed") else
              f"{n_find} finding(s) beyond a limit - see the summary")],
            mono_keys=("SHA-256",))
     doc.y += 0.35
-    doc.text(M_LEFT, doc.y, "Engineer:", fontsize=10, weight="bold")
-    doc.fig.add_artist(_hline(M_LEFT + 1.0, M_LEFT + 4.2, doc.y + 0.2, 0.6))
+    for label, y_off in (("Engineer:", 0.0), ("Signature:", 0.45)):
+        doc.text(M_LEFT, doc.y + y_off, label, fontsize=10, weight="bold")
+        doc.fig.add_artist(_hline(M_LEFT + 1.0, M_LEFT + 4.2, doc.y + y_off + 0.2, 0.6))
     doc.text(M_LEFT + 4.5, doc.y, "Date:", fontsize=10, weight="bold")
     doc.fig.add_artist(_hline(M_LEFT + 5.0, PAGE_W - M_RIGHT, doc.y + 0.2, 0.6))
-    doc.y += 0.45
-    doc.text(M_LEFT, doc.y, "Signature:", fontsize=10, weight="bold")
-    doc.fig.add_artist(_hline(M_LEFT + 1.0, M_LEFT + 4.2, doc.y + 0.2, 0.6))
-    doc.y += 0.55
+    doc.y += 1.0
     box_top = doc.y
     doc.y += 0.12
     doc.para(CAUTION, size=9.5, weight="bold", indent=0.12)
     doc.fig.add_artist(_rect(M_LEFT, box_top, TEXT_W, doc.y - box_top + 0.02, "#fbf1dc"))
     doc.y += 0.35
-    cover, toc_y = doc.fig, doc.y
+    return doc.y
 
-    # --- summary per bank
+
+def _summary_pages(doc: _Doc, res: StudyResult, data: dict, tbl: dict) -> None:
     for b in data["banks"]:
+        lim = _limits(res, data, b)
         doc.new_page()
         doc.heading(f"1 Summary - bank {b['name']}")
         pairs = [("Bus", f"{b['bus']}, {b['bus_kv']:g} kV"),
@@ -1040,32 +1207,51 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
                  ("Detuning", f"p = {b['detuning_pct']:g} %, tuning order {b['tuning_order']:.2f}"
                   if b.get("detuning_pct") else "none (plain bank)"),
                  ("S_sc at the bus", f"{b['sc_mva']:.2f} MVA (IEC 60909: "
-                  + (f"{b['sc_mva_iec60909']:.2f} MVA" if b.get("sc_mva_iec60909") else "-") + f"), X/R "
+                  + (f"{b['sc_mva_iec60909']:.2f} MVA" if b.get("sc_mva_iec60909") else "-") + "), X/R "
                   + (f"{b['x_r_at_bus']:.2f}" if b.get("x_r_at_bus") else "-"))]
         if b.get("weak_supply"):
             pairs.append(("Weak supply", f"S_sc {b['weak_supply']['sc_mva']:.2f} MVA at the bus"))
         doc.kv(pairs, size=8.5, key_w=1.35)
         doc.y += 0.1
-        doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.2)
+        doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.0)
         if b.get("weak_supply"):
-            doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.2)
+            doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.0)
+        doc.ensure(0.6)
         doc.text(M_LEFT, doc.y, "Verdict", fontsize=9.5, weight="bold")
         doc.y += 0.2
-        verdict = _verdict(b, data, lim, v519)
-        doc.bullets(verdict, size=8.3)
+        doc.bullets(_verdict(b, data, lim), size=8.0)
         notes = [w for w in data.get("warnings", []) if f"bank {b['name']} " in w]
         if notes:
+            doc.ensure(0.5)
             doc.text(M_LEFT, doc.y, "Notes", fontsize=9, weight="bold")
             doc.y += 0.2
-            doc.bullets(notes, size=7.5)
-    other_notes = [w for w in data.get("warnings", []) if not any(f"bank {b['name']} " in w for b in data["banks"])]
-    if other_notes:
-        doc.bullets(other_notes, size=7.5)
+            doc.bullets(notes, size=7.2)
+    other = [w for w in data.get("warnings", []) if not any(f"bank {b['name']} " in w for b in data["banks"])]
+    if other:
+        doc.bullets(other, size=7.2)
 
-    # --- input data
+
+def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
+    names: list[str] = []
+    title = data["case"]["title"]
+    doc = _Doc(title)
+    tables = report_tables(res, data)
+    tbl = {t.name: t for t in tables}
+    specs = _fig_specs(res, data)
+    cache: dict = {}
+
+    def place(spec: _FigSpec) -> None:
+        fig, rect = doc.region(spec.page_h)
+        spec.draw(fig, rect)
+        names.extend(_save_spec(spec, out, cache))
+
+    toc_y = _cover(doc, data, date)
+    cover = doc.fig
+    _summary_pages(doc, res, data, tbl)
+
     doc.new_page()
     doc.heading("2 Input data")
-    doc.para(f"As read from {data['case'].get('file')}; units in brackets. Bus voltages are line-to-line.")
+    doc.para(f"As read from {data['case'].get('file')}; units in brackets; bus voltages line-to-line.")
     if res.case.network is not None:
         doc.para(f"Network elements beyond the tables below come from the pandapower file "
                  f"{res.case.network.pandapower_json}.")
@@ -1073,81 +1259,64 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
         if t.name.startswith("table_input_"):
             doc.table(t)
 
-    # --- scans
     for sc in res.scans:
         if sc.scenario != "nominal":
             continue
+        weak = res.scans_for(sc.bank.name, "weak")
         doc.new_page()
         doc.heading(f"3 Frequency scans - bank {sc.bank.name}")
         doc.para("Driving-point impedance magnitude at the bank bus against harmonic order. Shaded: the "
-                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern (darker and solid "
-                 "red line: injected or background order; dashed grey: characteristic order). Markers: resonance "
-                 "of each step (X inside a band). Dotted: bank off.")
-        mine = [s for s in specs["scans"] if s.name.startswith(f"fig_scan_{_safe(sc.bank.name)}_")]
-        for s in mine:
-            if s.name.endswith("_step1"):
-                doc.new_page()
-                doc.text(M_LEFT, doc.y, f"Bank {sc.bank.name}: one plot per step (dashed: weak supply)",
-                         fontsize=9.5, weight="bold")
-                doc.y += 0.25
-            fig, rect = doc.region(s.page_h)
-            s.draw(fig, rect)
-            names += _save_spec(s, out, cache)
+                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern (darker, with a "
+                 "solid red line: injected or background order; dashed grey: characteristic order; numbers along "
+                 "the top edge). Markers: resonance of each step (X: inside a band). Dotted: bank off.")
+        for spec in specs["overlay"]:
+            if spec.name.startswith(f"fig_scan_{_safe(sc.bank.name)}_"):
+                place(spec)
+        _step_pages(doc, res, sc, weak)
+        names += _step_files(res, sc, weak, out)
 
-    # --- detuned vs plain
     doc.heading("4 Detuned bank compared with the plain bank")
     if specs["compare"]:
-        for s in specs["compare"]:
-            fig, rect = doc.region(s.page_h)
-            s.draw(fig, rect)
-            names += _save_spec(s, out, cache)
+        for spec in specs["compare"]:
+            place(spec)
     else:
-        doc.para(f"Scan of a detuned candidate: {NOT_EVALUATED}.")
+        doc.para(f"Scan of a detuned candidate beside the plain bank: {NOT_EVALUATED}.")
 
-    # --- spectra
     doc.heading("5 Harmonic voltage distortion")
     if specs["spectra"]:
-        doc.para("Bars: harmonic voltage of the step with the highest THD; ticks: highest value over all steps; "
-                 "dashed: IEEE 519 individual-harmonic limit (red bars exceed it).")
-        for s in specs["spectra"]:
-            fig, rect = doc.region(s.page_h)
-            s.draw(fig, rect)
-            names += _save_spec(s, out, cache)
+        doc.para("Bars: harmonic value of the step with the highest distortion; grey ticks: highest value over all "
+                 "steps; red dashes: the IEEE 519 limit (red bars exceed it). Nominal supply.")
+        for spec in specs["spectra"]:
+            place(spec)
     else:
         doc.para(f"Harmonic voltage spectra at the bank bus and the PCC: {NOT_EVALUATED}.")
     for t in tables:
         if t.name.startswith("table_spectrum_"):
-            doc.table(t, size=6.5)
+            doc.table(t, size=6.8)
 
-    # --- duty
     doc.heading("6 Capacitor duty")
     if specs["duty"]:
-        doc.para(f"Continuous duty of the capacitors per step against the {data['settings'].get('duty_limits')} "
-                 "limits (dashed); red bars exceed a limit.")
-        for s in specs["duty"]:
-            fig, rect = doc.region(s.page_h)
-            s.draw(fig, rect)
-            names += _save_spec(s, out, cache)
+        doc.para("Continuous duty of the capacitors per step, nominal supply, against the limits named "
+                 "(dashed); red bars exceed a limit.")
+        for spec in specs["duty"]:
+            place(spec)
     else:
         doc.para(f"Capacitor duty (rms and crest voltage, rms current, reactive power): {NOT_EVALUATED}.")
 
-    # --- detuning
     doc.heading("7 Detuning recommendation")
     det_tables = [t for t in tables if t.name.startswith("table_detuning_")]
     if specs["band"] or det_tables:
-        for s in specs["band"]:
-            fig, rect = doc.region(s.page_h)
-            s.draw(fig, rect)
-            names += _save_spec(s, out, cache)
+        for spec in specs["band"]:
+            place(spec)
         for t in det_tables:
             doc.table(t)
     else:
         doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
 
-    # --- methods and references
     doc.heading("8 Methods and assumptions")
     meth, mem = _methods(res, data)
     doc.bullets(meth)
+    doc.ensure(0.6)
     doc.text(M_LEFT, doc.y, "Taken from memory or common practice (verify against the documents)", fontsize=9.5,
              weight="bold")
     doc.y += 0.22
@@ -1155,7 +1324,7 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
     doc.heading("9 References")
     doc.bullets(REFERENCES)
 
-    # --- contents on the cover, then running header and page numbers
+    # contents on the cover (page numbers are known now)
     y = toc_y
     cover.text(M_LEFT / PAGE_W, 1 - y / PAGE_H, "Contents", fontsize=10, weight="bold", color=INK, va="top")
     y += 0.25
@@ -1166,14 +1335,10 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
         cover.text(1 - M_RIGHT / PAGE_W, 1 - y / PAGE_H, str(page), fontsize=8.5, color=INK, va="top", ha="right")
         y += 0.19
     sha = str(data["case"].get("sha256") or "")
-    doc.finish(f"{data['case'].get('file')}  sha256 {sha[:12]}  -  screening aid; see the caution on page 1")
-
-    pdf_name = "report.pdf"
-    with PdfPages(out.file(pdf_name), metadata={"CreationDate": None, "Creator": f"resonance {__version__}",
-                                               "Producer": None, "Title": title}) as pdf:
-        for fig in doc.pages:
-            pdf.savefig(fig)
+    with PdfPages(out.file("report.pdf"), metadata={"CreationDate": None, "Creator": f"resonance {__version__}",
+                                                   "Producer": None, "Title": title}) as pdf:
+        doc.save(pdf, f"{data['case'].get('file')}  sha256 {sha[:12]}  -  screening aid; see the caution on page 1")
     for t in tables:
         out.write_text(t.name, t.csv())
         names.append(t.name)
-    return [pdf_name] + names
+    return ["report.pdf"] + names

@@ -29,6 +29,8 @@ __all__ = [
     "step_color",
     "draw_scan_all",
     "draw_scan_step",
+    "StepScanPlot",
+    "step_view",
     "draw_scan_compare",
     "draw_spectrum",
     "draw_duty",
@@ -151,12 +153,110 @@ def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
     ax.legend(frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
 
 
-def _step_view(st, st_w, h_max: float) -> float:
-    hs = [x.h_scan for x in (st, st_w) if x is not None and x.h_scan is not None]
-    return min(h_max, max(15.0, 1.8 * max(hs))) if hs else h_max
+def step_view(sc: BankScan, weak: BankScan | None) -> float:
+    """Upper end of the per-step scan axes, common to every step of a bank [unitless].
+
+    Wide enough to show the highest resonance of any step (nominal or weak supply)
+    with room to spare, never past the scan's own end.
+    """
+    hs = [s.h_scan for x in (sc, weak) if x is not None for s in x.steps if s.h_scan is not None]
+    return min(float(sc.h[-1]), max(15.0, 1.5 * max(hs))) if hs else float(sc.h[-1])
 
 
-def draw_scan_step(ax, res: StudyResult, sc: BankScan, k: int, weak: BankScan | None = None) -> None:
+class StepScanPlot:
+    """A per-step scan axes drawn once and re-pointed at each step (fast: ticks, bands reused).
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Target axes.
+    res : StudyResult
+        Study (orders of concern, screening margin [%]).
+    sc : BankScan
+        Nominal-supply scan of the bank [ohm].
+    weak : BankScan, optional
+        Weak-supply scan, drawn dashed [ohm].
+
+    Notes
+    -----
+    :meth:`show` sets the curves, the resonance markers and the words for step
+    ``k``; the shaded +-margin bands and the order lines stay.
+    """
+
+    def __init__(self, ax, res: StudyResult, sc: BankScan, weak: BankScan | None = None):
+        self.ax, self.res, self.sc, self.weak = ax, res, sc, weak
+        _style_axes(ax)
+        self.h_hi = step_view(sc, weak)
+        self.margin = res.case.study.margin_pct
+        mark_orders(ax, res, self.h_hi, self.margin)
+        ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
+        (self.l_nom,) = ax.semilogy(sc.h, sc.z_ohm[1], lw=1.5, label="nominal supply")
+        self.l_weak = None
+        if weak is not None:
+            (self.l_weak,) = ax.semilogy(weak.h, weak.z_ohm[1], lw=1.0, ls="--", label="weak supply")
+        self.v_est = ax.axvline(1.0, color=STYLE["ink"], lw=0.6, ls=(0, (1, 2)), zorder=2)
+        self.t_est = ax.annotate("", (1.0, 0.02), xycoords=("data", "axes fraction"), xytext=(2, 0),
+                                 textcoords="offset points", rotation=90, fontsize=6, color=STYLE["ink"],
+                                 va="bottom", ha="left")
+        self.marks, self.notes = [], []
+        for dy in (4, -10):
+            (m,) = ax.plot([np.nan], [np.nan], ls="none", ms=6, mec=STYLE["ink"], mew=0.5, zorder=6)
+            t = ax.annotate("", (1.0, 1.0), xytext=(7, dy), textcoords="offset points", fontsize=6.5,
+                            ha="left", va="bottom", zorder=7)
+            self.marks.append(m)
+            self.notes.append(t)
+        ax.set_xlim(1.0, self.h_hi)
+        _order_ticks(ax, res, self.h_hi)
+        _log_ticks(ax, self.h_hi)
+        _label_axes(ax, sc.bank.bus, "")
+        self.legend = ax.legend(frameon=False, loc="upper right")
+
+    def show(self, k: int) -> None:
+        """Point the axes at step ``k`` (1..N) [unitless]."""
+        sc, weak, ax = self.sc, self.weak, self.ax
+        st = sc.steps[k - 1]
+        st_w = weak.steps[k - 1] if weak is not None and k <= len(weak.steps) else None
+        col = step_color(k, len(sc.steps))
+        self.l_nom.set_ydata(sc.z_ohm[k])
+        self.l_nom.set_color(col)
+        curves = [sc.z_ohm[0], sc.z_ohm[k]]
+        if self.l_weak is not None:
+            self.l_weak.set_visible(st_w is not None)
+            if st_w is not None:
+                self.l_weak.set_ydata(weak.z_ohm[k])
+                self.l_weak.set_color(col)
+                curves.append(weak.z_ohm[k])
+        self.legend.get_lines()[1].set_color(col)
+        if self.l_weak is not None:
+            self.legend.get_lines()[2].set_color(col)
+        self.v_est.set_xdata([st.h_estimate, st.h_estimate])
+        self.t_est.xy = (st.h_estimate, 0.02)
+        self.t_est.set_text(f"h_est {st.h_estimate:.2f}")
+        for m, t, s_, name in zip(self.marks, self.notes, (st, st_w), ("nominal", "weak")):
+            if s_ is None or s_.h_scan is None:
+                m.set_data([np.nan], [np.nan])
+                t.set_text("")
+                continue
+            bad = not s_.resonance_ok
+            m.set_data([s_.h_scan], [s_.z_peak_ohm])
+            m.set_marker("X" if bad else "v")
+            m.set_color(STYLE["injected"] if bad else col)
+            m.set_markeredgecolor(STYLE["ink"])
+            where = "" if s_.margin_pct is None else (
+                f", {abs(s_.margin_pct):.1f} % {'above' if s_.margin_pct > 0 else 'below'} "
+                f"the {ordinal(s_.nearest_order)}")
+            t.xy = (s_.h_scan, s_.z_peak_ohm)
+            t.set_text(f"{name}: h = {s_.h_scan:.2f}{where}")
+            t.set_color(STYLE["injected"] if bad else STYLE["ink"])
+        _ylim_log(ax, curves, 1.0, self.h_hi, sc.h)
+        verdict = "inside" if not st.resonance_ok else "outside"
+        res_txt = (f"resonance h = {st.h_scan:.2f}, {verdict} the +-{self.margin:g} % band" if st.h_scan is not None
+                   else "no resonance in the scan range")
+        ax.set_title(f"Step {k}: {st.kvar_nameplate:g} kvar nameplate - {res_txt}", color=STYLE["ink"], loc="left",
+                     fontsize=9)
+
+
+def draw_scan_step(ax, res: StudyResult, sc: BankScan, k: int, weak: BankScan | None = None) -> StepScanPlot:
     """One step's scan with its resonance marked and the screening bands shaded.
 
     Parameters
@@ -171,44 +271,16 @@ def draw_scan_step(ax, res: StudyResult, sc: BankScan, k: int, weak: BankScan | 
         Step, 1..N [unitless].
     weak : BankScan, optional
         Weak-supply scan drawn dashed [ohm].
+
+    Returns
+    -------
+    StepScanPlot
+        The plot, to be re-pointed at other steps with ``show(k)``.
     """
-    _style_axes(ax)
-    margin = res.case.study.margin_pct
-    st = sc.steps[k - 1]
-    st_w = weak.steps[k - 1] if weak is not None and k <= len(weak.steps) else None
-    h_hi = _step_view(st, st_w, float(sc.h[-1]))
-    mark_orders(ax, res, h_hi, margin)
-    col = step_color(k, len(sc.steps))
-    ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
-    ax.semilogy(sc.h, sc.z_ohm[k], color=col, lw=1.5, label=f"step {k}, nominal supply")
-    curves = [sc.z_ohm[0], sc.z_ohm[k]]
-    if st_w is not None:
-        ax.semilogy(weak.h, weak.z_ohm[k], color=col, lw=1.0, ls="--", label=f"step {k}, weak supply")
-        curves.append(weak.z_ohm[k])
-    ax.axvline(st.h_estimate, color=STYLE["ink"], lw=0.6, ls=(0, (1, 2)), zorder=2)
-    ax.annotate(f"h_est {st.h_estimate:.2f}", (st.h_estimate, 0.02), xycoords=("data", "axes fraction"),
-                xytext=(2, 0), textcoords="offset points", rotation=90, fontsize=6, color=STYLE["ink"],
-                va="bottom", ha="left")
-    for s_, ls_ in ((st, "nominal"), (st_w, "weak")):
-        if s_ is None or s_.h_scan is None:
-            continue
-        bad = not s_.resonance_ok
-        ax.plot([s_.h_scan], [s_.z_peak_ohm], ls="none", marker="X" if bad else "v", ms=6,
-                color=STYLE["injected"] if bad else col, mec=STYLE["ink"], mew=0.5, zorder=6)
-        where = "" if s_.margin_pct is None else (
-            f", {abs(s_.margin_pct):.1f} % {'above' if s_.margin_pct > 0 else 'below'} the {ordinal(s_.nearest_order)}")
-        ax.annotate(f"{ls_}: h = {s_.h_scan:.2f}{where}", (s_.h_scan, s_.z_peak_ohm), xytext=(7, 4 if ls_ == "nominal" else -10),
-                    textcoords="offset points", fontsize=6.5, color=STYLE["injected"] if bad else STYLE["ink"],
-                    ha="left", va="bottom", zorder=7)
-    ax.set_xlim(1.0, h_hi)
-    _ylim_log(ax, curves, 1.0, h_hi, sc.h)
-    _order_ticks(ax, res, h_hi)
-    _log_ticks(ax, h_hi)
-    verdict = "inside" if not st.resonance_ok else "outside"
-    res_txt = (f"resonance h = {st.h_scan:.2f}, {verdict} the +-{margin:g} % band" if st.h_scan is not None
-               else "no resonance in the scan range")
-    _label_axes(ax, sc.bank.bus, f"Step {k}: {st.kvar_nameplate:g} kvar nameplate - {res_txt}")
-    ax.legend(frameon=False, loc="upper right")
+    p = StepScanPlot(ax, res, sc, weak)
+    p.show(k)
+    return p
+
 
 
 def draw_scan_compare(ax, res: StudyResult, plain: BankScan, detuned: BankScan, k: int | None = None) -> None:
@@ -243,8 +315,9 @@ def draw_scan_compare(ax, res: StudyResult, plain: BankScan, detuned: BankScan, 
     ax.legend(frameon=False, loc="upper right")
 
 
-def draw_spectrum(ax, h, v_pct, env_pct, limit_pct: float, limit_label: str, title: str) -> None:
-    """Harmonic voltage per order as bars against the individual limit.
+def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str,
+                  ylabel: str = "V_h [% of nominal]") -> None:
+    """Harmonic voltage (or current) per order as bars against the individual limit.
 
     Parameters
     ----------
@@ -253,33 +326,44 @@ def draw_spectrum(ax, h, v_pct, env_pct, limit_pct: float, limit_label: str, tit
     h : array_like
         Orders [unitless].
     v_pct : array_like
-        Harmonic voltage of the step shown [% of nominal fundamental].
+        Value of the step shown per order [% of the base named in ``ylabel``].
     env_pct : array_like or None
-        Highest value over all steps, drawn as markers [% of nominal fundamental].
-    limit_pct : float or None
-        Individual-harmonic limit [% of nominal fundamental].
+        Highest value over all steps, drawn as ticks [% of the same base].
+    limit_pct : float, array_like or None
+        Individual limit: one value for every order, or one per order (None or
+        NaN where none applies) [% of the same base].
     limit_label : str
         Legend text for the limit [unitless].
     title : str
         Axes title [unitless].
+    ylabel : str, optional
+        Axis label with its unit [unitless].
     """
     _style_axes(ax)
     h = np.asarray(h, float)
     v = np.asarray(v_pct, float)
-    over = (v > limit_pct) if limit_pct is not None else np.zeros(v.shape, bool)
+    if limit_pct is None:
+        lim = np.full(v.shape, np.nan)
+    else:
+        lim = np.broadcast_to(np.asarray([np.nan if x is None else x for x in np.atleast_1d(limit_pct)], float),
+                              v.shape)
+    over = np.nan_to_num(v - lim, nan=-1.0) > 0
     ax.bar(h, v, width=0.7, color=np.where(over, STYLE["injected"], STYLE["ink"]), label="step shown")
     if env_pct is not None:
         ax.plot(h, np.asarray(env_pct, float), ls="none", marker="_", ms=9, mew=1.4, color=STYLE["characteristic"],
                 label="highest of all steps")
-    if limit_pct is not None:
-        ax.axhline(limit_pct, color=STYLE["injected"], lw=1.0, ls="--", label=limit_label)
+    if limit_pct is not None and np.ndim(limit_pct) == 0:
+        ax.axhline(float(limit_pct), color=STYLE["injected"], lw=1.0, ls="--", label=limit_label)
+    elif np.any(np.isfinite(lim)):
+        ax.plot(h, lim, ls="none", marker="_", ms=12, mew=1.6, color=STYLE["injected"], label=limit_label)
     ax.set_xlim(0.5, max(float(h.max()) + 1.5, 15.0) if h.size else 15.0)
-    top = max([float(np.nanmax(v)) if v.size else 0.0, limit_pct or 0.0,
-               float(np.nanmax(env_pct)) if env_pct is not None and len(env_pct) else 0.0])
-    ax.set_ylim(0.0, 1.2 * top if top > 0 else 1.0)
+    vals = np.concatenate([v, lim, np.asarray(env_pct if env_pct is not None else [], float)])
+    top = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else 0.0
+    ax.set_ylim(0.0, 1.25 * top if top > 0 else 1.0)
+    ax.xaxis.set_major_locator(MultipleLocator(2.0 if (h.max() if h.size else 0) <= 30 else 5.0))
     ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
-    ax.set_ylabel("V_h [% of nominal]", color=STYLE["ink"])
-    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9)
+    ax.set_ylabel(ylabel, color=STYLE["ink"])
+    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=8.5)
     ax.legend(frameon=False, loc="upper right")
 
 
@@ -364,7 +448,8 @@ def draw_detuning_band(ax, n_tuned: float, p: float, h_parallel, steps, dominant
             label="parallel resonance with the supply, per step")
     xs = [lo, hi, n_tuned] + ([dominant] if dominant else []) + list(hp[np.isfinite(hp)])
     ax.set_xlim(max(1.0, min(xs) - 0.6), max(xs) + 0.8)
-    ax.set_ylim(y.min() - 0.7, y.max() + 0.7) if y.size else None
+    if y.size:
+        ax.set_ylim(y.min() - 0.7, y.max() + 0.7)
     ax.set_yticks(y)
     ax.invert_yaxis()
     ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
