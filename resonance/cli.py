@@ -90,8 +90,11 @@ def _check(args) -> int:
     out = OutputDir(args.out, protect=protect)
     try:
         res = run_study(case)
+        from .detuning import propose_detuning  # noqa: PLC0415
+
+        det = propose_detuning(case, res.extras["model"], res)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
-        data = to_dict(res, sha)
+        data = to_dict(res, sha, extra={("bank", name): {"detuning": d} for name, d in det.items()})
         out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
         from .tables import write_scan_tables  # noqa: PLC0415
         write_scan_tables(res, out)
@@ -121,6 +124,15 @@ def _check(args) -> int:
         print()
     for f in data["findings"]:
         print(f"FINDING: {f['message']}")
+    for b in data["banks"]:
+        d = b.get("detuning") or {}
+        rec = d.get("recommended")
+        if rec:
+            print(f"\nbank {b['name']}: proposed detuned design: tuning order {rec['tuning_order']:.2f} "
+                  f"(p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV, nameplate stages "
+                  f"{', '.join(f'{q:g}' for q in rec['steps_kvar'])} kvar")
+        if d.get("reason") and (rec or d.get("status") == "proposed"):
+            print(f"  {d['reason']}")
     for w in data["warnings"]:
         if not args.quiet:
             print(f"note: {w}")

@@ -974,8 +974,13 @@ def propose_detuning(case, model, result) -> dict:
                          sig[0] * (1.0 - st.band_margin_pct / 100.0) * math.sqrt(float(np.min(kc * kl))))
             p_star = math.ceil(10000.0 / n_star**2) / 100.0  # rounded up: the order stays at or below n*
             orders.append(1.0 / math.sqrt(p_star / 100.0))
+        trial = sorted(set(orders), reverse=True)
+        if st.recheck == "first":  # most promising first: inside the usual window, nearest its middle
+            h_low = sig[0] if sig else None
+            mid = 0.84 * h_low if h_low else 0.0
+            trial.sort(key=lambda n_: (round(_window_distance(n_, h_low), 6), abs(n_ - mid)))
         cands = []
-        for n_req in sorted(set(orders), reverse=True):
+        for n_req in trial:
             c = _candidate(case, model, bank, bm, scans, n_req, q_net_stage, sig, st, clock)
             cands.append(c)
             if st.recheck == "first" and c["qualified"]:

@@ -66,6 +66,22 @@ class PlantModel:
     sc_mva_supply_min: float | None = None
     x_r_supply_min: float | None = None
     notes: tuple = field(default_factory=tuple)
+    #: memo of load-flow sessions and solved voltages (the net never changes, only bank outputs)
+    cache: dict = field(default_factory=dict, repr=False)
+
+    def bank_voltages(self, bank_buses: dict, q_kvar: dict, weak: bool = False) -> np.ndarray:
+        """Bus voltages [pu] with banks at the given outputs [kvar], memoised (see :class:`LoadFlow`)."""
+        # outputs within 0.1 % of each other share a load flow (a detuned candidate built to
+        # deliver the plain bank's kvar differs only by nameplate rounding): the voltage error is
+        # about dQ / S_sc <= 0.001 Q / S_sc, below 1e-4 pu (derived from dV/V ~= Q / S_sc)
+        key = ("vm", weak, tuple(sorted(bank_buses.items())),
+               tuple(sorted((k, round(math.log(max(float(v), 1e-9)) / math.log(1.002))) for k, v in q_kvar.items())))
+        if key not in self.cache:
+            skey = ("lf", weak, tuple(sorted(bank_buses.items())))
+            if skey not in self.cache:
+                self.cache[skey] = LoadFlow(self, bank_buses, weak=weak)
+            self.cache[key] = self.cache[skey].vm_pu(q_kvar)
+        return self.cache[key].copy()
 
 
 def supply_impedance_pu(sc_mva: float, x_r: float, base_mva: float) -> tuple[float, float]:

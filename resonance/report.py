@@ -222,8 +222,16 @@ class _Limits:
     i_src: str
 
 
-def _limits(res: StudyResult, data: dict, bank: dict) -> _Limits:
+def _limits(res: StudyResult, data: dict, bank: dict, scen: str = "nominal") -> _Limits:
+    """Limits of a bank in one supply scenario.
+
+    The current limits depend on I_sc/I_L and so on the supply: for the weak
+    supply they are taken only from ``weak_supply.limits`` (none shown otherwise).
+    """
     lim = bank.get("limits") if isinstance(bank.get("limits"), dict) else {}
+    if scen != "nominal":
+        wl = (bank.get("weak_supply") or {}).get("limits")
+        lim = {**{k: v for k, v in lim.items() if k != "pcc_i_limits"}, **(wl if isinstance(wl, dict) else {})}
     dl = lim.get("duty_limits") if isinstance(lim.get("duty_limits"), dict) else None
     if dl:
         duty = {q: _num(dl.get(f"{q}_pct")) for q in DUTY_KEYS}
@@ -536,7 +544,7 @@ def report_tables(res: StudyResult, data: dict) -> list[Table]:
         lim = _limits(res, data, b)
         out.append(_summary_table(b, b["steps"], "nominal", lim))
         if b.get("weak_supply"):
-            out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", lim))
+            out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", _limits(res, data, b, "weak")))
     out += _input_tables(res, data)
     for b in data["banks"]:
         out += _spectrum_tables(b, _limits(res, data, b))
@@ -584,8 +592,9 @@ class _Doc:
         kw.setdefault("va", "top")
         self.fig.text(x_in / PAGE_W, self._fy(y_in), s, **kw)
 
-    def heading(self, s: str, size: float = 13, toc: bool = True, gap: float = 0.12) -> None:
-        self.ensure(0.9)
+    def heading(self, s: str, size: float = 13, toc: bool = True, gap: float = 0.12, keep: float = 0.0) -> None:
+        """Section heading; ``keep`` [in] of what follows must fit on the same page."""
+        self.ensure(0.9 + keep)
         if self.y > M_TOP + 0.01:
             self.y += gap
         self.text(M_LEFT, self.y, s, fontsize=size, weight="bold")
@@ -843,8 +852,8 @@ def _fig_specs(res: StudyResult, data: dict) -> dict[str, list]:
             def draw_sp(fig, r, panels=panels):
                 for ax, p in zip(_grid(fig, r, len(panels), 1, (0.72, 0.25, 0.5, 0.35)), panels):
                     rf.draw_spectrum(ax, *p)
-            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.8 * len(panels)), draw_sp,
-                                             2.8 * len(panels)))
+            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.6 * len(panels)), draw_sp,
+                                             2.6 * len(panels)))
         if _has_duty(bank):
             vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
             nums = [x["step"] for x in steps]
@@ -1087,6 +1096,7 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
         "Capacitor duty limits: " + (f"{dl.citation} - rms voltage {dl.v_rms:g}, crest voltage {dl.v_peak:g}, rms "
                                      f"current {dl.i_rms:g}, reactive power {dl.q:g} pu. {dl.note}." if dl else
                                      str(st.get("duty_limits"))),
+        *_current_limit_lines(data),
         "Summation of several sources: " + ("arithmetic sum of magnitudes (worst case)." if st.get("summation") ==
                                             "arithmetic" else "IEC 61000-3-6 summation law, exponents 1 (h < 5), "
                                             "1.4 (5-10), 2 (h > 10) (from memory)."),
@@ -1115,6 +1125,22 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
     mem.append(f"The +-{st.get('margin_pct'):g} % screening band around the orders of concern is common practice, "
                "not a limit of a standard.")
     return m, mem
+
+
+def _current_limit_lines(data: dict) -> list[str]:
+    out = []
+    for b in data["banks"]:
+        pi = (b.get("limits") or {}).get("pcc_i_limits")
+        if not isinstance(pi, dict):
+            continue
+        bits = [f"Current distortion limits (bank {b['name']}, nominal supply): IEEE Std 519 TDD "
+                f"{_s(pi.get('tdd_pct'))} % of I_L"]
+        if pi.get("isc_over_il") is not None:
+            bits.append(f"I_sc/I_L = {_fmt_any(pi.get('isc_over_il'))} (row {_s(pi.get('row'))})")
+        if pi.get("i_l_a") is not None:
+            bits.append(f"I_L = {_fmt_any(pi.get('i_l_a'))} A ({_s(pi.get('i_l_basis'))})")
+        out.append(", ".join(bits) + (f". Source: {pi['source']}." if pi.get("source") else "."))
+    return out
 
 
 def _builtin_notes(res: StudyResult) -> list[str]:
@@ -1231,6 +1257,10 @@ def _summary_pages(doc: _Doc, res: StudyResult, data: dict, tbl: dict) -> None:
         doc.bullets(other, size=7.2)
 
 
+def _first_h(specs: list) -> float:
+    return specs[0].page_h + 0.5 if specs else 0.0
+
+
 def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
     names: list[str] = []
     title = data["case"]["title"]
@@ -1275,14 +1305,14 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
         _step_pages(doc, res, sc, weak)
         names += _step_files(res, sc, weak, out)
 
-    doc.heading("4 Detuned bank compared with the plain bank")
+    doc.heading("4 Detuned bank compared with the plain bank", keep=_first_h(specs["compare"]))
     if specs["compare"]:
         for spec in specs["compare"]:
             place(spec)
     else:
         doc.para(f"Scan of a detuned candidate beside the plain bank: {NOT_EVALUATED}.")
 
-    doc.heading("5 Harmonic voltage distortion")
+    doc.heading("5 Harmonic voltage distortion", keep=_first_h(specs["spectra"]))
     if specs["spectra"]:
         doc.para("Bars: harmonic value of the step with the highest distortion; grey ticks: highest value over all "
                  "steps; red dashes: the IEEE 519 limit (red bars exceed it). Nominal supply.")
@@ -1294,7 +1324,7 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
         if t.name.startswith("table_spectrum_"):
             doc.table(t, size=6.8)
 
-    doc.heading("6 Capacitor duty")
+    doc.heading("6 Capacitor duty", keep=_first_h(specs["duty"]))
     if specs["duty"]:
         doc.para("Continuous duty of the capacitors per step, nominal supply, against the limits named "
                  "(dashed); red bars exceed a limit.")
@@ -1303,7 +1333,7 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
     else:
         doc.para(f"Capacitor duty (rms and crest voltage, rms current, reactive power): {NOT_EVALUATED}.")
 
-    doc.heading("7 Detuning recommendation")
+    doc.heading("7 Detuning recommendation", keep=_first_h(specs["band"]))
     det_tables = [t for t in tables if t.name.startswith("table_detuning_")]
     if specs["band"] or det_tables:
         for spec in specs["band"]:

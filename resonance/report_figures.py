@@ -47,7 +47,7 @@ RC = {
     "font.family": FONT,
     "font.size": 8.0,
     "pdf.fonttype": 3,
-    "svg.fonttype": "path",
+    "svg.fonttype": "none",
     "svg.hashsalt": "resonance-report",
     "svg.id": "resonance",
     "path.simplify": True,
@@ -89,7 +89,12 @@ def _log_ticks(ax, h_hi: float) -> None:
     """
     ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     ax.yaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
-    ax.yaxis.set_minor_formatter(NullFormatter())
+    def minor(v, _pos):
+        lo, hi = ax.get_ylim()
+        return f"{v:g}" if lo > 0 and math.log10(hi / lo) <= 2.6 else ""
+
+    ax.yaxis.set_minor_formatter(FuncFormatter(minor))
+    ax.tick_params(axis="y", which="minor", labelsize=6)
     ax.xaxis.set_major_locator(MultipleLocator(5.0 if h_hi > 16 else 1.0))
     ax.xaxis.set_minor_locator(NullLocator())
     ax.grid(False, which="minor")
@@ -98,7 +103,7 @@ def _log_ticks(ax, h_hi: float) -> None:
 def _label_axes(ax, bus: str, title: str) -> None:
     ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
     ax.set_ylabel(f"|Z| at bus {bus} [ohm]", color=STYLE["ink"])
-    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9)
+    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9, pad=13)
 
 
 def _ylim_log(ax, curves, lo_h, hi_h, h):
@@ -199,17 +204,18 @@ class StepScanPlot:
                                  textcoords="offset points", rotation=90, fontsize=6, color=STYLE["ink"],
                                  va="bottom", ha="left")
         self.marks, self.notes = [], []
-        for dy in (4, -10):
+        for y in (0.97, 0.905):
             (m,) = ax.plot([np.nan], [np.nan], ls="none", ms=6, mec=STYLE["ink"], mew=0.5, zorder=6)
-            t = ax.annotate("", (1.0, 1.0), xytext=(7, dy), textcoords="offset points", fontsize=6.5,
-                            ha="left", va="bottom", zorder=7)
+            t = ax.text(0.015, y, "", transform=ax.transAxes, fontsize=7, ha="left", va="top", zorder=7,
+                        bbox={"boxstyle": "square,pad=0.15", "facecolor": "white", "edgecolor": "none",
+                              "alpha": 0.85})
             self.marks.append(m)
             self.notes.append(t)
         ax.set_xlim(1.0, self.h_hi)
         _order_ticks(ax, res, self.h_hi)
         _log_ticks(ax, self.h_hi)
         _label_axes(ax, sc.bank.bus, "")
-        self.legend = ax.legend(frameon=False, loc="upper right")
+        self.legend = ax.legend(frameon=False, loc="lower right")
 
     def show(self, k: int) -> None:
         """Point the axes at step ``k`` (1..N) [unitless]."""
@@ -244,16 +250,16 @@ class StepScanPlot:
             m.set_markeredgecolor(STYLE["ink"])
             where = "" if s_.margin_pct is None else (
                 f", {abs(s_.margin_pct):.1f} % {'above' if s_.margin_pct > 0 else 'below'} "
-                f"the {ordinal(s_.nearest_order)}")
-            t.xy = (s_.h_scan, s_.z_peak_ohm)
-            t.set_text(f"{name}: h = {s_.h_scan:.2f}{where}")
+                f"the {s_.nearest_kind or ''} {ordinal(s_.nearest_order)}")
+            inside = f" - inside the +-{self.margin:g} % band" if bad else ""
+            t.set_text(f"{name} supply: resonance h = {s_.h_scan:.2f}{where}{inside}")
             t.set_color(STYLE["injected"] if bad else STYLE["ink"])
         _ylim_log(ax, curves, 1.0, self.h_hi, sc.h)
         verdict = "inside" if not st.resonance_ok else "outside"
         res_txt = (f"resonance h = {st.h_scan:.2f}, {verdict} the +-{self.margin:g} % band" if st.h_scan is not None
                    else "no resonance in the scan range")
         ax.set_title(f"Step {k}: {st.kvar_nameplate:g} kvar nameplate - {res_txt}", color=STYLE["ink"], loc="left",
-                     fontsize=9)
+                     fontsize=9, pad=13)
 
 
 def draw_scan_step(ax, res: StudyResult, sc: BankScan, k: int, weak: BankScan | None = None) -> StepScanPlot:
@@ -396,10 +402,10 @@ def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str) -> N
         bad = (v > lim) if lim is not None else np.zeros(v.shape, bool)
         ax.bar(x, np.nan_to_num(v), width=0.65, color=np.where(bad, STYLE["injected"], STYLE["ink"]))
         if lim is not None:
-            ax.axhline(lim, color=STYLE["injected"], lw=1.0, ls="--", label=f"{limit_name}: {lim:g} %")
-            ax.legend(frameon=False, loc="lower right")
+            ax.axhline(lim, color=STYLE["injected"], lw=1.0, ls="--", label=f"limit {lim:g} % ({limit_name})")
+            ax.legend(frameon=False, loc="upper left", borderaxespad=0.2)
         top = np.nanmax(np.append(v, lim if lim is not None else 0.0))
-        ax.set_ylim(0.0, 1.15 * top if np.isfinite(top) and top > 0 else 1.0)
+        ax.set_ylim(0.0, 1.4 * top if np.isfinite(top) and top > 0 else 1.0)
         ax.set_xticks(x)
         ax.set_xlabel("step [-]", color=STYLE["ink"])
         ax.set_title(ttl, color=STYLE["ink"], loc="left", fontsize=8)

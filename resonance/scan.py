@@ -11,13 +11,13 @@ re-evaluating the impedance on successively finer local grids.
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.sparse as sp
-import scipy.sparse.linalg as spla
 
 from .admittance import YPattern
+from .engine import SparseEngine, sparse_columns
 from .network import NetworkArrays
 
 __all__ = [
@@ -28,6 +28,8 @@ __all__ = [
     "find_peaks",
     "refine_peaks",
     "DENSE_MAX_BUSES",
+    "sparse_engine",
+    "woodbury_update",
 ]
 
 #: networks up to this many buses use batched dense solves, larger ones sparse LU
@@ -74,6 +76,36 @@ def _nudge(h: np.ndarray) -> np.ndarray:
     return h * (1.0 + 1e-9)
 
 
+#: engines built for a network, reused across calls (keyed by the arrays object itself)
+_ENGINES: "weakref.WeakKeyDictionary[NetworkArrays, dict]" = weakref.WeakKeyDictionary()
+
+
+def sparse_engine(arr: NetworkArrays, settings: ModelSettings = ModelSettings(),
+                  pattern: YPattern | None = None) -> SparseEngine:
+    """The sparse engine of a network (pattern, ordering, value map), built once and cached.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    settings : ModelSettings
+        Element models.
+    pattern : YPattern, optional
+        Precomputed pattern of ``arr``.
+
+    Returns
+    -------
+    SparseEngine
+        Engine for ``arr`` and ``settings`` [see :class:`resonance.engine.SparseEngine`].
+    """
+    per_arr = _ENGINES.setdefault(arr, {})
+    eng = per_arr.get(settings)
+    if eng is None:
+        eng = SparseEngine.build(arr, settings.r_model, settings.load_model, pattern)
+        per_arr[settings] = eng
+    return eng
+
+
 def impedance_columns(
     arr: NetworkArrays,
     h: np.ndarray,
@@ -82,6 +114,9 @@ def impedance_columns(
     diag_extra: np.ndarray | None = None,
     rows: np.ndarray | None = None,
     pattern: YPattern | None = None,
+    *,
+    method: str = "auto",
+    workers: int | None = None,
 ) -> np.ndarray:
     """Columns of the bus impedance matrix ``Z(h) = Y(h)^-1``.
 
@@ -101,6 +136,10 @@ def impedance_columns(
         Keep only these rows (all when None) [unitless].
     pattern : YPattern, optional
         Precomputed sparsity pattern.
+    method : {"auto", "dense", "sparse"}
+        Solver; "auto" picks dense for ``n <= DENSE_MAX_BUSES`` [unitless].
+    workers : int, optional
+        Processes for the sparse path (default: the CPUs available) [unitless].
 
     Returns
     -------
@@ -109,59 +148,48 @@ def impedance_columns(
 
     Notes
     -----
-    Dense batched solves (``numpy.linalg.solve`` over a stack) for small
-    networks; sparse LU with a fill-reducing ordering computed once and reused
-    at every order for larger ones.
+    ``Y(h) Z[:, cols] = E[:, cols]`` (unit injections).  Dense batched solves
+    (``numpy.linalg.solve`` over a stack of orders) for small networks; for
+    larger ones one sparse LU per order with the pattern, the fill-reducing
+    ordering and the value map computed once (:mod:`resonance.engine`).
     """
     h = np.atleast_1d(np.asarray(h, float))
     cols = np.asarray(cols, int)
-    pattern = pattern or YPattern.build(arr)
     n = arr.n_bus
     rsel = np.arange(n) if rows is None else np.asarray(rows, int)
-    out = np.empty((h.size, rsel.size, cols.size), complex)
-    if n <= DENSE_MAX_BUSES:
-        chunk = max(1, int(2e7 // max(n * n, 1)))
-        rhs = np.zeros((n, cols.size), complex)
-        rhs[cols, np.arange(cols.size)] = 1.0
-        for a in range(0, h.size, chunk):
-            hs = h[a:a + chunk]
-            de = None if diag_extra is None else diag_extra[a:a + chunk]
-            vals = pattern.values(arr, hs, de, settings.r_model, settings.load_model)
-            y = np.zeros((hs.size, n * n), complex)
-            y[:, pattern.rows * n + pattern.cols] = vals
-            y = y.reshape(hs.size, n, n)
-            try:
-                z = np.linalg.solve(y, np.broadcast_to(rhs, (hs.size, n, cols.size)))
-            except np.linalg.LinAlgError:
-                vals = pattern.values(arr, _nudge(hs), de, settings.r_model, settings.load_model)
-                y = np.zeros((hs.size, n * n), complex)
-                y[:, pattern.rows * n + pattern.cols] = vals
-                z = np.linalg.solve(y.reshape(hs.size, n, n), np.broadcast_to(rhs, (hs.size, n, cols.size)))
-            out[a:a + chunk] = z[:, rsel, :]
-        return out
-    return _sparse_columns(arr, h, cols, settings, diag_extra, rsel, pattern, out)
+    if method not in ("auto", "dense", "sparse"):
+        raise ValueError(f"unknown method {method!r}")
+    if method == "dense" or (method == "auto" and n <= DENSE_MAX_BUSES):
+        return _dense_columns(arr, h, cols, settings, diag_extra, rsel, pattern or YPattern.build(arr))
+    eng = sparse_engine(arr, settings, pattern)
+    return sparse_columns(eng, h, cols, rsel, diag_extra, workers=workers)
 
 
-def _sparse_columns(arr, h, cols, settings, diag_extra, rsel, pattern, out):
-    """Sparse LU per order; the COLAMD column ordering of the first order is reused."""
+def _dense_columns(arr, h, cols, settings, diag_extra, rsel, pattern):
+    """Batched dense solves over chunks of orders (about 2e7 matrix entries per chunk)."""
     n = arr.n_bus
+    out = np.empty((h.size, rsel.size, cols.size), complex)
+    chunk = max(1, int(2e7 // max(n * n, 1)))
     rhs = np.zeros((n, cols.size), complex)
     rhs[cols, np.arange(cols.size)] = 1.0
-    perm = None
-    chunk = max(1, int(2e7 // max(pattern.rows.size, 1)))
+    flat = pattern.rows * n + pattern.cols
+
+    def stack(hs, de):
+        vals = pattern.values(arr, hs, de, settings.r_model, settings.load_model)
+        y = np.zeros((hs.size, n * n), complex)
+        y[:, flat] = vals
+        return y.reshape(hs.size, n, n)
+
     for a in range(0, h.size, chunk):
         hs = h[a:a + chunk]
         de = None if diag_extra is None else diag_extra[a:a + chunk]
-        vals = pattern.values(arr, hs, de, settings.r_model, settings.load_model)
-        for i in range(hs.size):
-            y = sp.csr_matrix((vals[i], pattern.cols, pattern.indptr), shape=(n, n)).tocsc()
-            if perm is None:
-                perm = spla.splu(y, permc_spec="COLAMD").perm_c
-            # (Y P) x' = b  with  x = P x',  i.e.  x[perm] = x'
-            lu = spla.splu(y[:, perm], permc_spec="NATURAL")
-            x = np.empty((n, cols.size), complex)
-            x[perm] = lu.solve(rhs)
-            out[a + i] = x[rsel, :]
+        b = np.broadcast_to(rhs, (hs.size, n, cols.size))
+        try:
+            z = np.linalg.solve(stack(hs, de), b)
+        except np.linalg.LinAlgError:
+            # a lossless network is exactly singular at its own resonances
+            z = np.linalg.solve(stack(_nudge(hs), de), b)
+        out[a:a + chunk] = z[:, rsel, :]
     return out
 
 
@@ -199,6 +227,48 @@ def step_update(z_cols: np.ndarray, k_row: int, k_col: int, y_s: np.ndarray) -> 
         return z_cols - zik[:, :, None] * (g[:, None, None] * zkj[:, None, :])
     g = y_s / (1.0 + y_s * zkk[:, None])  # (n_h, s)
     return z_cols[:, None, :, :] - g[:, :, None, None] * zik[:, None, :, None] * zkj[:, None, None, :]
+
+
+def woodbury_update(z_cols: np.ndarray, k_rows: np.ndarray, k_cols: np.ndarray, y_add: np.ndarray) -> np.ndarray:
+    """Impedance columns after adding shunt admittances at several buses at once (Woodbury).
+
+    Parameters
+    ----------
+    z_cols : ndarray, shape (n_h, r, m)
+        Change-free impedance rows x columns; must contain the rows and the
+        columns of every changed bus [pu].
+    k_rows, k_cols : ndarray of int, shape (q,)
+        Positions of the changed buses among the rows and among the columns [unitless].
+    y_add : ndarray, shape (n_h, q)
+        Admittance added at each changed bus [pu].
+
+    Returns
+    -------
+    ndarray, shape (n_h, r, m)
+        Updated impedances [pu].
+
+    Notes
+    -----
+    With ``D = diag(y)`` and ``K`` the changed buses,
+    ``Z' = Z - Z[:, K] D (I + Z[K, K] D)^-1 Z[K, :]``, i.e.
+    ``Z' = Z - Z[:, K] (I + D Z[K, K])^-1 D Z[K, :]`` (exact for a rank-q change).
+
+    References
+    ----------
+    M. A. Woodbury, "Inverting modified matrices", Memorandum Report 42,
+    Statistical Research Group, Princeton University, 1950; W. W. Hager,
+    "Updating the inverse of a matrix", SIAM Review 31(2), 1989.
+    """
+    k_rows = np.asarray(k_rows, int)
+    k_cols = np.asarray(k_cols, int)
+    y = np.asarray(y_add, complex)
+    z_ik = z_cols[:, :, k_cols]  # (n_h, r, q)
+    z_kj = z_cols[:, k_rows, :]  # (n_h, q, m)
+    z_kk = z_cols[:, k_rows][:, :, k_cols]  # (n_h, q, q)
+    q = k_rows.size
+    m_ = np.eye(q)[None, :, :] + y[:, :, None] * z_kk  # I + D Z_KK
+    w = np.linalg.solve(m_, y[:, :, None] * z_kj)  # (I + D Z_KK)^-1 D Z_K:
+    return z_cols - z_ik @ w
 
 
 def find_peaks(h: np.ndarray, z_abs: np.ndarray, min_rel_prominence: float = 0.02) -> list[np.ndarray]:

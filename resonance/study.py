@@ -340,14 +340,14 @@ def run_study(case: Case, model=None) -> StudyResult:
     for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
         if a is None:
             continue
-        lf = netmodel.LoadFlow(model, {b.name: b.bus for b in banks}, weak=(scenario == "weak"))
+        buses = {b.name: b.bus for b in banks}
         for b in banks:
             base_q = {o.name: full[o.name] for o in banks if o is not b} if st.other_banks == "full" else {}
             v = np.ones(b.n_steps)
             for s in range(b.n_steps):
                 q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
                 try:
-                    v[s] = lf.vm_pu({**base_q, b.name: q})[b.index]
+                    v[s] = model.bank_voltages(buses, {**base_q, b.name: q}, weak=(scenario == "weak"))[b.index]
                 except ModelError as e:
                     warnings_.append(f"bank {b.name} step {s + 1} ({scenario}): {e}; nominal voltage assumed")
             vm[(b.name, scenario)] = v
@@ -381,7 +381,10 @@ def run_study(case: Case, model=None) -> StudyResult:
             assessments.append(assess_bank(case, a, b, inj, vm[(b.name, scenario)], pcc, float(s_pcc), settings, scenario,
                                            diag_extra=extra))
     try:
-        sc_iec = netmodel.iec60909_sc_mva(model, sorted({b.bus for b in banks} | {pcc_name}))
+        key = ("iec60909", tuple(sorted({b.bus for b in banks} | {pcc_name})))
+        if key not in model.cache:
+            model.cache[key] = netmodel.iec60909_sc_mva(model, list(key[1]))
+        sc_iec = dict(model.cache[key])
     except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
         sc_iec = {}
         warnings_.append(f"IEC 60909 cross-check not available ({type(e).__name__})")

@@ -377,3 +377,36 @@ def test_settings_defaults_and_overrides():
     with pytest.raises(InputError) as ei:
         detuning_settings(SimpleNamespace(source_file="c.toml", detuning={"cap_tolerance_pct": [5, 10]}))
     assert ei.value.problems[0].field == "detuning.cap_tolerance_pct" and ei.value.problems[0].file == "c.toml"
+
+
+def test_reactor_figures_from_bank_currents():
+    from resonance.detuning import _reactor_figures
+
+    q_np = np.array([50.0, 50.0])
+    rt = detuned_step(q_np, 0.525, 0.0567, 60.0, 0.48)
+    st = DetuningSettings(reactor_loss_w_per_kvar=6.0)
+    rows = [{"bank_i_rms_a": 70.0, "i_bank_h_a": {"5": 30.0, "7": 5.0}},
+            {"bank_i_rms_a": 130.0, "i_bank_h_a": {"5": 50.0, "7": 8.0}}]
+    status = {"scenarios": {"nominal": {"steps": rows}}}
+    got = _reactor_figures(status, q_np, rt, 0.0567, 0.48, 50.0, st)
+    i1 = float(rt.q_net_kvar[0]) / (math.sqrt(3) * 0.48)  # derived: I = Q / (sqrt3 U)
+    # derived: stage 1 carries all of step 1 and half of step 2; stage 2 half of step 2
+    assert got[0]["i_rms_max_a"] == pytest.approx(70.0, rel=1e-6)
+    assert got[1]["i_rms_max_a"] == pytest.approx(65.0, rel=1e-6)
+    assert got[0]["i_h_max_a"]["5"] == pytest.approx(30.0, rel=1e-6)
+    assert got[0]["i1_a"] == pytest.approx(i1, rel=1e-4)
+    # losses scale with the rms current squared (copper losses, derived); W/kvar from the maker (setting)
+    assert got[0]["loss_w_duty"] == pytest.approx(6.0 * rt.q_net_kvar[0] * (70.0 / i1) ** 2, rel=1e-3)
+    # linearity: crest / sqrt2 = arithmetic sum of rms magnitudes (derived) against K x I_N
+    fund = math.sqrt(70.0**2 - 30.0**2 - 5.0**2)
+    assert got[0]["i_crest_over_sqrt2_a"] == pytest.approx(fund + 35.0, rel=1e-4)
+    assert got[0]["linearity_ok"] == (fund + 35.0 <= 1.8 * i1)
+
+
+def test_demo_proposal_is_plain_json(demo):
+    import json
+
+    text = json.dumps(demo[3])
+    back = json.loads(text)
+    assert set(back["PFC-1"]) >= {"recommended", "reason", "candidates", "rearrangement", "settings"}
+    assert set(back["PFC-1"]["recommended"]) >= {"tuning_order", "detuning_pct", "rated_kv", "steps_kvar"}

@@ -104,7 +104,7 @@ RULES = [
      "between 0 and 200"),
     ("spectrum empty", SMALL_CASE.replace(SOURCE, "spectrum = {}"), "harmonic_source[0].spectrum", "empty"),
     ("spectrum order not integer", SMALL_CASE.replace(SOURCE, 'spectrum = {"5.5" = 3.0}'),
-     "harmonic_source[0].spectrum", "integer"),
+     "harmonic_source[0].spectrum.5.5", "integer"),
     ("spectrum value a string", SMALL_CASE.replace(SOURCE, 'spectrum = {5 = "20"}'),
      "harmonic_source[0].spectrum.5", "valid number"),
     ("spectrum a number", SMALL_CASE.replace(SOURCE, "spectrum = 5"), "harmonic_source[0].spectrum",
