@@ -4,6 +4,11 @@ The case file is written by hand by an engineer in engineering units.  This
 module turns it into a validated, frozen :class:`Case`; every problem found is
 reported at once as an :class:`~resonance.errors.InputError` whose lines name
 the file, the field (e.g. ``transformer[0].z_pct``) and what is wrong.
+
+Likely mistakes that still make a valid case (a stage of 0.1 kvar, a bank
+larger than its transformer, voltages typical of the other supply frequency)
+are not errors: :func:`case_hints` (also ``Case.hints``) returns them as
+``InputProblem`` lines for the caller to print as warnings.
 """
 
 from __future__ import annotations
@@ -590,6 +595,17 @@ def check_case(case: Case) -> list[InputProblem]:
     -------
     list of InputProblem
         Empty when the case is consistent.
+
+    Notes
+    -----
+    Rules: unique names per table, and bank names that give distinct output
+    file names; no cable with zero series impedance; demand given once; a
+    supply (or a network file); every named bus exists (with the closest name
+    as a hint) and is connected to the supply; transformer windings and cables
+    match the voltages of their buses (10 %); bank rating 0.85 to 1.6 times its
+    bus voltage (a value in volts is named as such); a bank not below the
+    short-circuit power at its bus (``h_r = sqrt(S_sc/Q) <= 1``); harmonic
+    orders and angles within the scan and with a magnitude.
     """
     file = case.source_file
     probs = _names_unique(case, file)
@@ -796,8 +812,9 @@ def case_hints(case: Case) -> tuple[InputProblem, ...]:
     Hints: a stage below 1 kvar (Mvar given as kvar); a bank larger than the
     transformers feeding its bus; a bank whose switching would raise the
     voltage by more than 10 % (``dV/V ~= Q/S_sc``); nominal voltages typical of
-    the other supply frequency; a transformer or harmonic source under
-    10 kVA (MVA given as kVA).
+    the other supply frequency; a transformer under 10 kVA or a harmonic
+    source under 1 kVA (MVA given as kVA); a built-in spectrum with orders
+    above ``h_max`` (left out of the study).
     """
     file = case.source_file
     out: list[InputProblem] = []
@@ -816,6 +833,17 @@ def case_hints(case: Case) -> tuple[InputProblem, ...]:
         if hs.kva < 1.0:
             out.append(InputProblem(file, f"harmonic_source[{i}].kva", f"{hs.kva:g} kVA looks like a value in MVA "
                                     f"(give kVA, e.g. {hs.kva * 1000:g})"))
+    from .spectra import BUILTIN_SPECTRA  # noqa: PLC0415  (pure data; imported late to keep case light)
+
+    for i, hs in enumerate(case.harmonic_source):
+        named = BUILTIN_SPECTRA.get(hs.spectrum) if isinstance(hs.spectrum, str) else None
+        if named is not None:
+            above = [int(h) for h in named.h if h > case.study.h_max]
+            if above:
+                out.append(InputProblem(file, f"harmonic_source[{i}].spectrum",
+                                        f"{hs.spectrum!r} has {len(above)} orders above h_max = "
+                                        f"{case.study.h_max:g} ({above[0]} to {above[-1]}); they are left out of "
+                                        "the study"))
     if case.network is None and case.supply is not None:
         kv, vprobs = bus_voltages_kv(case)
         for i, bk in enumerate(case.bank):

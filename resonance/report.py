@@ -9,14 +9,20 @@ until then.
 Keys read, beyond those :func:`~resonance.results.to_dict` always writes
 ---------------------------------------------------------------------------
 per step (``banks[].steps[]`` and ``banks[].weak_supply.steps[]``):
-    ``thd_v_pct`` (THD at the bank bus [%]), ``thd_v_pcc_pct`` (or
-    ``pcc_thd_v_pct``, or ``pcc.thd_v_pct``) (THD at the PCC [%]),
+    ``thd_v_pct`` (bank bus) and ``thd_v_pcc_pct`` (or ``pcc_thd_v_pct``,
+    ``pcc.thd_v_pct``) [% of nominal], ``tdd_pct`` [% of I_L],
     ``cap_v_rms_pct``, ``cap_v_peak_pct``, ``cap_i_rms_pct``, ``cap_kvar_pct``
-    [% of rating], ``duty_ok`` [bool]; per-order voltages either as
-    ``harmonics`` / ``per_order``: ``[{"h", "v_bus_pct" | "v_pct", "v_pcc_pct"}]``
-    or as ``v_h_pct`` / ``v_pcc_h_pct``: ``{order: pct}`` [% of nominal].
+    [% of rating], ``duty_ok``, ``pcc_voltage_ok``, ``pcc_current_ok`` [bool];
+    per order ``harmonics[]``: ``h``, ``v_bank_pct`` (or ``v_bus_pct``),
+    ``v_pcc_pct`` [% of nominal], ``i_supply_pct_of_il``, ``i_limit_pct_of_il``
+    [% of I_L] (all further scalar keys go to the long CSV).
 per bank (``banks[]``):
-    ``detuning.recommended`` ``{tuning_order, detuning_pct, rated_kv, steps_kvar, ...}``,
+    ``limits.duty_limits`` {name, v_rms_pct, v_peak_pct, i_rms_pct, kvar_pct},
+    ``limits.pcc_v_limits`` {individual_pct, thd_pct, source},
+    ``limits.pcc_i_limits`` {tdd_pct, row, isc_over_il, i_l_a, i_l_basis, source}
+    (looked up from the settings when absent; current limits of the weak supply
+    only from ``weak_supply.limits``), ``bank_off.thd_v_pct``,
+    ``detuning.recommended`` {tuning_order, detuning_pct, rated_kv, steps_kvar, ...},
     ``detuning.candidates[]`` (any scalar keys; shown as a table).
 study extras (``res.extras``):
     a detuned candidate's :class:`~resonance.study.BankScan` (found by type
@@ -419,7 +425,8 @@ def _input_tables(res: StudyResult, data: dict) -> list[Table]:
                     Column("X/R", "-")),
                    tuple((x.name, x.hv_bus, x.lv_bus, x.kva, x.hv_kv, x.lv_kv, x.z_pct, x.x_r) for x in c.transformer)))
     t.append(Table("table_input_cables.csv", "Cables and lines",
-                   (Column("name", "", _s, "left"), Column("from bus", "", _s, "left"), Column("to bus", "", _s, "left"),
+                   (Column("name", "", _s, "left"), Column("from bus", "", _s, "left"),
+                    Column("to bus", "", _s, "left"),
                     Column("length", "m"), Column("R", "ohm/km"), Column("X", "ohm/km"), Column("C", "nF/km"),
                     Column("in\nparallel", "-")),
                    tuple((x.name, x.from_bus, x.to_bus, x.length_m, x.r_ohm_per_km, x.x_ohm_per_km, x.c_nf_per_km,
@@ -1043,7 +1050,8 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
                                                                             set()).add(f.get("step"))
         parts = []
         for scen in sorted(by, key=lambda x: (x != "nominal", x)):
-            items = ", ".join(f"{w} (step{'s' if len(k) > 1 else ''} {_steps_list(sorted(x for x in k if x is not None))})"
+            items = ", ".join(f"{w} (step{'s' if len(k) > 1 else ''} "
+                              f"{_steps_list(sorted(x for x in k if x is not None))})"
                               for w, k in sorted(by[scen].items()))
             parts.append(f"{scen} supply - {items}")
         out.append(f"Verdict: the bank as specified does not pass the screening; {len(finds)} finding(s): "
@@ -1078,7 +1086,8 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
                    if data["supply"].get("sc_mva_min") else ""),
         "Transformers: X = (Z%/100) V^2/S_T, proportional to h; cables and lines: series R + jX per km with the "
         "shunt capacitance (pi section).",
-        f"Resistance model ({st.get('resistance_model')}): {_R_MODEL.get(st.get('resistance_model'), st.get('resistance_model'))}.",
+        f"Resistance model ({st.get('resistance_model')}): "
+        f"{_R_MODEL.get(st.get('resistance_model'), st.get('resistance_model'))}.",
         f"Load model ({st.get('load_model')}): {_L_MODEL.get(st.get('load_model'), st.get('load_model'))}.",
         "Capacitors: constant capacitance from the nameplate kvar at the rated voltage (Q = Q_R (U/U_R)^2); detuned "
         "steps with a series reactor p = X_L/X_C of the given X/R. Delivered kvar uses the load-flow bus voltage "
@@ -1296,9 +1305,9 @@ def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
         doc.new_page()
         doc.heading(f"3 Frequency scans - bank {sc.bank.name}")
         doc.para("Driving-point impedance magnitude at the bank bus against harmonic order. Shaded: the "
-                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern (darker, with a "
-                 "solid red line: injected or background order; dashed grey: characteristic order; numbers along "
-                 "the top edge). Markers: resonance of each step (X: inside a band). Dotted: bank off.")
+                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern, which are the "
+                 "ticks of the h axis (red, solid line: injected or background order; grey, dashed: characteristic "
+                 "order only). Markers: resonance of each step (X: inside a band). Dotted: bank off.")
         for spec in specs["overlay"]:
             if spec.name.startswith(f"fig_scan_{_safe(sc.bank.name)}_"):
                 place(spec)

@@ -82,28 +82,23 @@ def step_color(k: int, n: int):
 
 
 def _log_ticks(ax, h_hi: float) -> None:
-    """Plain-number tick labels (no mathtext: faster, and reads as ohms), few ticks, no minor grid.
+    """Plain-number |Z| labels on decades (no mathtext), unlabelled 2-5 minor ticks, no minor grid.
 
-    Tick and grid artists dominate the drawing time of a scan; the orders of
-    concern are labelled along the top edge instead.
+    Text artists dominate the drawing time of a scan, so labels are kept few:
+    the orders of concern label the h axis (:func:`_order_ticks`).
     """
     ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     ax.yaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
-    def minor(v, _pos):
-        lo, hi = ax.get_ylim()
-        return f"{v:g}" if lo > 0 and math.log10(hi / lo) <= 2.6 else ""
-
-    ax.yaxis.set_minor_formatter(FuncFormatter(minor))
-    ax.tick_params(axis="y", which="minor", labelsize=6)
-    ax.xaxis.set_major_locator(MultipleLocator(5.0 if h_hi > 16 else 1.0))
+    ax.yaxis.set_minor_formatter(NullFormatter())
     ax.xaxis.set_minor_locator(NullLocator())
     ax.grid(False, which="minor")
+    ax.grid(False, axis="x")
 
 
 def _label_axes(ax, bus: str, title: str) -> None:
     ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
     ax.set_ylabel(f"|Z| at bus {bus} [ohm]", color=STYLE["ink"])
-    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9, pad=13)
+    ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=9)
 
 
 def _ylim_log(ax, curves, lo_h, hi_h, h):
@@ -115,13 +110,16 @@ def _ylim_log(ax, curves, lo_h, hi_h, h):
 
 
 def _order_ticks(ax, res: StudyResult, h_hi: float) -> None:
-    """Order numbers along the top edge of a scan axes."""
+    """The orders of concern as the ticks of the h axis, injected/background ones in red."""
     inj = set(res.orders.injected) | set(res.orders.background)
-    for h, _kind in res.orders.all():
-        if h <= h_hi:
-            ax.annotate(str(h), (h, 1.0), xycoords=("data", "axes fraction"), xytext=(0, 2),
-                        textcoords="offset points", ha="center", va="bottom", fontsize=6,
-                        color=STYLE["injected"] if h in inj else STYLE["characteristic"])
+    hs = [h for h, _kind in res.orders.all() if h <= h_hi]
+    if not hs:
+        ax.xaxis.set_major_locator(MultipleLocator(5.0 if h_hi > 16 else 1.0))
+        return
+    ax.set_xticks(hs, [str(h) for h in hs])
+    for h, lab in zip(hs, ax.get_xticklabels()):
+        lab.set_color(STYLE["injected"] if h in inj else STYLE["characteristic"])
+    ax.tick_params(axis="x", labelsize=7)
 
 
 def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
@@ -152,8 +150,8 @@ def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
                     color=col if st.resonance_ok else STYLE["injected"], mec=STYLE["ink"], mew=0.4, zorder=5)
     ax.set_xlim(1.0, h_max)
     _ylim_log(ax, list(sc.z_ohm), 1.0, h_max, sc.h)
-    _order_ticks(ax, res, h_max)
     _log_ticks(ax, h_max)
+    _order_ticks(ax, res, h_max)
     _label_axes(ax, sc.bank.bus, title)
     ax.legend(frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
 
@@ -212,8 +210,8 @@ class StepScanPlot:
             self.marks.append(m)
             self.notes.append(t)
         ax.set_xlim(1.0, self.h_hi)
-        _order_ticks(ax, res, self.h_hi)
         _log_ticks(ax, self.h_hi)
+        _order_ticks(ax, res, self.h_hi)
         _label_axes(ax, sc.bank.bus, "")
         self.legend = ax.legend(frameon=False, loc="lower right")
 
@@ -259,7 +257,7 @@ class StepScanPlot:
         res_txt = (f"resonance h = {st.h_scan:.2f}, {verdict} the +-{self.margin:g} % band" if st.h_scan is not None
                    else "no resonance in the scan range")
         ax.set_title(f"Step {k}: {st.kvar_nameplate:g} kvar nameplate - {res_txt}", color=STYLE["ink"], loc="left",
-                     fontsize=9, pad=13)
+                     fontsize=9)
 
 
 def draw_scan_step(ax, res: StudyResult, sc: BankScan, k: int, weak: BankScan | None = None) -> StepScanPlot:
@@ -315,8 +313,8 @@ def draw_scan_compare(ax, res: StudyResult, plain: BankScan, detuned: BankScan, 
                 label=f"detuned p = {p_pct:.3g} % (n = {1 / math.sqrt(detuned.bank.p):.2f}), step {kd}")
     ax.set_xlim(1.0, h_max)
     _ylim_log(ax, [plain.z_ohm[0], plain.z_ohm[kp], detuned.z_ohm[kd]], 1.0, h_max, plain.h)
-    _order_ticks(ax, res, h_max)
     _log_ticks(ax, h_max)
+    _order_ticks(ax, res, h_max)
     _label_axes(ax, plain.bank.bus, f"Bank {plain.bank.name}: plain and detuned, full bank in service")
     ax.legend(frameon=False, loc="upper right")
 

@@ -18,6 +18,7 @@ import numpy as np
 
 from .admittance import YPattern
 from .engine import SparseEngine, sparse_columns
+from .grid import AdaptiveScan, adaptive_scan, golden_refine, peak_brackets
 from .network import NetworkArrays
 
 __all__ = [
@@ -28,12 +29,17 @@ __all__ = [
     "find_peaks",
     "refine_peaks",
     "DENSE_MAX_BUSES",
+    "impedance_columns_dh",
     "sparse_engine",
     "woodbury_update",
+    "driving_point_steps",
+    "step_peaks",
+    "StepPeaks",
 ]
 
 #: networks up to this many buses use batched dense solves, larger ones sparse LU
-DENSE_MAX_BUSES = 120
+#: (crossover measured on this 2-core machine: docs/performance.md)
+DENSE_MAX_BUSES = 100
 
 
 @dataclass(frozen=True)
@@ -153,44 +159,103 @@ def impedance_columns(
     larger ones one sparse LU per order with the pattern, the fill-reducing
     ordering and the value map computed once (:mod:`resonance.engine`).
     """
+    return _columns(arr, h, cols, settings, diag_extra, rows, pattern, method, workers, False, None)
+
+
+def impedance_columns_dh(
+    arr: NetworkArrays,
+    h: np.ndarray,
+    cols: np.ndarray,
+    settings: ModelSettings = ModelSettings(),
+    diag_extra: np.ndarray | None = None,
+    rows: np.ndarray | None = None,
+    pattern: YPattern | None = None,
+    *,
+    diag_extra_dh: np.ndarray | None = None,
+    method: str = "auto",
+    workers: int | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Impedance columns and their derivative with respect to the harmonic order.
+
+    Parameters
+    ----------
+    arr, h, cols, settings, diag_extra, rows, pattern, method, workers
+        As for :func:`impedance_columns`.
+    diag_extra_dh : ndarray, shape (n_h, n), optional
+        ``d(diag_extra)/dh`` [pu].
+
+    Returns
+    -------
+    (z, dz) : tuple of ndarray, each shape (n_h, len(rows) or n, m)
+        ``Z[:, rows, cols]`` [pu] and ``dZ/dh`` [pu].
+
+    Notes
+    -----
+    ``dZ/dh = -Z (dY/dh) Z`` (derivative of a matrix inverse); the rows come
+    from the transposed system ``Y^T W = E_rows``, so the same factorisation
+    serves both.
+
+    References
+    ----------
+    G. H. Golub, C. F. Van Loan, *Matrix Computations*, 4th ed., Johns Hopkins
+    2013, sec. 2.6 (perturbation of a matrix inverse).
+    """
+    return _columns(arr, h, cols, settings, diag_extra, rows, pattern, method, workers, True, diag_extra_dh)
+
+
+def _columns(arr, h, cols, settings, diag_extra, rows, pattern, method, workers, derivative, diag_extra_dh):
     h = np.atleast_1d(np.asarray(h, float))
     cols = np.asarray(cols, int)
     n = arr.n_bus
     rsel = np.arange(n) if rows is None else np.asarray(rows, int)
     if method not in ("auto", "dense", "sparse"):
         raise ValueError(f"unknown method {method!r}")
-    if method == "dense" or (method == "auto" and n <= DENSE_MAX_BUSES):
-        return _dense_columns(arr, h, cols, settings, diag_extra, rsel, pattern or YPattern.build(arr))
     eng = sparse_engine(arr, settings, pattern)
-    return sparse_columns(eng, h, cols, rsel, diag_extra, workers=workers)
+    if method == "dense" or (method == "auto" and n <= DENSE_MAX_BUSES):
+        z, dz = _dense_columns(eng, h, cols, diag_extra, rsel, derivative, diag_extra_dh)
+        return (z, dz) if derivative else z
+    return sparse_columns(eng, h, cols, rsel, diag_extra, workers=workers,
+                          derivative=derivative, diag_extra_dh=diag_extra_dh)
 
 
-def _dense_columns(arr, h, cols, settings, diag_extra, rsel, pattern):
-    """Batched dense solves over chunks of orders (about 2e7 matrix entries per chunk)."""
-    n = arr.n_bus
+def _dense_columns(eng: SparseEngine, h, cols, diag_extra, rsel, derivative, diag_extra_dh):
+    """Batched dense solves over chunks of orders (about 2e7 matrix entries per chunk).
+
+    The matrix is the engine's ordered ``P^T Y P`` scattered into a dense stack.
+    """
+    n = eng.n
     out = np.empty((h.size, rsel.size, cols.size), complex)
+    dout = np.empty_like(out) if derivative else None
     chunk = max(1, int(2e7 // max(n * n, 1)))
+    col_of = np.repeat(np.arange(n), np.diff(eng.indptr))
+    flat = eng.indices.astype(np.int64) * n + col_of  # row-major position in the ordered matrix
     rhs = np.zeros((n, cols.size), complex)
-    rhs[cols, np.arange(cols.size)] = 1.0
-    flat = pattern.rows * n + pattern.cols
+    rhs[eng.iperm[cols], np.arange(cols.size)] = 1.0
+    prow = eng.iperm[rsel]
+    e_rows = np.zeros((n, rsel.size), complex)
+    e_rows[prow, np.arange(rsel.size)] = 1.0
 
-    def stack(hs, de):
-        vals = pattern.values(arr, hs, de, settings.r_model, settings.load_model)
-        y = np.zeros((hs.size, n * n), complex)
-        y[:, flat] = vals
-        return y.reshape(hs.size, n, n)
+    def dense(data):
+        y = np.zeros((data.shape[0], n * n), complex)
+        y[:, flat] = data
+        return y.reshape(data.shape[0], n, n)
 
     for a in range(0, h.size, chunk):
         hs = h[a:a + chunk]
         de = None if diag_extra is None else diag_extra[a:a + chunk]
-        b = np.broadcast_to(rhs, (hs.size, n, cols.size))
+        y = dense(eng.values(hs, de))
         try:
-            z = np.linalg.solve(stack(hs, de), b)
+            x = np.linalg.solve(y, np.broadcast_to(rhs, (hs.size, n, cols.size)))
         except np.linalg.LinAlgError:
             # a lossless network is exactly singular at its own resonances
-            z = np.linalg.solve(stack(_nudge(hs), de), b)
-        out[a:a + chunk] = z[:, rsel, :]
-    return out
+            y = dense(eng.values(_nudge(hs), de))
+            x = np.linalg.solve(y, np.broadcast_to(rhs, (hs.size, n, cols.size)))
+        out[a:a + chunk] = x[:, prow, :]
+        if derivative:
+            w = np.linalg.solve(np.swapaxes(y, 1, 2), np.broadcast_to(e_rows, (hs.size, n, rsel.size)))
+            dy = dense(eng.values_dh(hs, None if diag_extra_dh is None else diag_extra_dh[a:a + chunk]))
+            dout[a:a + chunk] = -(np.swapaxes(w, 1, 2) @ (dy @ x))
+    return out, dout
 
 
 def step_update(z_cols: np.ndarray, k_row: int, k_col: int, y_s: np.ndarray) -> np.ndarray:
@@ -335,3 +400,140 @@ def refine_peaks(fun, h_peaks: np.ndarray, half_width: float, levels: int = 3, p
         z_c = zz[np.arange(h_c.size), j]
         w = w * 2.0 / (points - 1)
     return h_c, z_c
+
+
+def _central_dh(fun, h: np.ndarray) -> np.ndarray:
+    """Central difference ``(f(h (1+e)) - f(h (1-e))) / (2 h e)``, ``e = 1e-6`` [unit per unitless]."""
+    eps = 1e-6 * h
+    fp = np.asarray(fun(h + eps), complex)
+    fm = np.asarray(fun(h - eps), complex)
+    return (fp - fm) / (2.0 * eps.reshape((-1,) + (1,) * (fp.ndim - 1)))
+
+
+def driving_point_steps(arr: NetworkArrays, h: np.ndarray, bus: int, step_admittance,
+                        settings: ModelSettings = ModelSettings(), extra=None,
+                        pattern: YPattern | None = None, workers: int | None = None,
+                        derivative: bool = False):
+    """Driving-point impedance at a bank bus with the bank off and with each step in.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network without the studied bank [pu].
+    h : ndarray, shape (n_h,)
+        Orders [unitless].
+    bus : int
+        Bank bus [unitless].
+    step_admittance : callable
+        ``step_admittance(h) -> Y`` of shape (n_h, N), the bank admittance with
+        steps 1..N in service [pu].
+    settings : ModelSettings
+        Element models.
+    extra : callable, optional
+        ``extra(h) -> diag_extra`` (n_h, n) or None: other shunts in service [pu].
+    pattern : YPattern, optional
+        Precomputed pattern.
+    workers : int, optional
+        Processes for the sparse path [unitless].
+    derivative : bool
+        Also return ``dZ/dh`` [unitless].
+
+    Returns
+    -------
+    ndarray, complex, shape (N + 1, n_h), or a tuple of two
+        Row 0 bank off, row s step s in service [pu] (and ``dZ/dh`` [pu]).
+
+    Notes
+    -----
+    One solve per order; the steps by Sherman-Morrison,
+    ``Z_s = Z / (1 + Y_s Z)`` with ``Z = Z_kk`` (see :func:`step_update`), and
+    ``dZ_s/dh = (Z' - Z^2 Y_s') / (1 + Y_s Z)^2``.  ``Y_s'`` and the
+    derivative of ``extra`` are central differences (step ``1e-6 h``).
+    """
+    h = np.atleast_1d(np.asarray(h, float))
+    k = np.array([int(bus)])
+    de = None if extra is None else extra(h)
+    ys = np.asarray(step_admittance(h), complex).reshape(h.size, -1)
+    if not derivative:
+        z0 = impedance_columns(arr, h, k, settings, de, rows=k, pattern=pattern, workers=workers)[:, 0, 0]
+        zs = z0[:, None] / (1.0 + ys * z0[:, None])
+        return np.concatenate([z0[None, :], zs.T], axis=0)
+    de_dh = None if de is None else _central_dh(extra, h)
+    z0, dz0 = impedance_columns_dh(arr, h, k, settings, de, rows=k, pattern=pattern,
+                                   diag_extra_dh=de_dh, workers=workers)
+    z0, dz0 = z0[:, 0, 0][:, None], dz0[:, 0, 0][:, None]
+    dys = _central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
+    den = 1.0 + ys * z0
+    zs = z0 / den
+    dzs = (dz0 - z0**2 * dys) / den**2
+    return (np.concatenate([z0.T, zs.T], axis=0), np.concatenate([dz0.T, dzs.T], axis=0))
+
+
+@dataclass(frozen=True, eq=False)
+class StepPeaks:
+    """Peaks of the bank-bus impedance of every step, found on an adaptive grid.
+
+    Attributes
+    ----------
+    h_peak : tuple of ndarray
+        Per curve (row 0 bank off, row s step s): refined peak orders [unitless].
+    z_peak : tuple of ndarray
+        ``|Z|`` at those orders [pu].
+    scan : AdaptiveScan
+        The adaptive grid and the complex curves on it [pu].
+    """
+
+    h_peak: tuple
+    z_peak: tuple
+    scan: AdaptiveScan
+
+
+def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
+               settings: ModelSettings = ModelSettings(), extra=None, pattern: YPattern | None = None,
+               tol: float = 0.05, min_step: float | None = None, xtol: float = 1e-5,
+               workers: int | None = None) -> StepPeaks:
+    """Every local maximum of ``|Z|`` at a bank bus, for the bank off and each step.
+
+    Parameters
+    ----------
+    arr, bus, step_admittance, settings, extra, pattern, workers
+        As for :func:`driving_point_steps`.
+    h : ndarray, shape (n_h,)
+        Base grid, e.g. the study's uniform 0.01 grid [unitless].
+    tol : float
+        Refinement threshold on ``|ln(Z_{i+1}/Z_i)|`` (:func:`resonance.grid.adaptive_scan`) [unitless].
+    min_step : float, optional
+        Narrowest interval (default: base step / 16) [unitless].
+    xtol : float
+        Final width of each peak's golden-section bracket [unitless].
+
+    Returns
+    -------
+    StepPeaks
+        Peaks of every curve and the adaptive grid.
+
+    Notes
+    -----
+    A peak is a local maximum of ``|Z(h)|``.  The grid is refined with the
+    analytic derivative ``dZ/dh`` (:func:`resonance.grid.adaptive_scan`); each
+    interval where ``d|Z|/dh`` turns from positive to non-positive brackets a
+    maximum, and golden-section search inside the bracket converges to it.
+    """
+    h = np.atleast_1d(np.asarray(h, float))
+    if min_step is None:
+        min_step = float(np.min(np.diff(h))) / 16.0 if h.size > 1 else 1e-3
+
+    def fun(hh, derivative=True):
+        return driving_point_steps(arr, hh, bus, step_admittance, settings, extra, pattern, workers, derivative)
+
+    sc = adaptive_scan(fun, h, tol=tol, min_step=min_step, derivative=True)
+    curve, lo, hi = peak_brackets(sc)
+
+    def f(hh):
+        return np.abs(fun(hh, False))[curve, np.arange(hh.size)]
+
+    hp, zp = golden_refine(f, lo, hi, xtol=xtol)
+    n_c = sc.z.shape[0]
+    hs = tuple(hp[curve == c] for c in range(n_c))
+    zs = tuple(zp[curve == c] for c in range(n_c))
+    return StepPeaks(h_peak=hs, z_peak=zs, scan=sc)

@@ -213,7 +213,7 @@ def _assert_non_increasing(hs):
 
 # ------------------------------------------------------------------------------------- tests
 
-@_settings(ci=25)
+@_settings(ci=6)
 @given(radial_plants())
 def test_valid_radial_plants_run_and_keep_invariants(doc):
     from resonance.case import parse_case
@@ -262,7 +262,7 @@ def single_bus_behind_transformer(draw):
     return doc
 
 
-@_settings(ci=15)
+@_settings(ci=8)
 @given(single_bus_behind_transformer())
 def test_closed_form_peak_within_one_percent(doc):
     rc, out, err, data = _run_main(to_toml(doc))
@@ -327,7 +327,7 @@ def broken_plants(draw):
     return strip(doc)
 
 
-@_settings(ci=40)
+@_settings(ci=25)
 @given(broken_plants())
 def test_broken_cases_never_crash(doc):
     rc, out, err, data = _run_main(to_toml(doc))
@@ -336,7 +336,7 @@ def test_broken_cases_never_crash(doc):
         assert data is None  # refused: nothing written
 
 
-@_settings(ci=60)
+@_settings(ci=50)
 @given(st.one_of(
     st.text(max_size=200),
     st.binary(max_size=200),

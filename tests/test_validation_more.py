@@ -229,6 +229,8 @@ HINTS = [
     ("transformer in MVA", SMALL_CASE.replace("kva = 1500.0", "kva = 8.0").replace("[100.0, 100.0, 150.0]", "[0.5]"),
      "transformer[0].kva", "MVA"),
     ("source in MVA", SMALL_CASE.replace("kva = 300.0", "kva = 0.3"), "harmonic_source[0].kva", "MVA"),
+    ("built-in spectrum beyond h_max", SMALL_CASE.replace(SOURCE, 'spectrum = "six-pulse-ideal"')
+     + "\n[study]\nh_max = 20.0\n", "harmonic_source[0].spectrum", "(23 to 49); they are left out"),
 ]
 
 
