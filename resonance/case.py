@@ -374,13 +374,6 @@ def _unit_hints(raw: dict, file: str) -> list[InputProblem]:
     kv = sup.get("kv")
     if _is_num(kv) and kv > 1000:
         probs.append(_volts_hint(file, "supply.kv", kv))
-    sc = sup.get("sc_mva")
-    if _is_num(sc) and _is_num(kv) and 0.05 < kv <= 800 and sc > 0:
-        # far above any public supply's fault current the value was given in kVA
-        i_ka = sc / (math.sqrt(3.0) * kv)
-        if i_ka > _I_SC_MAX_KA:
-            probs.append(InputProblem(file, "supply.sc_mva", f"{sc:g} MVA is a fault current of {i_ka:,.0f} kA at "
-                                      f"{kv:g} kV; that looks like a value in kVA (give MVA, e.g. {sc / 1000:g})"))
     for i, t in _rows(raw, "transformer"):
         hv = t.get("hv_kv")
         for k in ("hv_kv", "lv_kv"):
@@ -809,7 +802,8 @@ def case_hints(case: Case) -> tuple[InputProblem, ...]:
 
     Notes
     -----
-    Hints: a stage below 1 kvar (Mvar given as kvar); a bank larger than the
+    Hints: a supply fault current above 300 kA (MVA given as kVA, or an
+    infinite bus); a stage below 1 kvar (Mvar given as kvar); a bank larger than the
     transformers feeding its bus; a bank whose switching would raise the
     voltage by more than 10 % (``dV/V ~= Q/S_sc``); nominal voltages typical of
     the other supply frequency; a transformer under 10 kVA or a harmonic
@@ -818,6 +812,15 @@ def case_hints(case: Case) -> tuple[InputProblem, ...]:
     """
     file = case.source_file
     out: list[InputProblem] = []
+    sup = case.supply
+    if sup is not None:
+        # far above any public supply's fault current the value was probably given in kVA
+        # (a very large value is also the usual stand-in for an infinite bus: hence a hint)
+        i_ka = sup.sc_mva / (math.sqrt(3.0) * sup.kv)
+        if i_ka > _I_SC_MAX_KA:
+            out.append(InputProblem(file, "supply.sc_mva", f"{sup.sc_mva:g} MVA is a fault current of {i_ka:,.0f} kA "
+                                    f"at {sup.kv:g} kV; that looks like a value in kVA (give MVA, e.g. "
+                                    f"{sup.sc_mva / 1000:g}), unless an infinite bus is meant"))
     for i, bk in enumerate(case.bank):
         small = [k + 1 for k, q in enumerate(bk.steps_kvar) if q < _STAGE_MIN_KVAR]
         if small:

@@ -93,6 +93,7 @@ def _check(args) -> int:
         from .detuning import propose_detuning  # noqa: PLC0415
 
         det = propose_detuning(case, res.extras["model"], res)
+        _attach_detuned_scans(case, res, det)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
         data = to_dict(res, sha, extra={("bank", name): {"detuning": d} for name, d in det.items()})
         out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
@@ -115,6 +116,10 @@ def _check(args) -> int:
                     fig = scan_figure(res, weak)
                     fig.savefig(out.file(f"scan_{safe}_weak.png"))
                     plt.close(fig)
+        if not (args.no_plots or args.no_report):
+            from .report import write_report  # noqa: PLC0415
+
+            write_report(res, data, out)
         written = out.commit()
     except BaseException:
         out.discard()
@@ -140,6 +145,24 @@ def _check(args) -> int:
         print(f"\nwrote {len(written)} files to {Path(args.out)}: " + ", ".join(p.name for p in written))
         print(f"\n{CAUTION}")
     return EXIT_OK if data["passed"] else EXIT_FINDING
+
+
+def _attach_detuned_scans(case, res, det: dict) -> None:
+    """Scan of each recommended detuned design, for the report's side-by-side plot."""
+    from .study import run_study  # noqa: PLC0415
+
+    for name, d in det.items():
+        rec = (d or {}).get("recommended")
+        if not rec:
+            continue
+        banks = [b.model_copy(update={"detuning_pct": rec["detuning_pct"], "rated_kv": rec["rated_kv"],
+                                      "steps_kvar": list(rec["steps_kvar"]),
+                                      "reactor_q": rec.get("reactor_q", b.reactor_q)}) if b.name == name else b
+                 for b in case.bank]
+        variant = case.model_copy(update={"bank": banks})
+        sc = run_study(variant, res.extras["model"]).scans_for(name)
+        if sc is not None:
+            res.extras[f"detuned_scan_{name}"] = sc
 
 
 def _safe(name: str) -> str:

@@ -456,6 +456,10 @@ def _input_tables(res: StudyResult, data: dict) -> list[Table]:
     return t
 
 
+_REC_WORDS = {"tuning_order": "tuning order n [-]", "detuning_pct": "detuning p = X_L/X_C [%]",
+              "rated_kv": "capacitor rated voltage [kV]", "steps_kvar": "stages at rated voltage [kvar]"}
+
+
 def _detuning_tables(bank: dict) -> list[Table]:
     rec, cands = _detuning(bank)
     out = []
@@ -463,12 +467,22 @@ def _detuning_tables(bank: dict) -> list[Table]:
         out.append(Table(f"table_detuning_recommended_{_safe(bank['name'])}.csv",
                          f"Bank {bank['name']}: recommended detuned bank",
                          (Column("quantity", "", _s, "left"), Column("value", "", _s, "left", 60)),
-                         tuple((k, _fmt_any(v)) for k, v in rec.items() if not isinstance(v, dict))))
+                         tuple((_REC_WORDS.get(k, k.replace("_", " ")), _fmt_any(v)) for k, v in rec.items()
+                               if not isinstance(v, dict))))
     if cands:
-        pref = ["tuning_order", "detuning_pct", "rated_kv", "steps_kvar"]
-        keys = pref + [k for c in cands for k in c if k not in pref and not isinstance(c[k], (dict, list))]
-        keys = [k for i, k in enumerate(keys) if k not in keys[:i] and any(k in c for c in cands)]
-        cols = tuple(Column(k.replace("_", " "), "", _fmt_any, "right", 24) for k in keys)
+        def stages(v):
+            if isinstance(v, list) and v:
+                return f"{len(v)} x {v[0]:g}" if len(set(v)) == 1 else ", ".join(f"{x:g}" for x in v)
+            return _fmt_any(v)
+
+        def yes_no(v):
+            return "yes" if v else "no"
+
+        cols = (Column("n", "", _fmt_any, "right"), Column("p", "%", _fmt_any, "right"),
+                Column("f tuning", "Hz", _fmt_any, "right"), Column("capacitor", "kV", _fmt_any, "right"),
+                Column("stages", "kvar", stages, "right", 16), Column("qualifies", "", yes_no, "left"),
+                Column("why", "", _s, "left", 70))
+        keys = ("tuning_order", "detuning_pct", "f_tuning_hz", "rated_kv", "steps_kvar", "qualified", "why")
         out.append(Table(f"table_detuning_candidates_{_safe(bank['name'])}.csv",
                          f"Bank {bank['name']}: detuning candidates", cols,
                          tuple(tuple(c.get(k) for k in keys) for c in cands)))
@@ -684,9 +698,12 @@ class _Doc:
                     self.text(M_LEFT, self.y, t.title + " (continued)", fontsize=size + 1.5, weight="bold")
                     self.y += (size + 1.5) / 72 * 1.6
             self._table_head(heads, w, head_h, size, lh)
-            while i < len(cells) and self.room() >= row_h[i]:
+            placed = 0
+            # a row taller than a whole page is placed anyway (clipped) so the loop always advances
+            while i < len(cells) and (self.room() >= row_h[i] or placed == 0):
                 self._table_row(cells[i], t, i, w, row_h[i], size, lh)
                 i += 1
+                placed += 1
             first = False
             if i < len(cells):
                 self.new_page()

@@ -440,7 +440,7 @@ def draw_detuning_band(ax, n_tuned: float, p: float, h_parallel, steps, dominant
     hi = n_tuned / math.sqrt(1.0 + CAP_TOLERANCE[0])
     y = np.asarray(steps, int)
     ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.8, lw=0,
-               label=f"tuning order with capacitance {CAP_TOLERANCE[0] * 100:+.0f}/{CAP_TOLERANCE[1] * 100:+.0f} %: "
+               label=f"n with capacitance {CAP_TOLERANCE[0] * 100:+.0f}/{CAP_TOLERANCE[1] * 100:+.0f} %: "
                      f"{lo:.2f}-{hi:.2f}")
     ax.axvline(n_tuned, color=STYLE["ink"], lw=1.2, label=f"tuning order n = {n_tuned:.2f} (p = {p * 100:.3g} %)")
     if dominant is not None:

@@ -50,7 +50,6 @@ RULES = [
     # supply
     ("supply kv too low", SMALL_CASE.replace("kv = 13.8", "kv = 0.01"), "supply.kv", "greater than"),
     ("supply sc zero", SMALL_CASE.replace("sc_mva = 48.0", "sc_mva = 0.0"), "supply.sc_mva", "greater than"),
-    ("supply sc in kVA", SMALL_CASE.replace("sc_mva = 48.0", "sc_mva = 48000.0"), "supply.sc_mva", "kVA"),
     ("supply x_r zero", SMALL_CASE.replace(SUPPLY_XR, "x_r = 0.0\n", 1), "supply.x_r", "greater than"),
     ("supply x_r huge", SMALL_CASE.replace(SUPPLY_XR, "x_r = 500.0\n", 1), "supply.x_r", "less than or equal"),
     ("x_r_min without sc_mva_min", SMALL_CASE.replace(SUPPLY_XR, SUPPLY_XR + "x_r_min = 5.0\n", 1), "supply",
@@ -219,6 +218,8 @@ def _hints(text):
 
 
 HINTS = [
+    ("supply sc in kVA", SMALL_CASE.replace("sc_mva = 48.0", "sc_mva = 48000.0"), "supply.sc_mva",
+     "looks like a value in kVA"),
     ("stages in Mvar", SMALL_CASE.replace("[100.0, 100.0, 150.0]", "[0.1, 0.1]"), "bank[0].steps_kvar", "Mvar"),
     ("bank above the transformer", SMALL_CASE.replace("[100.0, 100.0, 150.0]", "[1000.0, 1000.0]"),
      "bank[0].steps_kvar", "133 % of the 1,500 kVA"),

@@ -1,0 +1,181 @@
+"""Scan-engine benchmark: every step of a 12-step bank on case9241pegase, fast path vs naive.
+
+Run from the repository root:  /tmp/venv/bin/python benchmarks/scan_bench.py
+(or .venv/bin/python).  Prints the timings, the ratio and the peak memory; the last
+line is ``speedup: <ratio>x``.
+
+Fast path: one sparse factorisation per order with the pattern, ordering and value map
+built once (resonance.engine), both cores, and every step by Sherman-Morrison.
+Naive baseline: per step and per order, Y(h) with the step on its diagonal assembled
+and solved with scipy.sparse.linalg.spsolve (default ordering and pivoting); timed on a
+subset of orders kept under about a minute and scaled to the full workload.
+"""
+
+from __future__ import annotations
+
+import copy
+import os
+import resource
+import sys
+import tempfile
+import time
+import warnings
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+import numpy as np  # noqa: E402
+import scipy  # noqa: E402
+import scipy.sparse as sp  # noqa: E402
+import scipy.sparse.linalg as spla  # noqa: E402
+
+N_STEPS = 12
+STEP_MVAR_110KV = 5.0  # 12 x 5 Mvar at 110 kV (invented, sized for the bus voltage)
+H_MAX, H_STEP = 50.0, 0.01
+NAIVE_BUDGET_S = 45.0
+
+
+def machine() -> str:
+    cpu = "unknown CPU"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    return (f"{os.cpu_count()} CPUs ({cpu}); Python {sys.version.split()[0]}, numpy {np.__version__}, "
+            f"scipy {scipy.__version__}")
+
+
+def load_network():
+    import pandapower.networks as pn
+
+    from resonance.netmodel import net_to_arrays
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        net = copy.deepcopy(pn.case9241pegase())
+    for col, val in (("s_sc_max_mva", 10000.0), ("rx_max", 0.1)):
+        if col not in net.ext_grid or not np.all(np.isfinite(net.ext_grid[col].astype(float))):
+            net.ext_grid[col] = val
+    t = time.perf_counter()
+    arr, _ = net_to_arrays(net)
+    return arr, time.perf_counter() - t
+
+
+def main() -> int:
+    from resonance.admittance import YPattern, bank_step_admittance
+    from resonance.engine import default_workers
+    from resonance.scan import find_peaks, harmonic_grid, sparse_engine, step_update
+    from resonance.scan import impedance_columns
+
+    print(f"machine: {machine()}")
+    t0 = time.perf_counter()
+    arr, t_conv = load_network()
+    print(f"network: case9241pegase, {arr.n_bus} buses, {arr.br_from.size} branches, "
+          f"{arr.load_bus.size} loads (loaded in {time.perf_counter() - t0:.1f} s, converted in {t_conv:.2f} s)")
+    # bank and harmonic source on the 110 kV bus with the most branch ends
+    cand = np.nonzero(arr.bus_kv == 110.0)[0]
+    deg = np.bincount(np.concatenate([arr.br_from, arr.br_to]), minlength=arr.n_bus)
+    k = int(cand[np.argmax(deg[cand])])
+    pcc = int(arr.grid_bus[0])
+    b_pu = np.cumsum(np.full(N_STEPS, STEP_MVAR_110KV)) / arr.base_mva
+    h = harmonic_grid(H_MAX, H_STEP)
+    cols, rows = np.array([k]), np.array([k, pcc])
+    print(f"bank: {N_STEPS} x {STEP_MVAR_110KV:g} Mvar at bus {k} ({arr.bus_kv[k]:g} kV); "
+          f"scan h = 1..{H_MAX:g} step {H_STEP:g} ({h.size} orders) x {N_STEPS} steps; "
+          f"workers = {default_workers()}")
+
+    # ---- fast path
+    cpu0 = time.process_time()
+    ch0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    t = time.perf_counter()
+    eng = sparse_engine(arr)
+    t_build = time.perf_counter() - t
+    z0 = impedance_columns(arr, h, cols, rows=rows)  # (n_h, 2, 1)
+    ys = bank_step_admittance(h, b_pu)
+    zs = step_update(z0, 0, 0, ys)  # (n_h, N, 2, 1)
+    z_kk = np.abs(zs[:, :, 0, 0]).T  # (N, n_h)
+    peaks = find_peaks(h, z_kk)
+    t_fast = time.perf_counter() - t
+    ch1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu_main = time.process_time() - cpu0
+    cpu_fast = cpu_main + (ch1.ru_utime + ch1.ru_stime) - (ch0.ru_utime + ch0.ru_stime)
+    # harmonic source at the bank bus: 6-pulse characteristic currents I_h = I_1 / h, 10 MVA
+    hi = np.array([5, 7, 11, 13, 17, 19, 23, 25, 29, 31, 35, 37, 41, 43, 47, 49], float)
+    idx = np.searchsorted(h, hi - 1e-9)
+    i_pu = (10.0 / arr.base_mva) / hi
+    v_h = np.abs(zs[idx, :, 0, 0]) * i_pu[:, None]  # (orders, steps) [pu]
+    thd = np.sqrt((v_h**2).sum(axis=0)) * 100.0
+    print(f"fast path: {t_fast:.2f} s wall, {cpu_fast:.2f} s CPU (this process {cpu_main:.2f} s + pool workers), "
+          f"engine build {t_build:.3f} s, "
+          f"{t_fast / h.size * 1e3:.2f} ms per order for all {N_STEPS} steps, nnz(Y) = {eng.nnz}")
+    print("  first peak per step (h): " + " ".join(f"{h[p[0]]:.2f}" if p.size else "-" for p in peaks))
+    print(f"  voltage THD at the bank bus, 10 MVA 6-pulse source: step 1 {thd[0]:.2f} %, step {N_STEPS} {thd[-1]:.2f} %")
+
+    # ---- naive baseline on a subset
+    pat = YPattern.build(arr)
+    e = np.zeros((arr.n_bus, 1), complex)
+    e[k, 0] = 1.0
+
+    def naive(hh: float, s: int) -> complex:
+        d = np.zeros((1, arr.n_bus), complex)
+        d[0, k] = bank_step_admittance(np.array([hh]), b_pu[s:s + 1])[0, 0]
+        y = sp.csr_matrix((pat.values(arr, np.array([hh]), d)[0], pat.cols, pat.indptr),
+                          shape=(arr.n_bus, arr.n_bus)).tocsc()
+        return complex(spla.spsolve(y, e)[k])
+
+    t = time.perf_counter()
+    probe = [naive(float(h[i]), s) for i, s in zip(range(0, h.size, h.size // 6), range(6))]
+    t_one = (time.perf_counter() - t) / len(probe)
+    n_pts = int(max(2, min(h.size, NAIVE_BUDGET_S / (t_one * N_STEPS))))
+    sub = np.unique(np.linspace(0, h.size - 1, n_pts).round().astype(int))
+    t = time.perf_counter()
+    c = time.process_time()
+    zn = np.array([[naive(float(h[i]), s) for s in range(N_STEPS)] for i in sub])
+    t_naive_sub = time.perf_counter() - t
+    cpu_naive_full = (time.process_time() - c) / (sub.size * N_STEPS) * h.size * N_STEPS
+    n_solves = sub.size * N_STEPS
+    t_naive_full = t_naive_sub / n_solves * h.size * N_STEPS
+    err = np.max(np.abs(zn - zs[sub, :, 0, 0]) / np.abs(zn))
+    del probe
+    print(f"naive: {n_solves} solves ({sub.size} orders x {N_STEPS} steps) in {t_naive_sub:.1f} s = "
+          f"{t_naive_sub / n_solves * 1e3:.1f} ms per solve; scaled to {h.size * N_STEPS} solves: {t_naive_full:.0f} s")
+    print(f"  naive CPU time scaled: {cpu_naive_full:.0f} s; CPU-time ratio {cpu_naive_full / cpu_fast:.1f}x")
+    print(f"  fast vs naive at the common orders: max relative difference {err:.1e}")
+
+    # ---- demo plant end to end
+    from resonance.case import load_case
+    from resonance.study import run_study
+
+    case_path = ROOT / "cases" / "demo_plant.toml"
+    t = time.perf_counter()
+    case = load_case(case_path)
+    res = run_study(case)
+    t_study = time.perf_counter() - t
+    print(f"demo plant: load_case + run_study {t_study:.2f} s ({len(res.scans)} bank scans, "
+          f"{len(res.findings)} findings)")
+    from resonance import cli
+
+    with tempfile.TemporaryDirectory() as tmp:
+        t = time.perf_counter()
+        try:
+            rc = cli.main(["check", str(case_path), "--out", tmp, "--quiet"])
+        except SystemExit as ex:  # a command may exit instead of returning
+            rc = ex.code
+        t_cli = time.perf_counter() - t
+        written = sorted(p.name for p in Path(tmp).iterdir())
+    print(f"demo plant: resonance check (cli.main) {t_cli:.2f} s, exit {rc}, wrote {', '.join(written) or 'nothing'}")
+
+    rss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    print(f"peak memory (max RSS of this process, pandapower included): {rss_mb:.0f} MB")
+    print(f"fast {t_fast:.2f} s vs naive {t_naive_full:.0f} s (scaled)")
+    print(f"load average at the end: {', '.join(f'{x:.2f}' for x in os.getloadavg())} (other work on the machine slows both paths)")
+    print(f"speedup: {t_naive_full / t_fast:.1f}x")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
