@@ -237,6 +237,48 @@ class StudySettings(_Strict):
     max_demand_a: Num | None = Field(default=None, gt=0.0)
 
 
+class DetuningTable(_Strict):
+    """Optional ``[detuning]`` settings of the detuned-bank proposals.
+
+    Every key may be left out (the defaults and their sources are in
+    :class:`resonance.detuning.DetuningSettings`); the values are range-checked
+    by :func:`resonance.detuning.detuning_settings`.
+    """
+
+    tuning_orders: list[Num] | None = None
+    search: Literal["list", "continuous"] | None = None
+    order_margin_pct: Num | None = None
+    band_margin_pct: Num | None = None
+    significant_background_pct: Num | None = None
+    significant_injection_pct: Num | None = None
+    cap_tolerance_pct: list[Num] | None = None
+    reactor_tolerance_pct: list[Num] | None = None
+    standard_cap_kv: list[Num] | None = None
+    mv_cap_step_kv: Num | None = None
+    cap_voltage_margin_pct: Num | None = None
+    max_rating_steps: int | None = None
+    reactor_loss_w_per_kvar: Num | None = None
+    linearity_factor: Num | None = None
+    rearrange_unit_kvar: Num | None = None
+    recheck: Literal["all", "first"] | None = None
+
+
+class DemandLink(_Strict):
+    """Optional ``[demand]``: metered interval data that weights each step by time in service.
+
+    ``intervals_csv`` is read by :func:`resonance.sizing_io.read_intervals`; the
+    stage controller (settings as in ``resonance size``) is replayed against it
+    with the bank's stages, giving the time spent in each step.
+    """
+
+    intervals_csv: str = Field(min_length=1)
+    bank: str | None = None
+    target_pf: Num = Field(default=0.95, gt=0.5, le=1.0)
+    switch_in_fraction: Num = Field(default=0.5, gt=0.0, le=1.0)
+    switch_out_fraction: Num = Field(default=0.5, gt=0.0, le=1.0)
+    min_time_between_ops_min: Num = Field(default=5.0, ge=0.0, le=1440.0)
+
+
 class Case(_Strict):
     """A whole study case as read from one TOML file."""
 
@@ -250,6 +292,8 @@ class Case(_Strict):
     bank: list[Bank] = Field(min_length=1)
     network: NetworkFile | None = None
     study: StudySettings = Field(default_factory=StudySettings)
+    detuning: DetuningTable | None = None
+    demand: DemandLink | None = None
     #: path of the file the case came from (set by :func:`load_case`)
     source_file: str = ""
     #: directory that relative paths in the case are resolved against

@@ -84,6 +84,8 @@ def _check(args) -> int:
 
     case_path = Path(args.case)
     case = load_case(case_path)
+    for hint in case.hints:  # likely mistakes in a valid case: reported, not fatal
+        print(f"warning: {hint}", file=sys.stderr)
     protect = [case_path]
     if case.network is not None:
         protect.append(Path(case.base_dir) / case.network.pandapower_json)
@@ -94,8 +96,17 @@ def _check(args) -> int:
 
         det = propose_detuning(case, res.extras["model"], res)
         _attach_detuned_scans(case, res, det)
+        from .demand import time_in_step  # noqa: PLC0415
+
+        tis = time_in_step(case, res)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
-        data = to_dict(res, sha, extra={("bank", name): {"detuning": d} for name, d in det.items()})
+        extra = {("bank", name): {"detuning": d} for name, d in det.items()}
+        for name, t in tis.items():
+            extra.setdefault(("bank", name), {})["time_in_step"] = t
+            steps = {k: {"time_fraction": round(f, 5), "hours_in_step": round(hh, 3)}
+                     for k, (f, hh) in enumerate(zip(t["fraction"], t["hours"])) if k > 0}
+            extra[(name, "nominal")] = steps
+        data = to_dict(res, sha, extra=extra)
         out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
         from .tables import write_scan_tables  # noqa: PLC0415
         write_scan_tables(res, out)
@@ -130,6 +141,12 @@ def _check(args) -> int:
     for f in data["findings"]:
         print(f"FINDING: {f['message']}")
     for b in data["banks"]:
+        t = b.get("time_in_step")
+        if t:
+            print(f"\nbank {b['name']}: from {t['source']}: achieved PF {t['pf_achieved_period']:.3f}, "
+                  f"{t['switching_ops_per_day']:g} operations/day, time in steps with findings "
+                  f"{t['time_with_findings_pct']:.1f} %; time in step 0..{len(t['fraction']) - 1}: "
+                  + ", ".join(f"{100 * f:.1f} %" for f in t["fraction"]))
         d = b.get("detuning") or {}
         rec = d.get("recommended")
         if rec:
@@ -142,7 +159,7 @@ def _check(args) -> int:
         if not args.quiet:
             print(f"note: {w}")
     if not args.quiet:
-        print(f"\nwrote {len(written)} files to {Path(args.out)}: " + ", ".join(p.name for p in written))
+        print(f"\nwrote {len(written)} files to {out.path.resolve()}: " + ", ".join(p.name for p in written))
         print(f"\n{CAUTION}")
     return EXIT_OK if data["passed"] else EXIT_FINDING
 

@@ -494,6 +494,12 @@ class LoadFlow:
         vm = np.ones(self.model.arrays.n_bus)
         for name, m in self.model.model_bus.items():
             vm[m] = float(self.net.res_bus.at[self.model.bus_pp[name], "vm_pu"])
+        # a solution far from nominal is a spurious Newton root (seen near 1e-9 pu when a bank
+        # reaches 40-100 % of the short-circuit power at its bus), not an operating point
+        if not np.all((vm > 0.5) & (vm < 2.5)):
+            self._solved = False
+            raise ModelError(f"fundamental load flow found no plausible operating point "
+                             f"(bus voltages {vm.min():.3g} to {vm.max():.3g} pu)")
         return vm
 
 

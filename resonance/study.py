@@ -333,7 +333,8 @@ def run_study(case: Case, model=None) -> StudyResult:
     orders = orders_of_concern(sources, background, st.h_max)
     h = harmonic_grid(st.h_max, st.h_step)
     pattern = YPattern.build(arr)
-    warnings_: list[str] = []
+    # likely input mistakes (case.case_hints) travel with the results
+    warnings_: list[str] = [f"input {hint.field}: {hint.problem}" for hint in case.hints]
     # fundamental voltage of every step from a load flow with that step in service
     vm: dict[tuple[str, str], np.ndarray] = {}
     full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
