@@ -1272,6 +1272,19 @@ def _summary_pages(doc: _Doc, res: StudyResult, data: dict, tbl: dict) -> None:
         doc.text(M_LEFT, doc.y, "Verdict", fontsize=9.5, weight="bold")
         doc.y += 0.2
         doc.bullets(_verdict(b, data, lim), size=8.0)
+        tis = b.get("time_in_step")
+        if tis:
+            doc.ensure(0.6)
+            doc.text(M_LEFT, doc.y, "Time in each step (metered demand)", fontsize=9.5, weight="bold")
+            doc.y += 0.2
+            shares = ", ".join(f"step {k}: {100 * f:.1f} %" for k, f in enumerate(tis["fraction"]) if f > 0)
+            doc.bullets([
+                f"Stage controller replayed against {tis['source']} ({tis['total_hours']:.0f} h of intervals, "
+                f"target PF in the [demand] table): achieved period PF {tis['pf_achieved_period']:.3f}, "
+                f"{tis['switching_ops_per_day']:g} switching operations per day.",
+                f"Time in service: {shares}.",
+                f"The plant spends {tis['time_with_findings_pct']:.1f} % of the time on steps with findings "
+                "(nominal supply)."], size=8.0)
         notes = [w for w in data.get("warnings", []) if f"bank {b['name']} " in w]
         if notes:
             doc.ensure(0.5)
