@@ -248,6 +248,21 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
         return np.abs(z / (1.0 + y * z))
 
     h_ref, z_ref = refine_peaks(fun, flat_h_arr, h_step)
+    if _ADAPTIVE_PEAKS:
+        # adaptive grid (resonance.grid): brackets every local maximum, even one narrower than the
+        # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
+        from .scan import step_peaks  # noqa: PLC0415
+
+        spk = step_peaks(arr, bank.index, lambda hh: bank.step_admittance(hh, base), h, settings,
+                         extra=extra, pattern=pattern)
+        hs_, zs_, st_ = [], [], []
+        for s in range(bank.n_steps):
+            hp, zp = np.asarray(spk.h_peak[s + 1], float), np.asarray(spk.z_peak[s + 1], float)
+            keep = _prominent(spk.scan, s + 1, hp, zp)
+            hs_ += list(hp[keep])
+            zs_ += list(zp[keep])
+            st_ += [s] * int(np.sum(keep))
+        h_ref, z_ref, flat_step_arr = np.array(hs_, float), np.array(zs_, float), np.array(st_, int)
     steps = []
     for s in range(bank.n_steps):
         sel = flat_step_arr == s
@@ -276,6 +291,25 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
             margin_pct=margin, resonance_ok=ok, damping_sensitive=sensitive))
     return BankScan(bank=bank, scenario=scenario, sc_mva=float(sc_mva), x_r=float(x_r), h=h,
                     z_ohm=np.abs(zkk) * zb_k, z_pcc_ohm=np.abs(zpp) * zb_p, steps=tuple(steps))
+
+
+#: find peaks on the adaptive grid of resonance.grid (True) or the uniform grid only (False)
+_ADAPTIVE_PEAKS = True
+
+
+def _prominent(scan, row: int, hp: np.ndarray, zp: np.ndarray, min_rel: float = 0.02) -> np.ndarray:
+    """Peaks standing at least ``min_rel`` above the higher of the minima that bound them."""
+    h = np.asarray(scan.h, float)
+    z = np.abs(np.asarray(scan.z[row] if hasattr(scan, "z") else scan.z_pu[row]))
+    keep = np.ones(hp.size, bool)
+    for i, (a, b) in enumerate(zip(hp, zp)):
+        left = z[h < a]
+        right = z[h > a]
+        # minima between this peak and the neighbouring higher ground (or the range ends)
+        lo_l = left[::-1][: np.argmax(left[::-1] > b) or left.size].min() if left.size else b
+        lo_r = right[: np.argmax(right > b) or right.size].min() if right.size else b
+        keep[i] = b >= (1.0 + min_rel) * max(lo_l, lo_r)
+    return keep
 
 
 def _source_orders(case: Case) -> tuple[list[tuple[str, dict, int]], list[InputProblem]]:
