@@ -59,9 +59,9 @@ def _summary(data: dict) -> str:
     lines = [f"{data['case']['title']}  ({data['case']['frequency_hz']} Hz)"]
     for b in data["banks"]:
         kind = f"detuned p = {b['detuning_pct']:g} %" if b.get("detuning_pct") else "plain"
+        iec = f"{b['sc_mva_iec60909']:.2f}" if b["sc_mva_iec60909"] is not None else "-"
         lines.append(f"\nbank {b['name']} at {b['bus']} ({b['bus_kv']:g} kV, {kind}); "
-                     f"S_sc = {b['sc_mva']:.2f} MVA (IEC 60909: "
-                     (f"{b['sc_mva_iec60909']:.2f}" if b['sc_mva_iec60909'] is not None else '-') + " MVA)")
+                     f"S_sc = {b['sc_mva']:.2f} MVA (IEC 60909: {iec} MVA)")
         lines.append("  step    kvar  h_est  h_scan  near  margin%  THDbus%  THDpcc%  Vrms%  Vpk%  Irms%  kvar%  TDD%  result")
         for s in b["steps"]:
             ok = (s["resonance_ok"] and s.get("duty_ok", True) and s.get("pcc_voltage_ok", True)

@@ -50,7 +50,7 @@ class HarmonicOrders:
 
 
 def characteristic(pulse: int, h_max: float) -> list[int]:
-    """Characteristic orders ``k p +- 1`` up to ``h_max``.
+    """Characteristic orders ``k p +- 1`` up to ``h_max`` (see :func:`resonance.spectra.characteristic_orders`).
 
     Parameters
     ----------
@@ -68,14 +68,9 @@ def characteristic(pulse: int, h_max: float) -> list[int]:
     ----------
     Arrillaga & Watson, *Power System Harmonics*, 2nd ed., ch. 4.
     """
-    out = []
-    k = 1
-    while k * pulse - 1 <= h_max:
-        for h in (k * pulse - 1, k * pulse + 1):
-            if 2 <= h <= h_max:
-                out.append(h)
-        k += 1
-    return out
+    from .spectra import characteristic_orders  # noqa: PLC0415
+
+    return [int(h) for h in characteristic_orders(int(pulse), float(h_max))]
 
 
 def orders_of_concern(sources: list, background_pct: dict, h_max: float) -> HarmonicOrders:
