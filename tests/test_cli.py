@@ -91,3 +91,33 @@ def test_python_dash_m(tmp_path):
     r = subprocess.run([sys.executable, "-m", "resonance", "--version"], capture_output=True, text=True, cwd=ROOT,
                        timeout=60)
     assert r.returncode == 0 and "resonance" in r.stdout
+
+
+def test_demand_table_weights_steps_by_time(tmp_path, case_file):
+    # constant load: the controller settles on one step (derived from the required kvar
+    # Q - P tan(acos 0.95) for P = 600 kW, Q = 450 kvar -> 252.8 kvar -> step 3 of 100 kvar stages
+    # with the 0.5-stage dead band), so all the time is in that step.
+    csv = tmp_path / "flat.csv"
+    rows = ["timestamp,kw,kvar"] + [f"2026-01-01T{h:02d}:{m:02d}:00,600,450" for h in range(6) for m in (0, 15, 30, 45)]
+    csv.write_text("\n".join(rows) + "\n")
+    text = SMALL_CASE.replace("steps_kvar = [100.0, 100.0, 150.0]", "steps_kvar = [100.0, 100.0, 100.0, 100.0]")
+    text += '\n[demand]\nintervals_csv = "flat.csv"\n'
+    out = tmp_path / "o"
+    rc = main(["check", str(case_file(text)), "--out", str(out), "--no-report", "--no-plots", "--quiet"])
+    assert rc in (0, 1)
+    data = json.loads((out / "results.json").read_text())
+    t = data["banks"][0]["time_in_step"]
+    assert len(t["fraction"]) == 5
+    assert t["fraction"][3] == pytest.approx(1.0, abs=1.0 / len(rows))  # the first interval may start lower
+    assert data["banks"][0]["steps"][2]["time_fraction"] == pytest.approx(t["fraction"][3])
+
+
+def test_demand_bad_csv_exit_2_with_line_and_column(tmp_path, case_file, capsys):
+    csv = tmp_path / "bad.csv"
+    csv.write_text("timestamp,kw,kvar\n2026-01-01T00:00:00,600,450\n2026-01-01T00:15:00,abc,450\n")
+    text = SMALL_CASE + '\n[demand]\nintervals_csv = "bad.csv"\n'
+    rc = main(["check", str(case_file(text)), "--out", str(tmp_path / "o"), "--no-report", "--no-plots"])
+    err = capsys.readouterr().err
+    assert rc == 2
+    assert "line 3" in err and "kw" in err.lower()
+    assert not (tmp_path / "o" / "results.json").exists()
