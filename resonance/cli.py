@@ -166,7 +166,7 @@ def _check(args) -> int:
 
 def _attach_detuned_scans(case, res, det: dict) -> None:
     """Scan of each recommended detuned design, for the report's side-by-side plot."""
-    from .study import run_study  # noqa: PLC0415
+    from .detuning import run_variant  # noqa: PLC0415
 
     for name, d in det.items():
         rec = (d or {}).get("recommended")
@@ -177,7 +177,7 @@ def _attach_detuned_scans(case, res, det: dict) -> None:
                                       "reactor_q": rec.get("reactor_q", b.reactor_q)}) if b.name == name else b
                  for b in case.bank]
         variant = case.model_copy(update={"bank": banks})
-        sc = run_study(variant, res.extras["model"]).scans_for(name)
+        sc = run_variant(variant, res.extras["model"]).scans_for(name)
         if sc is not None:
             res.extras[f"detuned_scan_{name}"] = sc
 

@@ -33,6 +33,7 @@ import numpy as np
 from .errors import InputError, ModelError
 
 __all__ = [
+    "run_variant",
     "DetuningSettings",
     "DetunedStep",
     "detuning_settings",
@@ -667,12 +668,34 @@ def _nice_unit(x: float) -> float:
 
 
 def _run(variant, model, clock: list):
-    from .study import run_study  # noqa: PLC0415
-
     t = time.perf_counter()
-    res = run_study(variant, model=model)
+    res = run_variant(variant, model)
     clock.append(time.perf_counter() - t)
     return res
+
+
+def run_variant(variant, model):
+    """Study of a variant of a case on the same plant model, memoised on the model.
+
+    Parameters
+    ----------
+    variant : Case
+        The case with changed bank data (same network).
+    model : PlantModel
+        Plant model of the original case.
+
+    Returns
+    -------
+    StudyResult
+        As :func:`resonance.study.run_study`; the same object for the same variant, so a
+        caller must not change it.
+    """
+    from .study import run_study  # noqa: PLC0415
+
+    key = ("study", variant.model_dump_json())
+    if key not in model.cache:
+        model.cache[key] = run_study(variant, model=model)
+    return model.cache[key]
 
 
 def _reactor_figures(status: dict, q_np: np.ndarray, ratings, p: float, u_kv: float, reactor_q: float,

@@ -182,6 +182,8 @@ def adaptive_scan(fun, h: np.ndarray, z: np.ndarray | None = None, tol: float = 
     z = np.atleast_2d(np.asarray(z, complex))
     dz = None if dz is None else np.atleast_2d(np.asarray(dz, complex))
     n_eval = h.size
+    if derivative:
+        return _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels)
     level = 0
     for level in range(1, max_levels + 1):
         width = np.diff(h)
@@ -209,6 +211,51 @@ def adaptive_scan(fun, h: np.ndarray, z: np.ndarray | None = None, tol: float = 
         z = np.concatenate([z, z_new], axis=1)[:, order]
         if derivative:
             dz = np.concatenate([dz, np.asarray(dz_new, complex).reshape(z_new.shape)], axis=1)[:, order]
+    return AdaptiveScan(h=h, z=z, levels=level, n_evaluations=n_eval, dz=dz)
+
+
+def _split_dh(h: np.ndarray, z: np.ndarray, dz: np.ndarray, i: np.ndarray, tol: float,
+              min_step: float) -> np.ndarray:
+    """Which of the intervals ``[h_i, h_{i+1}]`` (indices ``i``) the derivative rule halves."""
+    za, zb = z[:, i], z[:, i + 1]
+    width = h[i + 1] - h[i]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d = np.abs(np.log(zb / za))
+    d = np.where(np.isfinite(d), d, np.inf)
+    split = d.max(axis=0) > tol
+    la = np.log(np.maximum(np.abs(za), 1e-300))
+    lb = np.log(np.maximum(np.abs(zb), 1e-300))
+    ga, gb = _dlogabs(za, dz[:, i]), _dlogabs(zb, dz[:, i + 1])
+    same = np.sign(ga) == np.sign(gb)
+    split |= (same & _hermite_turns(la, lb, ga, gb, width[None, :])).any(axis=0)
+    return split & (width > min_step * (1.0 + 1e-9))
+
+
+def _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels) -> AdaptiveScan:
+    """:func:`adaptive_scan` with derivatives, testing only the intervals made at the last level.
+
+    Each rule looks at one interval's two end samples only, so an interval that was not halved
+    at one level is not halved at any later one; the final grid equals testing every interval
+    at every level.
+    """
+    n_eval = h.size
+    active = np.arange(h.size - 1)
+    level = 0
+    for level in range(1, max_levels + 1):
+        split = active[_split_dh(h, z, dz, active, tol, min_step)] if active.size else active
+        if not split.size:
+            level -= 1
+            break
+        h_new = 0.5 * (h[split] + h[split + 1])
+        z_new, dz_new = fun(h_new)
+        z_new = np.asarray(z_new, complex).reshape(z.shape[0], h_new.size)
+        dz_new = np.asarray(dz_new, complex).reshape(z_new.shape)
+        n_eval += h_new.size
+        h = np.insert(h, split + 1, h_new)
+        z = np.insert(z, split + 1, z_new, axis=1)
+        dz = np.insert(dz, split + 1, dz_new, axis=1)
+        left = split + np.arange(split.size)  # the left halves, at their new positions
+        active = np.sort(np.concatenate([left, left + 1]))
     return AdaptiveScan(h=h, z=z, levels=level, n_evaluations=n_eval, dz=dz)
 
 

@@ -114,10 +114,25 @@ def supply_impedance_pu(sc_mva: float, x_r: float, base_mva: float) -> tuple[flo
     return x / x_r, x
 
 
+#: one empty pandapower net per process: creating its ~70 tables costs about 0.2 s, a copy 0.02 s
+_EMPTY_NET: list = []
+
+
+def _empty_net(pp, name: str, f_hz: float, sn_mva: float):
+    """A fresh empty net (a copy of a per-process template, never handed out itself)."""
+    if not _EMPTY_NET:
+        _EMPTY_NET.append(pp.create_empty_network())
+    net = copy.deepcopy(_EMPTY_NET[0])
+    net["name"] = name
+    net["f_hz"] = f_hz
+    net["sn_mva"] = sn_mva
+    return net
+
+
 def _build_from_tables(case: Case):
     pp = _pp()
     kv, _ = bus_voltages_kv(case)
-    net = pp.create_empty_network(name=case.title, f_hz=float(case.frequency_hz), sn_mva=1.0)
+    net = _empty_net(pp, name=case.title, f_hz=float(case.frequency_hz), sn_mva=1.0)
     bus_pp: dict[str, int] = {}
     for name, v in kv.items():
         bus_pp[name] = int(pp.create_bus(net, vn_kv=v, name=name))
@@ -433,6 +448,14 @@ class LoadFlow:
     and each bank becomes a constant-impedance shunt whose output is changed
     between runs; later runs start from the previous solution.
 
+    pandapower solves the case once with every bank at zero.  Its bus
+    admittance matrix, injections and bus types then go to
+    :func:`resonance.loadflow.newton_raphson`, which must reproduce
+    pandapower's voltages to 1e-7 pu before it is used; each bank step then
+    only adds its susceptance to one diagonal entry (``mode == "arrays"``).
+    Where that check fails, every step is a pandapower ``runpp``
+    (``mode == "pandapower"``).
+
     Parameters
     ----------
     model : PlantModel
@@ -444,7 +467,8 @@ class LoadFlow:
 
     References
     ----------
-    pandapower documentation, ``runpp`` (Newton-Raphson power flow).
+    pandapower documentation, ``runpp`` (Newton-Raphson power flow); Tinney and
+    Hart (1967), see :mod:`resonance.loadflow`.
     """
 
     def __init__(self, model: PlantModel, bank_buses: dict, weak: bool = False):
@@ -460,6 +484,72 @@ class LoadFlow:
             self.shunt[name] = int(self._pp.create_shunt(self.net, b, q_mvar=0.0, p_mw=0.0,
                                                          vn_kv=float(self.net.bus.at[b, "vn_kv"])))
         self._solved = False
+        #: how the steps are solved: "arrays" (resonance.loadflow on pandapower's own Ybus) or
+        #: "pandapower" (runpp per step, when the arrays path could not be set up or verified)
+        self.mode = "pandapower"
+        self._pf = None
+        self._v_last = None
+        try:
+            self._runpp()
+        except Exception:  # noqa: BLE001  (pandapower's own errors; the per-step path reports them)
+            return
+        self._setup_arrays()
+
+    def _runpp(self) -> None:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            self._pp.runpp(self.net, calculate_voltage_angles=False, trafo_model="pi", numba=False,
+                           init="results" if self._solved else "flat", voltage_depend_loads=False)
+        self._solved = True
+
+    def _setup_arrays(self) -> None:
+        """Take pandapower's bus admittance matrix and injections (banks at zero) and verify
+        that :func:`resonance.loadflow.newton_raphson` reproduces pandapower's solution."""
+        from .loadflow import PowerFlowCase, newton_raphson  # noqa: PLC0415
+
+        try:
+            internal = self.net._ppc["internal"]
+            lookup = np.asarray(self.net._pd2ppc_lookups["bus"])
+            ybus = internal["Ybus"].tocsr()
+            v_pp = np.asarray(internal["V"], complex).copy()
+            ref = np.asarray(internal["ref"], int)
+            pv = np.asarray(internal["pv"], int)
+            pq = np.asarray(internal["pq"], int)
+            sbus = np.asarray(internal["Sbus"], complex).copy()
+        except (AttributeError, KeyError, TypeError, ValueError):
+            return
+        n = v_pp.size
+        if ybus.shape != (n, n) or sbus.size != n or ref.size == 0:
+            return
+        v0 = np.full(n, np.exp(1j * np.angle(v_pp[ref[0]])), complex)
+        fixed = np.concatenate([ref, pv])
+        v0[fixed] = np.abs(v_pp[fixed]) * np.exp(1j * np.angle(v_pp[ref[0]]))
+        v0[ref] = v_pp[ref]
+        pf = PowerFlowCase(ybus=ybus, sbus=sbus, v0=v0, ref=ref, pv=pv, pq=pq)
+        v, ok, _ = newton_raphson(pf)
+        # trust the arrays path only where it reproduces pandapower's own load flow
+        if not ok or np.max(np.abs(v - v_pp)) > 1e-7:
+            return
+        bank_idx = {}
+        for name in self.shunt:
+            b = int(self.net.shunt.at[self.shunt[name], "bus"])
+            k = int(lookup[b]) if b < lookup.size else -1
+            if not 0 <= k < n:
+                return
+            bank_idx[name] = k
+        model_idx = {}
+        for name, m in self.model.model_bus.items():
+            b = self.model.bus_pp[name]
+            k = int(lookup[b]) if b < lookup.size else -1
+            if not 0 <= k < n:
+                return
+            model_idx[m] = k
+        self._pf = pf
+        self._bank_idx = bank_idx
+        self._model_idx = model_idx
+        self._base_mva = float(internal["baseMVA"])
+        self._v_last = v
+        self.mode = "arrays"
 
     def vm_pu(self, q_kvar: dict) -> np.ndarray:
         """Bus voltages with the banks at the given outputs.
@@ -480,26 +570,48 @@ class LoadFlow:
         ModelError
             The load flow did not converge.
         """
-        for name, idx in self.shunt.items():
-            self.net.shunt.at[idx, "q_mvar"] = -float(q_kvar.get(name, 0.0)) / 1000.0
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                self._pp.runpp(self.net, calculate_voltage_angles=False, trafo_model="pi", numba=False,
-                               init="results" if self._solved else "flat", voltage_depend_loads=False)
-        except Exception as e:  # pandapower raises its own LoadflowNotConverged and others
-            self._solved = False
-            raise ModelError(f"fundamental load flow did not converge ({type(e).__name__})") from None
-        self._solved = True
-        vm = np.ones(self.model.arrays.n_bus)
-        for name, m in self.model.model_bus.items():
-            vm[m] = float(self.net.res_bus.at[self.model.bus_pp[name], "vm_pu"])
+        if self.mode == "arrays":
+            vm = self._vm_arrays(q_kvar)
+        else:
+            vm = self._vm_pandapower(q_kvar)
         # a solution far from nominal is a spurious Newton root (seen near 1e-9 pu when a bank
         # reaches 40-100 % of the short-circuit power at its bus), not an operating point
         if not np.all((vm > 0.5) & (vm < 2.5)):
             self._solved = False
+            self._v_last = None
             raise ModelError(f"fundamental load flow found no plausible operating point "
                              f"(bus voltages {vm.min():.3g} to {vm.max():.3g} pu)")
+        return vm
+
+    def _vm_arrays(self, q_kvar: dict) -> np.ndarray:
+        from .loadflow import solve_with_shunts  # noqa: PLC0415
+
+        names = list(self._bank_idx)
+        bus = np.array([self._bank_idx[k] for k in names], int)
+        b_pu = np.array([float(q_kvar.get(k, 0.0)) / 1000.0 / self._base_mva for k in names])
+        v, ok, _ = solve_with_shunts(self._pf, bus, b_pu, v_start=self._v_last)
+        if not ok and self._v_last is not None:
+            v, ok, _ = solve_with_shunts(self._pf, bus, b_pu)  # again from the flat start
+        if not ok:
+            self._v_last = None
+            raise ModelError("fundamental load flow did not converge (Newton-Raphson on the bus admittance matrix)")
+        self._v_last = v
+        vm = np.ones(self.model.arrays.n_bus)
+        for m, k in self._model_idx.items():
+            vm[m] = abs(v[k])
+        return vm
+
+    def _vm_pandapower(self, q_kvar: dict) -> np.ndarray:
+        for name, idx in self.shunt.items():
+            self.net.shunt.at[idx, "q_mvar"] = -float(q_kvar.get(name, 0.0)) / 1000.0
+        try:
+            self._runpp()
+        except Exception as e:  # pandapower raises its own LoadflowNotConverged and others
+            self._solved = False
+            raise ModelError(f"fundamental load flow did not converge ({type(e).__name__})") from None
+        vm = np.ones(self.model.arrays.n_bus)
+        for name, m in self.model.model_bus.items():
+            vm[m] = float(self.net.res_bus.at[self.model.bus_pp[name], "vm_pu"])
         return vm
 
 

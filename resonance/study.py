@@ -232,23 +232,24 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
     sc_mva = base / abs(zt)
     x_r = zt.imag / zt.real if zt.real > 0 else float("inf")
     q_nom = bank.q_cap_nominal_kvar()
-    peaks_idx = find_peaks(h, np.abs(zkk[1:]))
-    # refine every peak of every step in one batch
-    flat_h, flat_step = [], []
-    for s, idx in enumerate(peaks_idx):
-        flat_h += list(h[idx])
-        flat_step += [s] * idx.size
-    flat_h_arr = np.array(flat_h, float)
-    flat_step_arr = np.array(flat_step, int)
+    if not _ADAPTIVE_PEAKS:
+        # peaks of the uniform grid, each refined on finer local grids (all in one batch)
+        peaks_idx = find_peaks(h, np.abs(zkk[1:]))
+        flat_h, flat_step = [], []
+        for s, idx in enumerate(peaks_idx):
+            flat_h += list(h[idx])
+            flat_step += [s] * idx.size
+        flat_h_arr = np.array(flat_h, float)
+        flat_step_arr = np.array(flat_step, int)
 
-    def fun(hh: np.ndarray, which: np.ndarray) -> np.ndarray:
-        z = impedance_columns(arr, hh, np.array([bank.index]), settings, extra(hh),
-                              rows=np.array([bank.index]), pattern=pattern)[:, 0, 0]
-        y = bank.step_admittance(hh, base)[np.arange(hh.size), flat_step_arr[which]]
-        return np.abs(z / (1.0 + y * z))
+        def fun(hh: np.ndarray, which: np.ndarray) -> np.ndarray:
+            z = impedance_columns(arr, hh, np.array([bank.index]), settings, extra(hh),
+                                  rows=np.array([bank.index]), pattern=pattern)[:, 0, 0]
+            y = bank.step_admittance(hh, base)[np.arange(hh.size), flat_step_arr[which]]
+            return np.abs(z / (1.0 + y * z))
 
-    h_ref, z_ref = refine_peaks(fun, flat_h_arr, h_step)
-    if _ADAPTIVE_PEAKS:
+        h_ref, z_ref = refine_peaks(fun, flat_h_arr, h_step)
+    else:
         # adaptive grid (resonance.grid): brackets every local maximum, even one narrower than the
         # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
         from .scan import step_peaks  # noqa: PLC0415
