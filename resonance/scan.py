@@ -18,7 +18,7 @@ import numpy as np
 
 from .admittance import YPattern
 from .engine import SparseEngine, sparse_columns
-from .grid import AdaptiveScan, adaptive_scan, golden_refine, peak_brackets
+from .grid import AdaptiveScan, adaptive_scan, peak_brackets, zoom_refine
 from .network import NetworkArrays
 
 __all__ = [
@@ -461,7 +461,14 @@ def driving_point_steps(arr: NetworkArrays, h: np.ndarray, bus: int, step_admitt
     de_dh = None if de is None else _central_dh(extra, h)
     z0, dz0 = impedance_columns_dh(arr, h, k, settings, de, rows=k, pattern=pattern,
                                    diag_extra_dh=de_dh, workers=workers)
-    z0, dz0 = z0[:, 0, 0][:, None], dz0[:, 0, 0][:, None]
+    return _with_steps(h, z0[:, 0, 0], dz0[:, 0, 0], step_admittance, ys)
+
+
+def _with_steps(h: np.ndarray, z0: np.ndarray, dz0: np.ndarray, step_admittance, ys=None):
+    """Bank-off ``Z_kk`` and ``dZ_kk/dh`` (shape (n_h,)) -> every step's, by Sherman-Morrison [pu]."""
+    if ys is None:
+        ys = np.asarray(step_admittance(h), complex).reshape(h.size, -1)
+    z0, dz0 = z0[:, None], dz0[:, None]
     dys = _central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
     den = 1.0 + ys * z0
     zs = z0 / den
@@ -491,7 +498,7 @@ class StepPeaks:
 def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
                settings: ModelSettings = ModelSettings(), extra=None, pattern: YPattern | None = None,
                tol: float = 0.05, min_step: float | None = None, xtol: float = 1e-5,
-               workers: int | None = None) -> StepPeaks:
+               workers: int | None = None, base: tuple | None = None) -> StepPeaks:
     """Every local maximum of ``|Z|`` at a bank bus, for the bank off and each step.
 
     Parameters
@@ -505,7 +512,10 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
     min_step : float, optional
         Narrowest interval (default: base step / 16) [unitless].
     xtol : float
-        Final width of each peak's golden-section bracket [unitless].
+        Final width of each peak's search bracket [unitless].
+    base : (ndarray, ndarray), optional
+        Bank-off ``Z_kk`` and ``dZ_kk/dh`` on ``h`` (shape (n_h,)), when the caller
+        has solved the base grid already (e.g. with :func:`impedance_columns_dh`) [pu].
 
     Returns
     -------
@@ -517,7 +527,8 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
     A peak is a local maximum of ``|Z(h)|``.  The grid is refined with the
     analytic derivative ``dZ/dh`` (:func:`resonance.grid.adaptive_scan`); each
     interval where ``d|Z|/dh`` turns from positive to non-positive brackets a
-    maximum, and golden-section search inside the bracket converges to it.
+    maximum, and a batched sequential search inside the bracket
+    (:func:`resonance.grid.zoom_refine`) converges to it.
     """
     h = np.atleast_1d(np.asarray(h, float))
     if min_step is None:
@@ -526,13 +537,18 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
     def fun(hh, derivative=True):
         return driving_point_steps(arr, hh, bus, step_admittance, settings, extra, pattern, workers, derivative)
 
-    sc = adaptive_scan(fun, h, tol=tol, min_step=min_step, derivative=True)
+    z_base = dz_base = None
+    if base is not None:
+        z_base, dz_base = _with_steps(h, np.asarray(base[0], complex), np.asarray(base[1], complex),
+                                      step_admittance)
+    sc = adaptive_scan(fun, h, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True)
     curve, lo, hi = peak_brackets(sc)
 
-    def f(hh):
-        return np.abs(fun(hh, False))[curve, np.arange(hh.size)]
+    def f(x):  # x: (bracket, sample) -> |Z| of each bracket's own curve
+        z = np.abs(fun(x.ravel(), False))
+        return z[np.repeat(curve, x.shape[1]), np.arange(x.size)].reshape(x.shape)
 
-    hp, zp = golden_refine(f, lo, hi, xtol=xtol)
+    hp, zp = zoom_refine(f, lo, hi, xtol=xtol)
     n_c = sc.z.shape[0]
     hs = tuple(hp[curve == c] for c in range(n_c))
     zs = tuple(zp[curve == c] for c in range(n_c))

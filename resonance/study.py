@@ -7,6 +7,7 @@ Pure apart from the pandapower calls made through :mod:`resonance.netmodel`
 from __future__ import annotations
 
 import math
+import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -15,7 +16,8 @@ from .admittance import YPattern, bank_step_admittance
 from .case import Case
 from .errors import InputError, InputProblem, ModelError
 from .network import NetworkArrays
-from .scan import ModelSettings, find_peaks, harmonic_grid, impedance_columns, refine_peaks, step_update
+from .scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, impedance_columns_dh, refine_peaks,
+                   step_update)
 from .screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
 __all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models"]
@@ -174,6 +176,10 @@ class StudyResult:
         return None
 
 
+#: network -> the same network without loads (weak keys: dropped with the network)
+_NO_LOADS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
 def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) -> np.ndarray:
     """Driving-point impedance at the fundamental, loads excluded (short-circuit impedance).
 
@@ -197,7 +203,10 @@ def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) 
     location, here with c = 1 and no correction factors).
     """
     buses = np.asarray(buses, int)
-    z = impedance_columns(arr.without_loads(), np.array([1.0]), buses,
+    bare = _NO_LOADS.get(arr)
+    if bare is None:  # one load-free copy per network, so its solver set-up is reused
+        bare = _NO_LOADS[arr] = arr.without_loads()
+    z = impedance_columns(bare, np.array([1.0]), buses,
                           ModelSettings(settings.r_model, "none"), rows=buses)
     return np.diagonal(z[0])
 
@@ -218,8 +227,15 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
             d[:, ob.index] += ob.step_admittance(hh, base)[:, -1]
         return d
 
+    de = extra(h)
+    de_dh = None
+    if de is not None:
+        eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
+        de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
     try:
-        z0 = impedance_columns(arr, h, cols, settings, extra(h), rows=cols, pattern=pattern)
+        # with dZ/dh: the same solve seeds the adaptive peak search (scan.step_peaks)
+        z0, dz0 = impedance_columns_dh(arr, h, cols, settings, de, rows=cols, pattern=pattern,
+                                       diag_extra_dh=de_dh)
     except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
         raise ModelError(f"network admittance is singular ({e})") from None
     ys = bank.step_admittance(h, base)  # (n_h, N)
@@ -255,7 +271,7 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
         from .scan import step_peaks  # noqa: PLC0415
 
         spk = step_peaks(arr, bank.index, lambda hh: bank.step_admittance(hh, base), h, settings,
-                         extra=extra, pattern=pattern)
+                         extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
         hs_, zs_, st_ = [], [], []
         for s in range(bank.n_steps):
             hp, zp = np.asarray(spk.h_peak[s + 1], float), np.asarray(spk.z_peak[s + 1], float)
