@@ -1,0 +1,61 @@
+"""Peak refinement and the adaptive grid's stopping rule, against closed forms."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from resonance.grid import _split_dh, adaptive_scan, golden_refine, zoom_refine
+
+
+def _parallel_rlc(h, h0, q):
+    # normalised parallel RLC impedance Z = 1 / (1 + j Q (h/h0 - h0/h)); |Z| peaks at h0 with 1
+    # (derived: the admittance's imaginary part vanishes at h = h0)
+    return 1.0 / (1.0 + 1j * q * (h / h0 - h0 / h))
+
+
+@pytest.mark.parametrize("points", [3, 7, 12])
+def test_zoom_refine_finds_the_resonance_of_a_parallel_rlc(points):
+    h0 = np.array([4.731, 7.05, 13.74, 17.2227])
+    q = np.array([5.0, 40.0, 200.0, 1000.0])
+    lo, hi = h0 - 0.013, h0 + 0.007
+
+    def f(x):
+        return np.abs(_parallel_rlc(x, h0[:, None], q[:, None]))
+
+    hp, zp = zoom_refine(f, lo, hi, xtol=1e-6, points=points)
+    # Reference: derived, maximum at h = h0 with |Z| = 1
+    np.testing.assert_allclose(hp, h0, atol=1e-6)
+    np.testing.assert_allclose(zp, 1.0, atol=1e-6)
+    # same answer as golden-section search (Kiefer 1953) on the same brackets
+    hg, _ = golden_refine(lambda x: np.abs(_parallel_rlc(x, h0, q)), lo, hi, xtol=1e-7)
+    np.testing.assert_allclose(hp, hg, atol=2e-6)
+
+
+def test_zoom_refine_with_no_brackets():
+    hp, zp = zoom_refine(lambda x: x, np.zeros(0), np.zeros(0))
+    assert hp.size == 0 and zp.size == 0
+
+
+def test_adaptive_grid_leaves_no_interval_the_rule_would_still_halve():
+    # two sharp resonances (Q = 300 and 2000) between base samples 0.1 apart; the stopping rule
+    # (resonance.grid.adaptive_scan Notes) must hold on every interval of the final grid
+    h0 = np.array([[5.03], [11.377]])
+    q = np.array([[300.0], [2000.0]])
+
+    def fun(h):
+        z = _parallel_rlc(h[None, :], h0, q)
+        # dZ/dh = -Z^2 dY/dh, dY/dh = j Q (1/h0 + h0/h^2) (derived)
+        dz = -z**2 * 1j * q * (1.0 / h0 + h0 / h[None, :] ** 2)
+        return z, dz
+
+    base = np.arange(1.0, 20.0 + 1e-9, 0.1)
+    min_step = 0.1 / 64
+    sc = adaptive_scan(fun, base, tol=0.05, min_step=min_step, derivative=True, max_levels=12)
+    split = _split_dh(sc.h, sc.z, sc.dz, np.arange(sc.h.size - 1), 0.05, min_step)
+    assert not split.any()
+    # the grid is the base grid plus midpoints only, and is sampled finely at both peaks
+    assert np.all(np.diff(sc.h) > 0)
+    for c in range(2):
+        k = np.argmin(np.abs(sc.h - h0[c, 0]))
+        assert abs(sc.h[k] - h0[c, 0]) <= min_step
