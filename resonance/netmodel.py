@@ -21,7 +21,7 @@ from .case import Case, bus_voltages_kv
 from .errors import InputError, InputProblem, ModelError
 from .network import BRANCH_LINE, BRANCH_OTHER, BRANCH_TRAFO, NetworkArrays
 
-__all__ = ["PlantModel", "LoadFlow", "build_model", "load_flow_vm_pu", "iec60909_sc_mva", "supply_impedance_pu"]
+__all__ = ["PlantModel", "LoadFlow", "load_flow_session", "build_model", "load_flow_vm_pu", "iec60909_sc_mva", "supply_impedance_pu"]
 
 
 def _pp():
@@ -77,11 +77,41 @@ class PlantModel:
         key = ("vm", weak, tuple(sorted(bank_buses.items())),
                tuple(sorted((k, round(math.log(max(float(v), 1e-9)) / math.log(1.002))) for k, v in q_kvar.items())))
         if key not in self.cache:
-            skey = ("lf", weak, tuple(sorted(bank_buses.items())))
-            if skey not in self.cache:
-                self.cache[skey] = LoadFlow(self, bank_buses, weak=weak)
-            self.cache[key] = self.cache[skey].vm_pu(q_kvar)
+            self.cache[key] = load_flow_session(self, bank_buses, weak).vm_pu(q_kvar)
         return self.cache[key].copy()
+
+
+def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False) -> "LoadFlow":
+    """The memoised :class:`LoadFlow` of a plant with the given banks, in one supply scenario.
+
+    The weak-supply session is derived from the nominal one by changing the supply
+    impedance in the bus admittance matrix (:meth:`LoadFlow.with_supply`) when the
+    nominal session runs on arrays; otherwise it is a pandapower session of its own.
+
+    Parameters
+    ----------
+    model : PlantModel
+        Plant model (its ``cache`` holds the sessions).
+    bank_buses : dict
+        Bank name -> bus name.
+    weak : bool
+        Weak-supply scenario (``sc_mva_supply_min``).
+
+    Returns
+    -------
+    LoadFlow
+    """
+    buses = tuple(sorted(bank_buses.items()))
+    skey = ("lf", weak, buses)
+    if skey not in model.cache:
+        if weak and model.sc_mva_supply_min:
+            nominal = load_flow_session(model, bank_buses, False)
+            xr = model.x_r_supply_min or model.x_r_supply
+            lf = nominal.with_supply(model.sc_mva_supply_min, xr) if nominal.mode == "arrays" else None
+            model.cache[skey] = lf if lf is not None else LoadFlow(model, bank_buses, weak=True)
+        else:
+            model.cache[skey] = LoadFlow(model, bank_buses, weak=weak)
+    return model.cache[skey]
 
 
 def supply_impedance_pu(sc_mva: float, x_r: float, base_mva: float) -> tuple[float, float]:
@@ -477,7 +507,7 @@ class LoadFlow:
         self.net = copy.deepcopy(model.net)
         sc = model.sc_mva_supply_min if weak and model.sc_mva_supply_min else model.sc_mva_supply
         xr = model.x_r_supply_min if weak and model.x_r_supply_min else model.x_r_supply
-        _supply_behind_impedance(self._pp, self.net, model, sc, xr)
+        self._source = _supply_behind_impedance(self._pp, self.net, model, sc, xr)
         self.shunt = {}
         for name, bus in bank_buses.items():
             b = model.bus_pp[bus]
@@ -494,6 +524,54 @@ class LoadFlow:
         except Exception:  # noqa: BLE001  (pandapower's own errors; the per-step path reports them)
             return
         self._setup_arrays()
+
+    def with_supply(self, sc_mva: float, x_r: float) -> "LoadFlow | None":
+        """The same session with another supply short-circuit power (arrays mode only).
+
+        Parameters
+        ----------
+        sc_mva : float
+            Supply short-circuit power [MVA].
+        x_r : float
+            Supply X/R [unitless].
+
+        Returns
+        -------
+        LoadFlow or None
+            A new session sharing this one's arrays, or None where this session
+            is not on arrays or has no supply impedance to change.
+
+        Notes
+        -----
+        The supply impedance is a series branch between the source-EMF bus ``a``
+        and the supply bus ``s``; changing its admittance from ``y`` to ``y'``
+        adds ``y' - y`` to ``Y[a, a]`` and ``Y[s, s]`` and subtracts it from
+        ``Y[a, s]`` and ``Y[s, a]`` (Grainger and Stevenson, sec. 7.4).
+        """
+        if self.mode != "arrays" or not self._source:
+            return None
+        import scipy.sparse as sp  # noqa: PLC0415
+
+        from .loadflow import PowerFlowCase  # noqa: PLC0415
+
+        lookup = np.asarray(self.net._pd2ppc_lookups["bus"])
+        rows, cols, vals = [], [], []
+        for aux, sup, r_old, x_old in self._source:
+            a, b = int(lookup[aux]), int(lookup[sup])
+            r_new, x_new = supply_impedance_pu(sc_mva, x_r, float(self.net.sn_mva))
+            dy = 1.0 / complex(r_new, x_new) - 1.0 / complex(r_old, x_old)
+            rows += [a, b, a, b]
+            cols += [a, b, b, a]
+            vals += [dy, dy, -dy, -dy]
+        n = self._pf.n_bus
+        dyb = sp.csr_matrix((np.array(vals, complex), (rows, cols)), shape=(n, n))
+        new = copy.copy(self)
+        new._pf = PowerFlowCase(ybus=(self._pf.ybus + dyb).tocsr(), sbus=self._pf.sbus, v0=self._pf.v0,
+                                ref=self._pf.ref, pv=self._pf.pv, pq=self._pf.pq)
+        new._source = [(aux, sup, *supply_impedance_pu(sc_mva, x_r, float(self.net.sn_mva)))
+                       for aux, sup, _, _ in self._source]
+        new._v_last = None if self._v_last is None else self._v_last.copy()
+        return new
 
     def _runpp(self) -> None:
         with warnings.catch_warnings():
@@ -635,8 +713,10 @@ def load_flow_vm_pu(model: PlantModel, shunts: list[tuple[str, float]]) -> np.nd
 
 
 def _supply_behind_impedance(pp, net, model: PlantModel, sc_mva: float | None = None,
-                             x_r: float | None = None) -> None:
+                             x_r: float | None = None) -> list:
     """Put each external grid behind its Thevenin impedance (load-flow copy only).
+
+    Returns the supply-bus source impedances as (source-EMF bus, supply bus, r [pu], x [pu]).
 
     pandapower's external grid is an ideal source in the load flow; the
     voltage rise of a bank step depends on the supply impedance, so the
@@ -644,6 +724,7 @@ def _supply_behind_impedance(pp, net, model: PlantModel, sc_mva: float | None = 
     bus through the physical (c = 1) short-circuit impedance.
     """
     sup = model.bus_pp[model.supply_bus]
+    source = []
     for gi in list(net.ext_grid.index):
         if not bool(net.ext_grid.at[gi, "in_service"]):
             continue
@@ -661,6 +742,9 @@ def _supply_behind_impedance(pp, net, model: PlantModel, sc_mva: float | None = 
         aux = pp.create_bus(net, vn_kv=float(net.bus.at[b, "vn_kv"]), name=f"__source_emf_{gi}")
         pp.create_impedance(net, aux, b, rft_pu=r_pu, xft_pu=x_pu, sn_mva=float(net.sn_mva))
         net.ext_grid.at[gi, "bus"] = aux
+        if b == sup:
+            source.append((int(aux), b, r_pu, x_pu))
+    return source
 
 
 def iec60909_sc_mva(model: PlantModel, buses: list[str], case: str = "max") -> dict[str, float]:

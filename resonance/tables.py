@@ -15,8 +15,8 @@ def scan_csv(sc) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["h"] + ["z_ohm_bank_off"] + [f"z_ohm_step_{s.step}" for s in sc.steps])
-    for i, h in enumerate(sc.h):
-        w.writerow([f"{h:.4f}"] + [f"{sc.z_ohm[j, i]:.6g}" for j in range(sc.z_ohm.shape[0])])
+    w.writerows([f"{h:.4f}"] + [f"{z:.6g}" for z in zs]
+                for h, zs in zip(sc.h.tolist(), sc.z_ohm.T.tolist()))
     return buf.getvalue()
 
 
