@@ -16,8 +16,8 @@ from .admittance import YPattern, bank_step_admittance
 from .case import Case
 from .errors import InputError, InputProblem, ModelError
 from .network import NetworkArrays
-from .scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, impedance_columns_dh, refine_peaks,
-                   step_update)
+from .scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, impedance_columns_dh,
+                   refine_peaks)
 from .screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
 __all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models"]
@@ -227,21 +227,15 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
             d[:, ob.index] += ob.step_admittance(hh, base)[:, -1]
         return d
 
-    de = extra(h)
-    de_dh = None
-    if de is not None:
-        eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
-        de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
-    try:
-        # with dZ/dh: the same solve seeds the adaptive peak search (scan.step_peaks)
-        z0, dz0 = impedance_columns_dh(arr, h, cols, settings, de, rows=cols, pattern=pattern,
-                                       diag_extra_dh=de_dh)
-    except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
-        raise ModelError(f"network admittance is singular ({e})") from None
+    z0, dz0 = _bank_off_columns(arr, h, cols, settings, extra, pattern)
     ys = bank.step_admittance(h, base)  # (n_h, N)
-    zs = step_update(z0, kc, kc, ys)  # (n_h, N, r, m)
-    zkk = np.concatenate([z0[:, None, kc, kc], zs[:, :, kc, kc]], axis=1).T  # (N+1, n_h)
-    zpp = np.concatenate([z0[:, None, pc, pc], zs[:, :, pc, pc]], axis=1).T
+    # Sherman-Morrison (scan.step_update) for the two diagonal entries used:
+    # Z'_ij = Z_ij - Z_ik g Z_kj with g = y / (1 + y Z_kk)
+    g = ys / (1.0 + ys * z0[:, kc, kc][:, None])  # (n_h, N)
+    zs_kk = z0[:, kc, kc][:, None] - g * (z0[:, kc, kc] ** 2)[:, None]
+    zs_pp = z0[:, pc, pc][:, None] - g * (z0[:, pc, kc] * z0[:, kc, pc])[:, None]
+    zkk = np.concatenate([z0[:, None, kc, kc], zs_kk], axis=1).T  # (N+1, n_h)
+    zpp = np.concatenate([z0[:, None, pc, pc], zs_pp], axis=1).T
     zb_k = bank.bus_kv**2 / base
     zb_p = float(arr.bus_kv[pcc]) ** 2 / base
     zt = thevenin_pu(arr if other_mode != "full" else arr, np.array([bank.index]), settings)[0]
@@ -308,6 +302,38 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
             margin_pct=margin, resonance_ok=ok, damping_sensitive=sensitive))
     return BankScan(bank=bank, scenario=scenario, sc_mva=float(sc_mva), x_r=float(x_r), h=h,
                     z_ohm=np.abs(zkk) * zb_k, z_pcc_ohm=np.abs(zpp) * zb_p, steps=tuple(steps))
+
+
+#: network -> {(grid, buses, models): (Z, dZ/dh)} of bank-off scans without other banks in service,
+#: shared by the re-checks of detuned variants (the network is the same, only the bank differs)
+_BANK_OFF: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, settings: ModelSettings, extra,
+                      pattern: YPattern) -> tuple[np.ndarray, np.ndarray]:
+    """Bank-off ``Z[:, cols, cols]`` and ``dZ/dh`` on the grid ``h`` [pu] (read-only arrays)."""
+    de = extra(h)
+    key = None
+    if de is None:
+        key = (h.size, h.tobytes(), tuple(int(c) for c in cols), settings)
+        hit = _BANK_OFF.get(arr, {}).get(key)
+        if hit is not None:
+            return hit
+    de_dh = None
+    if de is not None:
+        eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
+        de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
+    try:
+        # with dZ/dh: the same solve seeds the adaptive peak search (scan.step_peaks)
+        z0, dz0 = impedance_columns_dh(arr, h, cols, settings, de, rows=cols, pattern=pattern,
+                                       diag_extra_dh=de_dh)
+    except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
+        raise ModelError(f"network admittance is singular ({e})") from None
+    if key is not None:
+        z0.flags.writeable = False
+        dz0.flags.writeable = False
+        _BANK_OFF.setdefault(arr, {})[key] = (z0, dz0)
+    return z0, dz0
 
 
 #: find peaks on the adaptive grid of resonance.grid (True) or the uniform grid only (False)
