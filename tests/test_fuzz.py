@@ -243,6 +243,25 @@ def test_valid_radial_plants_run_and_keep_invariants(doc):
         assert np.all(np.isfinite(z))
         # Re Z >= 0 up to round-off relative to |Z|
         assert np.all(z.real >= -1e-9 * np.abs(z)), (bm.name, float(np.min(z.real / np.abs(z))))
+    # the arrays load flow the study uses equals pandapower's runpp with every bank at full output
+    # (Reference: pandapower runpp, Newton-Raphson)
+    from resonance.errors import ModelError
+    from resonance.netmodel import LoadFlow, load_flow_session
+
+    buses = {b.name: b.bus for b in case.bank}
+    full = {bm.name: float(bm.q_cap_nominal_kvar()[-1] / (1.0 - bm.p))
+            for bm in bank_models(case, model.arrays, model.model_bus)}
+    for weak in (False, True):
+        if weak and model.sc_mva_supply_min is None:
+            continue
+        fast = load_flow_session(model, buses, weak)
+        ref = LoadFlow(model, buses, weak=weak)
+        ref.mode = "pandapower"
+        try:
+            v_ref = ref.vm_pu(full)
+        except ModelError:  # pandapower itself fails on some degenerate draws (denormal reactances)
+            continue
+        np.testing.assert_allclose(fast.vm_pu(full), v_ref, rtol=0, atol=1e-8)
 
 
 @st.composite
