@@ -168,17 +168,17 @@ def load_admittance(p_pu: np.ndarray, q_pu: np.ndarray, h: np.ndarray, model: st
         q_cap = np.where(q < 0, q, 0.0)
         return p + 0j - 1j * q_ind / h - 1j * q_cap * h
     if model == "series_rl":
+        # Y = 1 / Z = (P^2 + Q^2) / (P + j h Q): no division by a vanishing power
         s2 = p**2 + q**2
-        with np.errstate(divide="ignore", invalid="ignore"):
-            z = np.where(s2 > 0, (p + 1j * h * q) / np.where(s2 > 0, s2, 1.0), np.inf)
-            y = np.where(np.isfinite(z), 1.0 / np.where(np.isfinite(z), z, 1.0), 0.0)
-        return y
+        den = np.where(s2 > 0, p + 1j * h * q, 1.0)
+        return np.where(s2 > 0, s2 / den, 0.0) + 0j
     if model == "cigre_c4":
-        with np.errstate(divide="ignore", invalid="ignore"):
-            r = np.where(p > 0, 1.0 / np.where(p > 0, p, 1.0), np.inf)
-            y_rs = np.where(p > 0, 1.0 / (r + 1j * 0.073 * h * r), 0.0)
-            k = np.where(p > 0, 6.7 * q / np.where(p > 0, p, 1.0) - 0.74, 0.0)
-            y_p = np.where(k > 0, k / (1j * h * np.where(p > 0, r, 1.0)), 0.0)
+        # R = 1/P, so 1 / (R (1 + j 0.073 h)) = P / (1 + j 0.073 h), and k / (j h R) = k P / (j h)
+        # with k P = 6.7 Q - 0.74 P: the same model written without 1/P (no overflow for tiny P)
+        pp = np.where(p > 0, p, 0.0)
+        y_rs = pp / (1.0 + 1j * 0.073 * h)
+        kp = np.where(p > 0, 6.7 * q - 0.74 * p, 0.0)
+        y_p = np.where(kp > 0, kp, 0.0) / (1j * h)
         return y_rs + y_p
     raise ValueError(f"unknown load model {model!r}")
 

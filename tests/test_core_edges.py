@@ -1,4 +1,4 @@
-"""Peak refinement and the adaptive grid's stopping rule, against closed forms."""
+"""Peak refinement, the adaptive grid's stopping rule and the load models, against closed forms."""
 
 from __future__ import annotations
 
@@ -59,3 +59,32 @@ def test_adaptive_grid_leaves_no_interval_the_rule_would_still_halve():
     for c in range(2):
         k = np.argmin(np.abs(sc.h - h0[c, 0]))
         assert abs(sc.h[k] - h0[c, 0]) <= min_step
+
+
+@pytest.mark.parametrize("p_pu", [0.8, 1e-3, 1e-160, 2.2e-309, 0.0])
+def test_load_models_are_finite_and_match_their_defining_circuits(p_pu):
+    # Reference: derived from each model's circuit; a vanishing load draws (almost) nothing and
+    # must not turn into inf/nan admittance (seen with a denormal kW in a generated case)
+    from resonance.admittance import load_admittance
+
+    q_pu = 0.6 * p_pu
+    h = np.array([1.0, 5.0, 13.0])
+    for model in ("parallel_rl", "series_rl", "cigre_c4"):
+        y = load_admittance(np.array([p_pu]), np.array([q_pu]), h, model)[:, 0]
+        assert np.all(np.isfinite(y)), model
+        # scale: no model draws more than 7.7 (P + Q) (CIGRE C4 at h = 1: P + j(6.7 Q - 0.74 P))
+        assert np.all(np.abs(y) <= 7.7 * (p_pu + q_pu) + 1e-300), model
+    if p_pu < 1e-3:
+        return
+    y = load_admittance(np.array([p_pu]), np.array([q_pu]), h, "cigre_c4")[:, 0]
+    r = 1.0 / p_pu
+    k = 6.7 * q_pu / p_pu - 0.74
+    # CIGRE C4 circuit: R in series with j 0.073 h R, in parallel with j h R / k (from memory)
+    np.testing.assert_allclose(y, 1.0 / (r + 1j * 0.073 * h * r) + k / (1j * h * r), rtol=1e-12)
+    y = load_admittance(np.array([p_pu]), np.array([q_pu]), h, "series_rl")[:, 0]
+    # series R-L drawing P, Q at the fundamental: Z = (P + j h Q) / (P^2 + Q^2) (derived)
+    np.testing.assert_allclose(y, (p_pu**2 + q_pu**2) / (p_pu + 1j * h * q_pu), rtol=1e-12)
+    # and at h = 1 every model draws S = P + jQ at 1 pu voltage: S* = Y* (conj) -> Y = P - jQ
+    for model in ("parallel_rl", "series_rl"):
+        y1 = load_admittance(np.array([p_pu]), np.array([q_pu]), np.array([1.0]), model)[0, 0]
+        np.testing.assert_allclose(y1, p_pu - 1j * q_pu, rtol=1e-12)
