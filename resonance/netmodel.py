@@ -264,6 +264,33 @@ def _from_network_file(case: Case):
     return net, bus_pp, supply_bus, sc, xr, sc_min, xr_min
 
 
+def _grid_impedances(net, pp2m: np.ndarray, sc_by_grid: dict | None, require_grid_data: bool,
+                     base: float) -> tuple[list, list, list]:
+    """Model bus, r [pu] and x [pu] of each in-service external grid (see :func:`net_to_arrays`)."""
+    g_bus, g_r, g_x = [], [], []
+    for gi, r in net.ext_grid.iterrows():
+        if not bool(r.in_service):
+            continue
+        m = pp2m[int(r.bus)]
+        if m < 0:
+            continue
+        if sc_by_grid and gi in sc_by_grid:
+            sc, xr = sc_by_grid[gi]
+        else:
+            sc = float(r.get("s_sc_max_mva", float("nan")))
+            rx = float(r.get("rx_max", float("nan")))
+            xr = 1.0 / rx if rx and np.isfinite(rx) and rx > 0 else float("nan")
+        if not (np.isfinite(sc) and sc > 0 and np.isfinite(xr) and xr > 0):
+            if not require_grid_data:
+                continue
+            raise ModelError(f"external grid {gi} has no short-circuit data (s_sc_max_mva, rx_max)")
+        rg, xg = supply_impedance_pu(sc, xr, base)
+        g_bus.append(m)
+        g_r.append(rg)
+        g_x.append(xg)
+    return g_bus, g_r, g_x
+
+
 def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool = True) -> tuple[NetworkArrays, np.ndarray]:
     """Convert a pandapower net into :class:`NetworkArrays` (on a copy of the net).
 
@@ -384,27 +411,7 @@ def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool =
         ld_bus.append(m)
         ld_p.append(float(r.p_mw) * sc / base)
         ld_q.append(float(r.q_mvar) * sc / base)
-    g_bus, g_r, g_x = [], [], []
-    for gi, r in net.ext_grid.iterrows():
-        if not bool(r.in_service):
-            continue
-        m = pp2m[int(r.bus)]
-        if m < 0:
-            continue
-        if sc_by_grid and gi in sc_by_grid:
-            sc, xr = sc_by_grid[gi]
-        else:
-            sc = float(r.get("s_sc_max_mva", float("nan")))
-            rx = float(r.get("rx_max", float("nan")))
-            xr = 1.0 / rx if rx and np.isfinite(rx) and rx > 0 else float("nan")
-        if not (np.isfinite(sc) and sc > 0 and np.isfinite(xr) and xr > 0):
-            if not require_grid_data:
-                continue
-            raise ModelError(f"external grid {gi} has no short-circuit data (s_sc_max_mva, rx_max)")
-        rg, xg = supply_impedance_pu(sc, xr, base)
-        g_bus.append(m)
-        g_r.append(rg)
-        g_x.append(xg)
+    g_bus, g_r, g_x = _grid_impedances(net, pp2m, sc_by_grid, require_grid_data, base)
     arr = NetworkArrays(
         f_hz=float(net.f_hz), base_mva=base, bus_names=tuple(names), bus_kv=bus_kv,
         br_from=new[f[sel]], br_to=new[t[sel]],
@@ -452,7 +459,12 @@ def build_model(case: Case) -> PlantModel:
         weak = dict(overrides)
         for gi in weak:
             weak[gi] = (sc_min, xr_min or xr)
-        arrays_weak, _ = net_to_arrays(net, weak)
+        # same network, other supply impedance: only the grid arrays change
+        g_bus, g_r, g_x = _grid_impedances(net, pp2m, weak, True, arrays.base_mva)
+        if list(g_bus) == list(arrays.grid_bus):
+            arrays_weak = arrays.with_grid(np.array(g_r, float), np.array(g_x, float))
+        else:  # pragma: no cover - the same filters pick the same grids
+            arrays_weak, _ = net_to_arrays(net, weak)
     model_bus = {}
     for name, i in bus_pp.items():
         m = int(pp2m[i]) if i < pp2m.size else -1

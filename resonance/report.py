@@ -72,6 +72,7 @@ REFERENCES = (
     "IEC 60831-1, Shunt power capacitors of the self-healing type for a.c. systems up to 1000 V.",
     "IEC 61000-3-6, Assessment of emission limits for distorting installations (summation law).",
     "pandapower: L. Thurner et al., IEEE Trans. Power Systems 33(6), 2018 (load flow, IEC 60909).",
+    "W. F. Tinney, C. E. Hart, Power Flow Solution by Newton's Method, IEEE Trans. PAS-86, 1967.",
 )
 
 

@@ -166,7 +166,8 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
         f"Load model ({st.get('load_model')}): {_L_MODEL.get(st.get('load_model'), st.get('load_model'))}.",
         "Capacitors: constant capacitance from the nameplate kvar at the rated voltage (Q = Q_R (U/U_R)^2); detuned "
         "steps with a series reactor p = X_L/X_C of the given X/R. Delivered kvar uses the load-flow bus voltage "
-        "(pandapower) with the step in service.",
+        "with the step in service (Newton-Raphson on the bus admittance matrix pandapower builds, checked "
+        "against pandapower's own load flow).",
         f"Frequency scan: driving-point impedance |Z(h)| at the bank bus for every step, h = 1 to {st.get('h_max'):g} "
         f"in steps of {st.get('h_step'):g}, peaks refined locally; h_est = sqrt(S_sc/Q_C) is the hand check "
         "(IEEE Std 1036). Other banks: " + ("in service at full size." if st.get("other_banks") == "full"

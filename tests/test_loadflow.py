@@ -122,3 +122,26 @@ def test_failed_step_is_a_model_error_and_the_session_recovers():
     with pytest.raises(ModelError):
         lf.vm_pu({case.bank[0].name: 1e6 * model.sc_mva_supply})
     np.testing.assert_allclose(lf.vm_pu({case.bank[0].name: 400.0}), good, atol=1e-9)
+
+
+@pytest.mark.parametrize("case_name", ["demo_plant.toml", "feeder_network_file.toml"])
+def test_weak_arrays_equal_a_full_conversion_with_the_weak_supply(case_name):
+    # Reference: pandapower to_ppc conversion of the same net with the weak supply data
+    # (resonance.netmodel.net_to_arrays); the model derives them by changing the grid impedance only
+    import dataclasses
+
+    from resonance.netmodel import net_to_arrays
+
+    case = load_case(CASES / case_name)
+    model = build_model(case)
+    assert model.arrays_weak is not None
+    sup = model.bus_pp[model.supply_bus]
+    weak = {int(gi): (model.sc_mva_supply_min, model.x_r_supply_min or model.x_r_supply)
+            for gi in model.net.ext_grid.index if int(model.net.ext_grid.at[gi, "bus"]) == sup}
+    ref, _ = net_to_arrays(model.net, weak)
+    for f in dataclasses.fields(ref):
+        a, b = getattr(model.arrays_weak, f.name), getattr(ref, f.name)
+        if isinstance(b, np.ndarray):
+            np.testing.assert_array_equal(a, b, err_msg=f.name)
+        else:
+            assert a == b, f.name
