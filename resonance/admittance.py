@@ -274,6 +274,47 @@ def bank_step_admittance(
     return np.where(b > 0, 1.0 / np.where(b > 0, z, 1.0), 0.0)
 
 
+def bank_step_admittance_dh(
+    h: np.ndarray, b_pu: np.ndarray, p: float = 0.0, reactor_q: float = np.inf, cap_r_pu: float = 0.0
+) -> np.ndarray:
+    """Derivative with respect to the order of :func:`bank_step_admittance`.
+
+    Parameters
+    ----------
+    h, b_pu, p, reactor_q, cap_r_pu
+        As for :func:`bank_step_admittance` [unitless], [pu], [unitless], [unitless], [unitless].
+
+    Returns
+    -------
+    ndarray, shape (n_h, s)
+        ``dY/dh`` [pu per unitless].
+
+    Notes
+    -----
+    Plain: ``dY/dh = j / X_C``.  Series branch ``Z = R + j (h p X_C - X_C / h)``:
+    ``dZ/dh = j (p X_C + X_C / h^2)`` and ``dY/dh = -(dZ/dh) / Z^2`` (the resistance
+    does not change with h in this model).
+
+    References
+    ----------
+    IEEE Std 1531-2020 (series L-C branch), as :func:`bank_step_admittance`.
+    """
+    h = np.asarray(h, float)[:, None]
+    b = np.asarray(b_pu, float)[None, :]
+    if p <= 0 and cap_r_pu == 0:
+        return np.broadcast_to(1j * b + 0j, (h.shape[0], b.shape[1])).copy()
+    with np.errstate(divide="ignore"):
+        xc = np.where(b > 0, 1.0 / np.where(b > 0, b, 1.0), np.inf)
+    r = cap_r_pu * xc
+    if p > 0 and np.isfinite(reactor_q):
+        r = r + p * xc / reactor_q
+    ok = b > 0
+    xs = np.where(ok, xc, 1.0)
+    z = np.where(ok, r, 0.0) + 1j * (h * p * xs - xs / h)
+    dz = 1j * (p * xs + xs / h**2)
+    return np.where(ok, -dz / z**2, 0.0)
+
+
 @dataclass(frozen=True, eq=False)
 class YPattern:
     """Fixed sparsity pattern of Y(h): built once, reused at every order.

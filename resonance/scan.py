@@ -426,7 +426,8 @@ def driving_point_steps(arr: NetworkArrays, h: np.ndarray, bus: int, step_admitt
         Bank bus [unitless].
     step_admittance : callable
         ``step_admittance(h) -> Y`` of shape (n_h, N), the bank admittance with
-        steps 1..N in service [pu].
+        steps 1..N in service [pu]; if it has an attribute ``dh`` (a callable of
+        the same form giving ``dY/dh``), that replaces the central difference.
     settings : ModelSettings
         Element models.
     extra : callable, optional
@@ -447,8 +448,9 @@ def driving_point_steps(arr: NetworkArrays, h: np.ndarray, bus: int, step_admitt
     -----
     One solve per order; the steps by Sherman-Morrison,
     ``Z_s = Z / (1 + Y_s Z)`` with ``Z = Z_kk`` (see :func:`step_update`), and
-    ``dZ_s/dh = (Z' - Z^2 Y_s') / (1 + Y_s Z)^2``.  ``Y_s'`` and the
-    derivative of ``extra`` are central differences (step ``1e-6 h``).
+    ``dZ_s/dh = (Z' - Z^2 Y_s') / (1 + Y_s Z)^2``.  ``Y_s'`` is analytic where
+    ``step_admittance.dh`` exists, else a central difference (step ``1e-6 h``), as is
+    the derivative of ``extra``.
     """
     h = np.atleast_1d(np.asarray(h, float))
     k = np.array([int(bus)])
@@ -469,7 +471,11 @@ def _with_steps(h: np.ndarray, z0: np.ndarray, dz0: np.ndarray, step_admittance,
     if ys is None:
         ys = np.asarray(step_admittance(h), complex).reshape(h.size, -1)
     z0, dz0 = z0[:, None], dz0[:, None]
-    dys = _central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
+    dfun = getattr(step_admittance, "dh", None)  # an analytic dY/dh where the caller has one
+    if dfun is not None:
+        dys = np.asarray(dfun(h), complex).reshape(ys.shape)
+    else:
+        dys = _central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
     den = 1.0 + ys * z0
     zs = z0 / den
     dzs = (dz0 - z0**2 * dys) / den**2

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .admittance import YPattern, bank_step_admittance
+from .admittance import YPattern, bank_step_admittance, bank_step_admittance_dh
 from .case import Case
 from .errors import InputError, InputProblem, ModelError
 from .network import NetworkArrays
@@ -73,6 +73,20 @@ class BankModel:
     def step_admittance(self, h: np.ndarray, base_mva: float) -> np.ndarray:
         """Admittance of steps 1..N at orders h, shape (n_h, N) [pu]."""
         return bank_step_admittance(h, self.step_b_pu(base_mva), self.p, self.reactor_q)
+
+
+class _StepAdmittance:
+    """``f(h) -> Y`` of a bank's steps [pu], with ``f.dh(h) -> dY/dh`` [pu] (for scan.step_peaks)."""
+
+    def __init__(self, bank: "BankModel", base_mva: float):
+        self._b = bank.step_b_pu(base_mva)
+        self._p, self._q = bank.p, bank.reactor_q
+
+    def __call__(self, h: np.ndarray) -> np.ndarray:
+        return bank_step_admittance(h, self._b, self._p, self._q)
+
+    def dh(self, h: np.ndarray) -> np.ndarray:
+        return bank_step_admittance_dh(h, self._b, self._p, self._q)
 
 
 def bank_models(case: Case, arr: NetworkArrays, model_bus: dict) -> list[BankModel]:
@@ -264,7 +278,7 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
         # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
         from .scan import step_peaks  # noqa: PLC0415
 
-        spk = step_peaks(arr, bank.index, lambda hh: bank.step_admittance(hh, base), h, settings,
+        spk = step_peaks(arr, bank.index, _StepAdmittance(bank, base), h, settings,
                          extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
         hs_, zs_, st_ = [], [], []
         for s in range(bank.n_steps):

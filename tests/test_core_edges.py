@@ -88,3 +88,18 @@ def test_load_models_are_finite_and_match_their_defining_circuits(p_pu):
     for model in ("parallel_rl", "series_rl"):
         y1 = load_admittance(np.array([p_pu]), np.array([q_pu]), np.array([1.0]), model)[0, 0]
         np.testing.assert_allclose(y1, p_pu - 1j * q_pu, rtol=1e-12)
+
+
+@pytest.mark.parametrize("p, q_r, r_c", [(0.0, np.inf, 0.0), (0.07, np.inf, 0.0), (0.0567, 50.0, 0.0),
+                                         (0.0, np.inf, 0.002), (0.14, 30.0, 0.001)])
+def test_step_admittance_derivative_equals_central_difference(p, q_r, r_c):
+    # Reference: derived (dY/dh of the series L-C branch), checked against a central difference
+    from resonance.admittance import bank_step_admittance, bank_step_admittance_dh
+
+    h = np.linspace(1.0, 50.0, 397)
+    b = np.array([0.05, 0.1, 0.4])
+    eps = 1e-6 * h
+    num = (bank_step_admittance(h + eps, b, p, q_r, r_c) - bank_step_admittance(h - eps, b, p, q_r, r_c)) \
+        / (2.0 * eps[:, None])
+    ana = bank_step_admittance_dh(h, b, p, q_r, r_c)
+    np.testing.assert_allclose(ana, num, rtol=1e-6, atol=1e-9 * np.max(np.abs(ana)))
