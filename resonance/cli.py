@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import hashlib
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -90,15 +91,25 @@ def _check(args) -> int:
     if case.network is not None:
         protect.append(Path(case.base_dir) / case.network.pandapower_json)
     out = OutputDir(args.out, protect=protect)
+    ahead = None
     try:
-        res = run_study(case)
-        from .detuning import propose_detuning  # noqa: PLC0415
-
-        det = propose_detuning(case, res.extras["model"], res)
-        _attach_detuned_scans(case, res, det)
+        from . import netmodel  # noqa: PLC0415
+        from .detuning import accept_variant, propose_detuning  # noqa: PLC0415
         from .demand import time_in_step  # noqa: PLC0415
+        from .tables import write_scan_tables  # noqa: PLC0415
 
+        model = netmodel.build_model(case)
+        res = run_study(case, model=model)
+        # the detuning re-checks the proposal will most likely run, started in a worker now
+        # that the model's memo (load flows, bank-off scans) is filled, while this process
+        # writes the tables and then takes re-checks too
+        ahead = _run_ahead(case, model)
         tis = time_in_step(case, res)
+        write_scan_tables(res, out)
+        for key, r in ahead.finish().values():
+            accept_variant(model, key, r)
+        det = propose_detuning(case, model, res)
+        _attach_detuned_scans(case, res, det)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
         extra = {("bank", name): {"detuning": d} for name, d in det.items()}
         for name, t in tis.items():
@@ -108,8 +119,6 @@ def _check(args) -> int:
             extra[(name, "nominal")] = steps
         data = to_dict(res, sha, extra=extra)
         out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
-        from .tables import write_scan_tables  # noqa: PLC0415
-        write_scan_tables(res, out)
         if not args.no_plots:
             from .plots import scan_figure  # noqa: PLC0415
             import matplotlib.pyplot as plt  # noqa: PLC0415
@@ -135,6 +144,9 @@ def _check(args) -> int:
     except BaseException:
         out.discard()
         raise
+    finally:
+        if ahead is not None:
+            ahead.close()
     if not args.quiet:
         print(_summary(data))
         print()
@@ -162,6 +174,26 @@ def _check(args) -> int:
         print(f"\nwrote {len(written)} files to {out.path.resolve()}: " + ", ".join(p.name for p in written))
         print(f"\n{CAUTION}")
     return EXIT_OK if data["passed"] else EXIT_FINDING
+
+
+def _run_ahead(case, model):
+    """The detuning re-checks the proposal will most likely need, started in a forked worker.
+
+    Their results are the same wherever they run (the re-check is deterministic and
+    memoised, see :func:`resonance.detuning.run_variant`); a worker only saves time.
+    ``RESONANCE_WORKERS=1`` keeps everything in this process.
+    """
+    import functools  # noqa: PLC0415
+
+    from .detuning import planned_variants, variant_job  # noqa: PLC0415
+    from .parallel import SharedJobs  # noqa: PLC0415
+
+    plan = planned_variants(case, model)
+    workers = None
+    env = os.environ.get("RESONANCE_WORKERS", "").strip()
+    if env.isdigit() and int(env) >= 1:
+        workers = int(env)
+    return SharedJobs([functools.partial(variant_job, v, model) for v in plan], workers)
 
 
 def _attach_detuned_scans(case, res, det: dict) -> None:

@@ -34,6 +34,9 @@ from .errors import InputError, ModelError
 
 __all__ = [
     "run_variant",
+    "planned_variants",
+    "variant_job",
+    "accept_variant",
     "DetuningSettings",
     "DetunedStep",
     "detuning_settings",
@@ -687,15 +690,51 @@ def run_variant(variant, model):
     Returns
     -------
     StudyResult
-        As :func:`resonance.study.run_study`; the same object for the same variant, so a
-        caller must not change it.
+        As :func:`resonance.study.run_study` without the IEC 60909 cross-check (the
+        proposal does not use it); the same object for the same variant, so a caller
+        must not change it.
     """
     from .study import run_study  # noqa: PLC0415
 
-    key = ("study", variant.model_dump_json())
+    key = _variant_key(variant)
     if key not in model.cache:
-        model.cache[key] = run_study(variant, model=model)
+        model.cache[key] = run_study(variant, model=model, cross_check=False)
     return model.cache[key]
+
+
+def _variant_key(variant) -> tuple:
+    return ("study", variant.model_dump_json())
+
+
+def variant_job(variant, model):
+    """Run a variant's study for another process: ``(key, result)`` with the model left out.
+
+    Parameters
+    ----------
+    variant : Case
+        A variant from :func:`planned_variants`.
+    model : PlantModel
+        Plant model of the original case.
+
+    Returns
+    -------
+    tuple
+        The memo key and the :class:`~resonance.study.StudyResult` without
+        ``extras["model"]`` (so it pickles without the pandapower net); give
+        both to :func:`accept_variant` in the process that owns ``model``.
+    """
+    import dataclasses  # noqa: PLC0415
+
+    res = run_variant(variant, model)
+    return _variant_key(variant), dataclasses.replace(
+        res, extras={k: v for k, v in res.extras.items() if k != "model"})
+
+
+def accept_variant(model, key: tuple, result) -> None:
+    """Memoise a study from :func:`variant_job` on ``model`` (unless it is there already)."""
+    if key not in model.cache:
+        result.extras["model"] = model
+        model.cache[key] = result
 
 
 def _reactor_figures(status: dict, q_np: np.ndarray, ratings, p: float, u_kv: float, reactor_q: float,
@@ -737,8 +776,16 @@ def _reactor_figures(status: dict, q_np: np.ndarray, ratings, p: float, u_kv: fl
     return out
 
 
-def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np.ndarray, sig: tuple,
-               st: DetuningSettings, clock: list) -> dict:
+def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarray, sig: tuple,
+               st: DetuningSettings):
+    """Ratings and tolerance checks of one tuning order before any re-check.
+
+    Returns ``(cand, why, rate, kv0, p_pct)``: the candidate's figures so far, the
+    reasons it fails the pre-screen (empty: it goes to the re-check), the rating
+    function ``rate(kv) -> (q_np, DetunedStep, tolerance)`` and the first
+    capacitor rating [kV] and detuning [%].  ``sc_mva`` maps each scenario to the
+    short-circuit power at the bank bus [MVA].
+    """
     f_hz = float(case.frequency_hz)
     u = bm.bus_kv
     p_pct = round(100.0 / n_req**2, 2)
@@ -768,9 +815,9 @@ def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np
         rt = detuned_step(q_np, kv, p, f_hz, u)
         hp = {}
         touch = set()
-        for name, sc in scans.items():
+        for name, s_sc in sc_mva.items():
             q_cap_bus = np.cumsum(q_np) * (u / kv) ** 2
-            lo, hi, nom = parallel_band(p, q_cap_bus, sc.sc_mva * 1000.0, st.cap_tolerance_pct,
+            lo, hi, nom = parallel_band(p, q_cap_bus, s_sc * 1000.0, st.cap_tolerance_pct,
                                         st.reactor_tolerance_pct)
             hp[name] = {"min": _r(lo), "max": _r(hi), "nominal": _r(nom)}
             for a_, b_ in zip(lo, hi):
@@ -788,12 +835,31 @@ def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np
         cand["stages"] = [{"stage": k + 1, "q_net_kvar": _r(rt.q_net_kvar[k], 3), "q_nameplate_kvar": _r(q_np[k], 3),
                            "x_c_ohm": _r(rt.x_c_ohm[k], 5), "x_l_ohm": _r(rt.x_l_ohm[k], 5),
                            "l_mh": _r(rt.l_mh[k], 5)} for k in range(q_np.size)]
+    return cand, why, rate, kv0, p_pct
+
+
+def _ratings(kv0: float, u_kv: float, st: DetuningSettings) -> list[float]:
+    """Capacitor ratings a candidate is re-checked at, lowest first [kV]."""
+    out = []
+    for kv in _next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, st.max_rating_steps):
+        if kv / u_kv > 1.6:  # the case schema's sanity range for rated_kv
+            break
+        out.append(kv)
+    return out
+
+
+def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np.ndarray, sig: tuple,
+               st: DetuningSettings, clock: list) -> dict:
+    u = bm.bus_kv
+    cand, why, rate, kv0, p_pct = _prescreen(case, bank, bm, {k: sc.sc_mva for k, sc in scans.items()}, n_req,
+                                             q_net_stage, sig, st)
+    if why:
         return cand
+    p = p_pct / 100.0
+    u_c1 = u / (1.0 - p)
     tried = []
     status = None
-    for kv in _next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, st.max_rating_steps):
-        if kv / u > 1.6:  # the case schema's sanity range for rated_kv
-            break
+    for kv in _ratings(kv0, u, st):
         q_np, rt, tol = rate(kv)
         try:
             variant = _variant(case, bank, detuning_pct=p_pct, rated_kv=kv, steps_kvar=[float(x) for x in q_np])
@@ -925,6 +991,82 @@ def _rearrangement(case, model, result, bank, bm, scans: dict, st: DetuningSetti
     return out
 
 
+def _trial_orders(st: DetuningSettings, sig: tuple) -> list[float]:
+    """Tuning orders to try, in the order they are tried [unitless]."""
+    orders = list(st.tuning_orders)
+    if st.search == "continuous" and sig:
+        kc, kl = _corners(st.cap_tolerance_pct, st.reactor_tolerance_pct)
+        n_star = min(sig[0] * (1.0 - st.order_margin_pct / 100.0),
+                     sig[0] * (1.0 - st.band_margin_pct / 100.0) * math.sqrt(float(np.min(kc * kl))))
+        p_star = math.ceil(10000.0 / n_star**2) / 100.0  # rounded up: the order stays at or below n*
+        orders.append(1.0 / math.sqrt(p_star / 100.0))
+    trial = sorted(set(orders), reverse=True)
+    if st.recheck == "first":  # most promising first: inside the usual window, nearest its middle
+        h_low = sig[0] if sig else None
+        mid = 0.84 * h_low if h_low else 0.0
+        trial.sort(key=lambda n_: (round(_window_distance(n_, h_low), 6), abs(n_ - mid)))
+    return trial
+
+
+def planned_variants(case, model) -> list:
+    """The re-checks :func:`propose_detuning` will most likely run, known before the study.
+
+    Parameters
+    ----------
+    case : Case
+        The case as given.
+    model : PlantModel
+        Its plant model.
+
+    Returns
+    -------
+    list of Case
+        For every plain bank (``detuning_pct`` unset or zero) and every tuning
+        order that passes the pre-screen, the variant at the first capacitor
+        rating, in the order :func:`propose_detuning` tries them.  A caller may
+        run them ahead (:func:`run_variant` memoises each), for instance in
+        another process while the study of the case itself runs; a variant that
+        turns out not to be needed costs time only.
+
+    Notes
+    -----
+    The pre-screen needs the short-circuit power at the bank bus per scenario;
+    it is the same Thevenin figure the study's scan reports
+    (:func:`resonance.study.thevenin_pu`).  Re-arrangements depend on the
+    study's scans and are not planned.
+    """
+    from .study import ModelSettings, _source_orders, bank_models, orders_of_concern, thevenin_pu  # noqa: PLC0415
+
+    st = detuning_settings(case)
+    sources, probs = _source_orders(case)
+    if probs:
+        return []
+    background = dict(case.supply.background_pct) if case.supply else {}
+    sig = significant_orders(sources, background, st,
+                             fallback=orders_of_concern(sources, background, case.study.h_max).characteristic)
+    settings = ModelSettings(case.study.resistance_model, case.study.load_model)
+    out = []
+    for bank, bm in zip(case.bank, bank_models(case, model.arrays, model.model_bus)):
+        if bm.p > 0:
+            continue
+        sc_mva = {}
+        for scenario, a in (("nominal", model.arrays), ("weak", model.arrays_weak)):
+            if a is not None:
+                sc_mva[scenario] = float(a.base_mva / abs(thevenin_pu(a, np.array([bm.index]), settings)[0]))
+        q_net_stage = bm.stages_kvar * (bm.bus_kv / bm.rated_kv) ** 2 / (1.0 - bm.p)
+        for n_req in _trial_orders(st, sig):
+            _, why, rate, kv0, p_pct = _prescreen(case, bank, bm, sc_mva, n_req, q_net_stage, sig, st)
+            kvs = _ratings(kv0, bm.bus_kv, st)
+            if why or not kvs:
+                continue
+            try:
+                out.append(_variant(case, bank, detuning_pct=p_pct, rated_kv=kvs[0],
+                                    steps_kvar=[float(x) for x in rate(kvs[0])[0]]))
+            except InputError:
+                continue
+    return out
+
+
 def propose_detuning(case, model, result) -> dict:
     """Detuned-bank proposals (and stage re-arrangements) for every bank of a case.
 
@@ -990,20 +1132,8 @@ def propose_detuning(case, model, result) -> dict:
             out[bank.name] = entry
             continue
         q_net_stage = bm.stages_kvar * (bm.bus_kv / bm.rated_kv) ** 2 / (1.0 - bm.p)
-        orders = list(st.tuning_orders)
-        if st.search == "continuous" and sig:
-            kc, kl = _corners(st.cap_tolerance_pct, st.reactor_tolerance_pct)
-            n_star = min(sig[0] * (1.0 - st.order_margin_pct / 100.0),
-                         sig[0] * (1.0 - st.band_margin_pct / 100.0) * math.sqrt(float(np.min(kc * kl))))
-            p_star = math.ceil(10000.0 / n_star**2) / 100.0  # rounded up: the order stays at or below n*
-            orders.append(1.0 / math.sqrt(p_star / 100.0))
-        trial = sorted(set(orders), reverse=True)
-        if st.recheck == "first":  # most promising first: inside the usual window, nearest its middle
-            h_low = sig[0] if sig else None
-            mid = 0.84 * h_low if h_low else 0.0
-            trial.sort(key=lambda n_: (round(_window_distance(n_, h_low), 6), abs(n_ - mid)))
         cands = []
-        for n_req in trial:
+        for n_req in _trial_orders(st, sig):
             c = _candidate(case, model, bank, bm, scans, n_req, q_net_stage, sig, st, clock)
             cands.append(c)
             if st.recheck == "first" and c["qualified"]:

@@ -31,6 +31,10 @@ def _pp():
     return pp
 
 
+#: natural log of the ratio between neighbouring bank outputs that share a load flow
+_LOG_Q_CELL = math.log(1.002)
+
+
 @dataclass(frozen=True, eq=False)
 class PlantModel:
     """A pandapower net with the lookups the study needs.
@@ -72,12 +76,16 @@ class PlantModel:
     def bank_voltages(self, bank_buses: dict, q_kvar: dict, weak: bool = False) -> np.ndarray:
         """Bus voltages [pu] with banks at the given outputs [kvar], memoised (see :class:`LoadFlow`)."""
         # outputs within 0.1 % of each other share a load flow (a detuned candidate built to
-        # deliver the plain bank's kvar differs only by nameplate rounding): the voltage error is
-        # about dQ / S_sc <= 0.001 Q / S_sc, below 1e-4 pu (derived from dV/V ~= Q / S_sc)
-        key = ("vm", weak, tuple(sorted(bank_buses.items())),
-               tuple(sorted((k, round(math.log(max(float(v), 1e-9)) / math.log(1.002))) for k, v in q_kvar.items())))
+        # deliver the plain bank's kvar differs only by nameplate rounding): each output is
+        # rounded to a grid with ratio 1.002 and the load flow runs at the rounded value, so a
+        # result does not depend on which output of a grid cell came first (nor on the process
+        # that computed it).  The voltage error is about dQ / S_sc <= 0.001 Q / S_sc, below
+        # 1e-4 pu (derived from dV/V ~= Q / S_sc).
+        cells = {k: round(math.log(max(float(v), 1e-9)) / _LOG_Q_CELL) for k, v in q_kvar.items()}
+        key = ("vm", weak, tuple(sorted(bank_buses.items())), tuple(sorted(cells.items())))
         if key not in self.cache:
-            self.cache[key] = load_flow_session(self, bank_buses, weak).vm_pu(q_kvar)
+            q_cell = {k: (math.exp(c * _LOG_Q_CELL) if float(q_kvar[k]) > 1e-9 else 0.0) for k, c in cells.items()}
+            self.cache[key] = load_flow_session(self, bank_buses, weak).vm_pu(q_cell)
         return self.cache[key].copy()
 
 

@@ -17,28 +17,12 @@ from __future__ import annotations
 
 import multiprocessing as mp
 import os
-import threading
 import traceback
 from typing import Callable, Sequence
 
+from .parallel import MAX_WORKERS, can_fork as _can_fork, default_workers
+
 __all__ = ["run_side_by_side", "default_workers", "MAX_WORKERS"]
-
-#: processes used at most by default (this one included)
-MAX_WORKERS = 2
-
-
-def default_workers() -> int:
-    """Processes to use: the CPUs this process may run on, at most :data:`MAX_WORKERS` [unitless]."""
-    try:
-        n = len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not on Linux
-        n = os.cpu_count() or 1
-    return max(1, min(MAX_WORKERS, n))
-
-
-def _can_fork() -> bool:
-    return "fork" in mp.get_all_start_methods() and threading.active_count() == 1
-
 
 def _take(jobs: Sequence[Callable[[], None]], counter) -> None:
     """Run jobs from the shared counter until none is left."""

@@ -386,7 +386,7 @@ def _source_orders(case: Case) -> tuple[list[tuple[str, dict, int]], list[InputP
     return out, probs
 
 
-def run_study(case: Case, model=None) -> StudyResult:
+def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
     """Run the screening study of a case.
 
     Parameters
@@ -395,6 +395,9 @@ def run_study(case: Case, model=None) -> StudyResult:
         Validated case.
     model : PlantModel, optional
         Pre-built plant model (built from the case when None).
+    cross_check : bool
+        Run the IEC 60909 short-circuit cross-check (pandapower); without it
+        ``sc_mva_iec60909`` is empty (the detuning re-checks do not report it).
 
     Returns
     -------
@@ -472,13 +475,14 @@ def run_study(case: Case, model=None) -> StudyResult:
                     extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]
             assessments.append(assess_bank(case, a, b, inj, vm[(b.name, scenario)], pcc, float(s_pcc), settings, scenario,
                                            diag_extra=extra))
+    sc_iec = {}
     try:
         key = ("iec60909", tuple(sorted({b.bus for b in banks} | {pcc_name})))
-        if key not in model.cache:
+        if cross_check and key not in model.cache:
             model.cache[key] = netmodel.iec60909_sc_mva(model, list(key[1]))
-        sc_iec = dict(model.cache[key])
+        if cross_check:
+            sc_iec = dict(model.cache[key])
     except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
-        sc_iec = {}
         warnings_.append(f"IEC 60909 cross-check not available ({type(e).__name__})")
     findings = []
     for sc in scans:

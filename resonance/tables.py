@@ -2,9 +2,6 @@
 
 from __future__ import annotations
 
-import csv
-import io
-
 from .study import StudyResult
 
 __all__ = ["write_scan_tables", "scan_csv"]
@@ -12,12 +9,12 @@ __all__ = ["write_scan_tables", "scan_csv"]
 
 def scan_csv(sc) -> str:
     """CSV text of one bank scan: h, |Z| for bank off and every step [ohm]."""
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["h"] + ["z_ohm_bank_off"] + [f"z_ohm_step_{s.step}" for s in sc.steps])
-    w.writerows([f"{h:.4f}"] + [f"{z:.6g}" for z in zs]
-                for h, zs in zip(sc.h.tolist(), sc.z_ohm.T.tolist()))
-    return buf.getvalue()
+    head = ",".join(["h", "z_ohm_bank_off"] + [f"z_ohm_step_{s.step}" for s in sc.steps]) + "\n"
+    z = sc.z_ohm.T.tolist()  # rows: h; columns: bank off, step 1..N
+    n_col = len(z[0]) if z else 0
+    # one %-format per row; the same text csv.writer gives for numbers (no quoting needed)
+    row = "%.4f" + ",%.6g" * n_col + "\n"
+    return head + "".join([row % (h, *zs) for h, zs in zip(sc.h.tolist(), z)])
 
 
 def write_scan_tables(res: StudyResult, out) -> None:
