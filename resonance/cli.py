@@ -99,15 +99,21 @@ def _check(args) -> int:
         from .tables import write_scan_tables  # noqa: PLC0415
 
         model = netmodel.build_model(case)
-        res = run_study(case, model=model)
-        # the detuning re-checks the proposal will most likely run, started in a worker now
-        # that the model's memo (load flows, bank-off scans) is filled, while this process
-        # writes the tables and then takes re-checks too
+        res = run_study(case, model=model, cross_check=False)
+        # the IEC 60909 cross-check and the detuning re-checks the proposal will most likely
+        # run, started in a worker now that the model's memo (load flows, bank-off scans) is
+        # filled, while this process writes the tables and then takes jobs too
         ahead = _run_ahead(case, model)
         tis = time_in_step(case, res)
         write_scan_tables(res, out)
-        for key, r in ahead.finish().values():
+        done = ahead.finish()
+        for key, r in (done[k] for k in sorted(done) if k > 0):
             accept_variant(model, key, r)
+        if 0 in done:  # the worker's cross-check, memoised where this process looks for it
+            from .study import iec60909_key  # noqa: PLC0415
+
+            model.cache.setdefault(iec60909_key(case, model), done[0])
+        res = _cross_checked(case, model, res)
         det = propose_detuning(case, model, res)
         _attach_detuned_scans(case, res, det)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
@@ -188,12 +194,26 @@ def _run_ahead(case, model):
     from .detuning import planned_variants, variant_job  # noqa: PLC0415
     from .parallel import SharedJobs  # noqa: PLC0415
 
+    from .study import iec60909_cross_check  # noqa: PLC0415
+
     plan = planned_variants(case, model)
     workers = None
     env = os.environ.get("RESONANCE_WORKERS", "").strip()
     if env.isdigit() and int(env) >= 1:
         workers = int(env)
-    return SharedJobs([functools.partial(variant_job, v, model) for v in plan], workers)
+    jobs = [functools.partial(iec60909_cross_check, case, model)]
+    return SharedJobs(jobs + [functools.partial(variant_job, v, model) for v in plan], workers)
+
+
+def _cross_checked(case, model, res):
+    """The study with the IEC 60909 cross-check (from the memo when a worker ran it)."""
+    from .study import iec60909_cross_check, with_cross_check  # noqa: PLC0415
+
+    try:
+        sc_iec = iec60909_cross_check(case, model)
+    except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
+        sc_iec = e
+    return with_cross_check(res, sc_iec)
 
 
 def _attach_detuned_scans(case, res, det: dict) -> None:
@@ -212,6 +232,23 @@ def _attach_detuned_scans(case, res, det: dict) -> None:
         sc = run_variant(variant, res.extras["model"]).scans_for(name)
         if sc is not None:
             res.extras[f"detuned_scan_{name}"] = sc
+
+
+def _with_frozen_heap(fn, *a):
+    """``fn(*a)`` with the objects alive now left out of garbage collection until it returns.
+
+    The imported libraries leave a few hundred thousand objects on the heap; a full
+    collection over them costs about 0.3 s and would fall at a random point of the check.
+    Freezing them (``gc.freeze``) also keeps a forked worker from copying the pages the
+    collector would otherwise touch (Python documentation, ``gc.freeze``).
+    """
+    import gc  # noqa: PLC0415
+
+    gc.freeze()
+    try:
+        return fn(*a)
+    finally:
+        gc.unfreeze()
 
 
 def _safe(name: str) -> str:
@@ -241,7 +278,7 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_INPUT
     try:
         if args.command == "check":
-            return _check(args)
+            return _with_frozen_heap(_check, args)
         return int(args.run(args))
     except InputError as e:
         for p in e.problems:

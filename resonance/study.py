@@ -20,7 +20,8 @@ from .scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, 
                    refine_peaks)
 from .screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
-__all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models"]
+__all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models", "iec60909_cross_check",
+           "iec60909_key", "with_cross_check"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -81,9 +82,16 @@ class _StepAdmittance:
     def __init__(self, bank: "BankModel", base_mva: float):
         self._b = bank.step_b_pu(base_mva)
         self._p, self._q = bank.p, bank.reactor_q
+        self._last = (None, None)  # (grid, Y): the study's base grid is asked for more than once
 
     def __call__(self, h: np.ndarray) -> np.ndarray:
-        return bank_step_admittance(h, self._b, self._p, self._q)
+        if self._last[0] is h:
+            return self._last[1]
+        y = bank_step_admittance(h, self._b, self._p, self._q)
+        if h.size > 64:
+            y.flags.writeable = False
+            self._last = (h, y)
+        return y
 
     def dh(self, h: np.ndarray) -> np.ndarray:
         return bank_step_admittance_dh(h, self._b, self._p, self._q)
@@ -242,7 +250,8 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
         return d
 
     z0, dz0 = _bank_off_columns(arr, h, cols, settings, extra, pattern)
-    ys = bank.step_admittance(h, base)  # (n_h, N)
+    step_y = _StepAdmittance(bank, base)
+    ys = step_y(h)  # (n_h, N)
     # Sherman-Morrison (scan.step_update) for the two diagonal entries used:
     # Z'_ij = Z_ij - Z_ik g Z_kj with g = y / (1 + y Z_kk)
     g = ys / (1.0 + ys * z0[:, kc, kc][:, None])  # (n_h, N)
@@ -278,7 +287,7 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
         # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
         from .scan import step_peaks  # noqa: PLC0415
 
-        spk = step_peaks(arr, bank.index, _StepAdmittance(bank, base), h, settings,
+        spk = step_peaks(arr, bank.index, step_y, h, settings,
                          extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
         hs_, zs_, st_ = [], [], []
         for s in range(bank.n_steps):
@@ -475,15 +484,6 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
                     extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]
             assessments.append(assess_bank(case, a, b, inj, vm[(b.name, scenario)], pcc, float(s_pcc), settings, scenario,
                                            diag_extra=extra))
-    sc_iec = {}
-    try:
-        key = ("iec60909", tuple(sorted({b.bus for b in banks} | {pcc_name})))
-        if cross_check and key not in model.cache:
-            model.cache[key] = netmodel.iec60909_sc_mva(model, list(key[1]))
-        if cross_check:
-            sc_iec = dict(model.cache[key])
-    except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
-        warnings_.append(f"IEC 60909 cross-check not available ({type(e).__name__})")
     findings = []
     for sc in scans:
         for s in sc.steps:
@@ -505,7 +505,59 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
         if sc.steps and sc.steps[0].h_scan is None:
             warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
     _ = math
-    return StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909=sc_iec, pcc_bus=pcc_name,
+    res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
                        extras={"model": model, "sources": sources}, assessments=tuple(assessments),
                        sc_mva_pcc=sc_pcc)
+    if not cross_check:
+        return res
+    try:
+        sc_iec = iec60909_cross_check(case, model)
+    except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
+        sc_iec = e
+    return with_cross_check(res, sc_iec)
+
+
+def iec60909_cross_check(case: Case, model) -> dict:
+    """IEC 60909 short-circuit power at the bank buses and the PCC (memoised on the model).
+
+    Parameters
+    ----------
+    case : Case
+        Validated case.
+    model : PlantModel
+        Its plant model.
+
+    Returns
+    -------
+    dict
+        Bus name -> S_k'' [MVA] (:func:`resonance.netmodel.iec60909_sc_mva`,
+        pandapower's IEC 60909-0 module).
+
+    Raises
+    ------
+    Exception
+        Whatever pandapower raises when the cross-check cannot run;
+        :func:`with_cross_check` turns it into a warning.
+    """
+    from . import netmodel  # noqa: PLC0415
+
+    key = iec60909_key(case, model)
+    if key not in model.cache:
+        model.cache[key] = netmodel.iec60909_sc_mva(model, list(key[1]))
+    return dict(model.cache[key])
+
+
+def iec60909_key(case: Case, model) -> tuple:
+    """Memo key (on ``model.cache``) of :func:`iec60909_cross_check`: the bank buses and the PCC."""
+    return ("iec60909", tuple(sorted({b.bus for b in case.bank} | {case.study.pcc_bus or model.supply_bus})))
+
+
+def with_cross_check(res: StudyResult, sc_iec) -> StudyResult:
+    """The study with its IEC 60909 figures [MVA], or with a warning where ``sc_iec`` is an exception."""
+    import dataclasses  # noqa: PLC0415
+
+    if isinstance(sc_iec, BaseException):
+        return dataclasses.replace(res, sc_mva_iec60909={}, warnings=res.warnings + (
+            f"IEC 60909 cross-check not available ({type(sc_iec).__name__})",))
+    return dataclasses.replace(res, sc_mva_iec60909=dict(sc_iec))
