@@ -211,8 +211,8 @@ def _from_network_file(case: Case):
     path = Path(case.network.pandapower_json)
     if not path.is_absolute():
         path = Path(case.base_dir) / path
+    # a new net on every read (nothing shared), so it is changed here without a copy
     net = read_pandapower_json(path, file_label=f"{file}: network.pandapower_json -> {case.network.pandapower_json}")
-    net = copy.deepcopy(net)
     probs: list[InputProblem] = []
     # bus names: the pandapower name when unique, else '#<index>'; both are accepted
     labels = [_bus_label(net, int(i)) for i in net.bus.index]
@@ -299,7 +299,8 @@ def _grid_impedances(net, pp2m: np.ndarray, sc_by_grid: dict | None, require_gri
     return g_bus, g_r, g_x
 
 
-def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool = True) -> tuple[NetworkArrays, np.ndarray]:
+def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool = True,
+                  copy_net: bool = True) -> tuple[NetworkArrays, np.ndarray]:
     """Convert a pandapower net into :class:`NetworkArrays` (on a copy of the net).
 
     Parameters
@@ -310,6 +311,10 @@ def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool =
         ext_grid index -> (sc_mva [MVA], x_r [unitless]) overriding the table.
     require_grid_data : bool
         Raise when an external grid lacks short-circuit data (else leave it out).
+    copy_net : bool
+        Convert a copy (default).  False converts ``net`` itself, for a net the
+        caller owns: pandapower's conversion then leaves its lookups on ``net``
+        (element tables are not changed).
 
     Returns
     -------
@@ -334,7 +339,7 @@ def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool =
     from pandapower.pypower import idx_brch as B  # noqa: PLC0415
     from pandapower.pypower import idx_bus as U  # noqa: PLC0415
 
-    work = copy.deepcopy(net)
+    work = copy.deepcopy(net) if copy_net else net
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         ppc = to_ppc(work, calculate_voltage_angles=False, trafo_model="pi", init="flat",
@@ -459,7 +464,8 @@ def build_model(case: Case) -> PlantModel:
     sup_pp = bus_pp[supply_bus]
     overrides = {gi: (sc, xr) for gi in grid_idx if int(net.ext_grid.at[gi, "bus"]) == sup_pp}
     try:
-        arrays, pp2m = net_to_arrays(net, overrides)
+        # the net was made (or copied) for this model: converted in place, no third copy
+        arrays, pp2m = net_to_arrays(net, overrides, copy_net=False)
     except ModelError as e:
         raise InputError.single(case.source_file, "network", str(e)) from None
     arrays_weak = None

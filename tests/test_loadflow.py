@@ -145,3 +145,34 @@ def test_weak_arrays_equal_a_full_conversion_with_the_weak_supply(case_name):
             np.testing.assert_array_equal(a, b, err_msg=f.name)
         else:
             assert a == b, f.name
+
+
+@pytest.mark.parametrize("case_name", ["demo_plant.toml", "water_plant_mv.toml", "feeder_network_file.toml"])
+def test_conversion_in_place_leaves_the_element_tables_alone(case_name):
+    # build_model converts its own net in place (net_to_arrays(copy_net=False)); pandapower's
+    # to_ppc must not change any element table, so the load flow and IEC 60909 copies see the net
+    # as built (checked against a fresh conversion of an untouched copy)
+    import pandas as pd
+
+    from resonance.netmodel import net_to_arrays
+
+    from resonance import netmodel
+
+    case = load_case(CASES / case_name)
+    model = build_model(case)
+    fresh = (netmodel._from_network_file if case.network is not None else netmodel._build_from_tables)(case)[0]
+    before = {k: fresh[k].copy() for k in fresh.keys() if isinstance(fresh[k], pd.DataFrame) and not k.startswith("res")}
+    arr, _ = net_to_arrays(fresh, copy_net=False, require_grid_data=False)
+    for k, df in before.items():
+        pd.testing.assert_frame_equal(fresh[k], df, check_dtype=True, obj=k)
+    sc = {int(gi): (model.sc_mva_supply, model.x_r_supply) for gi in model.net.ext_grid.index
+          if int(model.net.ext_grid.at[gi, "bus"]) == model.bus_pp[model.supply_bus]}
+    again, _ = net_to_arrays(copy.deepcopy(model.net), sc)  # the converted net converts the same again
+    import dataclasses
+
+    for f in dataclasses.fields(again):
+        a, b = getattr(model.arrays, f.name), getattr(again, f.name)
+        if isinstance(b, np.ndarray):
+            np.testing.assert_array_equal(a, b, err_msg=f.name)
+        else:
+            assert a == b, f.name
