@@ -234,21 +234,23 @@ def _attach_detuned_scans(case, res, det: dict) -> None:
             res.extras[f"detuned_scan_{name}"] = sc
 
 
-def _with_frozen_heap(fn, *a):
-    """``fn(*a)`` with the objects alive now left out of garbage collection until it returns.
+def _without_full_collections(fn, *a):
+    """``fn(*a)`` with the garbage collector's full (oldest-generation) collections held off.
 
     The imported libraries leave a few hundred thousand objects on the heap; a full
     collection over them costs about 0.3 s and would fall at a random point of the check.
-    Freezing them (``gc.freeze``) also keeps a forked worker from copying the pages the
-    collector would otherwise touch (Python documentation, ``gc.freeze``).
+    Young collections still run (they free the short-lived cycles); the thresholds are
+    restored afterwards, so a long-lived caller collects as before (Python documentation,
+    ``gc.set_threshold``).
     """
     import gc  # noqa: PLC0415
 
-    gc.freeze()
+    t0, t1, t2 = gc.get_threshold()
+    gc.set_threshold(t0, t1, max(t2, 1 << 30))
     try:
         return fn(*a)
     finally:
-        gc.unfreeze()
+        gc.set_threshold(t0, t1, t2)
 
 
 def _safe(name: str) -> str:
@@ -278,7 +280,7 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_INPUT
     try:
         if args.command == "check":
-            return _with_frozen_heap(_check, args)
+            return _without_full_collections(_check, args)
         return int(args.run(args))
     except InputError as e:
         for p in e.problems:
