@@ -145,7 +145,7 @@ def _check(args) -> int:
         if not (args.no_plots or args.no_report):
             from .report import write_report  # noqa: PLC0415
 
-            write_report(res, data, out)
+            write_report(res, data, out, workers=_workers())
         written = out.commit()
     except BaseException:
         out.discard()
@@ -197,12 +197,15 @@ def _run_ahead(case, model):
     from .study import iec60909_cross_check  # noqa: PLC0415
 
     plan = planned_variants(case, model)
-    workers = None
-    env = os.environ.get("RESONANCE_WORKERS", "").strip()
-    if env.isdigit() and int(env) >= 1:
-        workers = int(env)
+    workers = _workers()
     jobs = [functools.partial(iec60909_cross_check, case, model)]
     return SharedJobs(jobs + [functools.partial(variant_job, v, model) for v in plan], workers)
+
+
+def _workers() -> int | None:
+    """Processes from ``RESONANCE_WORKERS`` (a whole number >= 1), else None (the default)."""
+    env = os.environ.get("RESONANCE_WORKERS", "").strip()
+    return int(env) if env.isdigit() and int(env) >= 1 else None
 
 
 def _cross_checked(case, model, res):
