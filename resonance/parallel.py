@@ -22,7 +22,7 @@ import pickle
 import threading
 from typing import Callable, Sequence
 
-__all__ = ["SharedJobs", "default_workers", "can_fork", "MAX_WORKERS"]
+__all__ = ["SharedJobs", "default_workers", "can_fork", "claimed", "MAX_WORKERS"]
 
 #: processes used at most by default (this one included)
 MAX_WORKERS = 2
@@ -42,14 +42,20 @@ def can_fork() -> bool:
     return "fork" in mp.get_all_start_methods() and threading.active_count() == 1
 
 
-def _take(jobs: Sequence[Callable[[], object]], counter, results: dict) -> None:
-    """Run jobs from the shared counter until none is left; results by job index."""
+def claimed(n_jobs: int, counter):
+    """Job indices taken one at a time from a shared counter until ``n_jobs`` are gone."""
     while True:
         with counter.get_lock():
             i = counter.value
             counter.value = i + 1
-        if i >= len(jobs):
+        if i >= n_jobs:
             return
+        yield i
+
+
+def _take(jobs: Sequence[Callable[[], object]], counter, results: dict) -> None:
+    """Run jobs from the shared counter until none is left; results by job index."""
+    for i in claimed(len(jobs), counter):
         try:
             results[i] = jobs[i]()
         except Exception:  # noqa: BLE001 - left out; the caller recomputes it and sees the error itself

@@ -20,18 +20,14 @@ import os
 import traceback
 from typing import Callable, Sequence
 
-from .parallel import MAX_WORKERS, can_fork as _can_fork, default_workers
+from .parallel import MAX_WORKERS, can_fork as _can_fork, claimed, default_workers
 
 __all__ = ["run_side_by_side", "default_workers", "MAX_WORKERS"]
 
+
 def _take(jobs: Sequence[Callable[[], None]], counter) -> None:
     """Run jobs from the shared counter until none is left."""
-    while True:
-        with counter.get_lock():
-            i = counter.value
-            counter.value = i + 1
-        if i >= len(jobs):
-            return
+    for i in claimed(len(jobs), counter):
         jobs[i]()
 
 

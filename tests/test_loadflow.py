@@ -18,6 +18,18 @@ from resonance.netmodel import LoadFlow, build_model, load_flow_session
 from .conftest import CASES
 
 
+def _assert_same_arrays(a, b) -> None:
+    """Every field of two NetworkArrays equal (arrays element by element)."""
+    import dataclasses
+
+    for f in dataclasses.fields(b):
+        x, y = getattr(a, f.name), getattr(b, f.name)
+        if isinstance(y, np.ndarray):
+            np.testing.assert_array_equal(x, y, err_msg=f.name)
+        else:
+            assert x == y, f.name
+
+
 def _two_bus(z_pu: complex, s_load_pu: complex) -> PowerFlowCase:
     y = 1.0 / z_pu
     ybus = sp.csr_matrix(np.array([[y, -y], [-y, y]]))
@@ -128,8 +140,6 @@ def test_failed_step_is_a_model_error_and_the_session_recovers():
 def test_weak_arrays_equal_a_full_conversion_with_the_weak_supply(case_name):
     # Reference: pandapower to_ppc conversion of the same net with the weak supply data
     # (resonance.netmodel.net_to_arrays); the model derives them by changing the grid impedance only
-    import dataclasses
-
     from resonance.netmodel import net_to_arrays
 
     case = load_case(CASES / case_name)
@@ -139,12 +149,7 @@ def test_weak_arrays_equal_a_full_conversion_with_the_weak_supply(case_name):
     weak = {int(gi): (model.sc_mva_supply_min, model.x_r_supply_min or model.x_r_supply)
             for gi in model.net.ext_grid.index if int(model.net.ext_grid.at[gi, "bus"]) == sup}
     ref, _ = net_to_arrays(model.net, weak)
-    for f in dataclasses.fields(ref):
-        a, b = getattr(model.arrays_weak, f.name), getattr(ref, f.name)
-        if isinstance(b, np.ndarray):
-            np.testing.assert_array_equal(a, b, err_msg=f.name)
-        else:
-            assert a == b, f.name
+    _assert_same_arrays(model.arrays_weak, ref)
 
 
 @pytest.mark.parametrize("case_name", ["demo_plant.toml", "water_plant_mv.toml", "feeder_network_file.toml"])
@@ -168,11 +173,4 @@ def test_conversion_in_place_leaves_the_element_tables_alone(case_name):
     sc = {int(gi): (model.sc_mva_supply, model.x_r_supply) for gi in model.net.ext_grid.index
           if int(model.net.ext_grid.at[gi, "bus"]) == model.bus_pp[model.supply_bus]}
     again, _ = net_to_arrays(copy.deepcopy(model.net), sc)  # the converted net converts the same again
-    import dataclasses
-
-    for f in dataclasses.fields(again):
-        a, b = getattr(model.arrays, f.name), getattr(again, f.name)
-        if isinstance(b, np.ndarray):
-            np.testing.assert_array_equal(a, b, err_msg=f.name)
-        else:
-            assert a == b, f.name
+    _assert_same_arrays(model.arrays, again)
