@@ -91,6 +91,7 @@ def _check(args) -> int:
     if case.network is not None:
         protect.append(Path(case.base_dir) / case.network.pandapower_json)
     out = OutputDir(args.out, protect=protect)
+    workers = _workers()  # processes for the shared jobs and the report (None: the default)
     ahead = None
     try:
         from . import netmodel  # noqa: PLC0415
@@ -103,7 +104,7 @@ def _check(args) -> int:
         # the IEC 60909 cross-check and the detuning re-checks the proposal will most likely
         # run, started in a worker now that the model's memo (load flows, bank-off scans) is
         # filled, while this process writes the tables and then takes jobs too
-        ahead = _run_ahead(case, model)
+        ahead = _run_ahead(case, model, workers)
         tis = time_in_step(case, res)
         write_scan_tables(res, out)
         done = ahead.finish()
@@ -145,7 +146,7 @@ def _check(args) -> int:
         if not (args.no_plots or args.no_report):
             from .report import write_report  # noqa: PLC0415
 
-            write_report(res, data, out, workers=_workers())
+            write_report(res, data, out, workers=workers)
         written = out.commit()
     except BaseException:
         out.discard()
@@ -182,7 +183,7 @@ def _check(args) -> int:
     return EXIT_OK if data["passed"] else EXIT_FINDING
 
 
-def _run_ahead(case, model):
+def _run_ahead(case, model, workers: int | None = None):
     """The detuning re-checks the proposal will most likely need, started in a forked worker.
 
     Their results are the same wherever they run (the re-check is deterministic and
@@ -197,7 +198,6 @@ def _run_ahead(case, model):
     from .study import iec60909_cross_check  # noqa: PLC0415
 
     plan = planned_variants(case, model)
-    workers = _workers()
     jobs = [functools.partial(iec60909_cross_check, case, model)]
     return SharedJobs(jobs + [functools.partial(variant_job, v, model) for v in plan], workers)
 
@@ -205,7 +205,12 @@ def _run_ahead(case, model):
 def _workers() -> int | None:
     """Processes from ``RESONANCE_WORKERS`` (a whole number >= 1), else None (the default)."""
     env = os.environ.get("RESONANCE_WORKERS", "").strip()
-    return int(env) if env.isdigit() and int(env) >= 1 else None
+    if env.isdigit() and int(env) >= 1:
+        return int(env)
+    if env:
+        print(f"warning: RESONANCE_WORKERS={env!r} is not a whole number >= 1; the default is used",
+              file=sys.stderr)
+    return None
 
 
 def _cross_checked(case, model, res):
