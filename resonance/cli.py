@@ -97,6 +97,7 @@ def _check(args) -> int:
         from . import netmodel  # noqa: PLC0415
         from .detuning import accept_variant, propose_detuning  # noqa: PLC0415
         from .demand import time_in_step  # noqa: PLC0415
+        from .study import with_cross_check  # noqa: PLC0415
         from .tables import write_scan_tables  # noqa: PLC0415
 
         model = netmodel.build_model(case)
@@ -107,14 +108,12 @@ def _check(args) -> int:
         ahead = _run_ahead(case, model, workers)
         tis = time_in_step(case, res)
         write_scan_tables(res, out)
-        done = ahead.finish()
-        for key, r in (done[k] for k in sorted(done) if k > 0):
-            accept_variant(model, key, r)
-        if 0 in done:  # the worker's cross-check, memoised where this process looks for it
-            from .study import iec60909_key  # noqa: PLC0415
-
-            model.cache.setdefault(iec60909_key(case, model), done[0])
-        res = _cross_checked(case, model, res)
+        for key, r in ahead.finish().values():  # each job gives (memo key, value)
+            if key[0] == "study":
+                accept_variant(model, key, r)
+            else:
+                model.cache.setdefault(key, r)
+        res = with_cross_check(res, case, model)  # from the memo where a job ran it
         det = propose_detuning(case, model, res)
         _attach_detuned_scans(case, res, det)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
@@ -184,22 +183,22 @@ def _check(args) -> int:
 
 
 def _run_ahead(case, model, workers: int | None = None):
-    """The detuning re-checks the proposal will most likely need, started in a forked worker.
+    """The IEC 60909 cross-check and the detuning re-checks the proposal will most likely
+    need, as shared jobs (:class:`resonance.parallel.SharedJobs`) that start in a forked worker.
 
-    Their results are the same wherever they run (the re-check is deterministic and
-    memoised, see :func:`resonance.detuning.run_variant`); a worker only saves time.
-    ``RESONANCE_WORKERS=1`` keeps everything in this process.
+    Each job returns ``(memo key, value)``.  The results are the same wherever the jobs run
+    (deterministic and memoised, see :func:`resonance.detuning.run_variant`); a worker only
+    saves time.  ``workers=1`` (``RESONANCE_WORKERS=1``) keeps everything in this process.
     """
     import functools  # noqa: PLC0415
 
     from .detuning import planned_variants, variant_job  # noqa: PLC0415
     from .parallel import SharedJobs  # noqa: PLC0415
+    from .study import iec60909_job  # noqa: PLC0415
 
-    from .study import iec60909_cross_check  # noqa: PLC0415
-
-    plan = planned_variants(case, model)
-    jobs = [functools.partial(iec60909_cross_check, case, model)]
-    return SharedJobs(jobs + [functools.partial(variant_job, v, model) for v in plan], workers)
+    jobs = [functools.partial(iec60909_job, case, model)]
+    jobs += [functools.partial(variant_job, v, model) for v in planned_variants(case, model)]
+    return SharedJobs(jobs, workers)
 
 
 def _workers() -> int | None:
@@ -211,17 +210,6 @@ def _workers() -> int | None:
         print(f"warning: RESONANCE_WORKERS={env!r} is not a whole number >= 1; the default is used",
               file=sys.stderr)
     return None
-
-
-def _cross_checked(case, model, res):
-    """The study with the IEC 60909 cross-check (from the memo when a worker ran it)."""
-    from .study import iec60909_cross_check, with_cross_check  # noqa: PLC0415
-
-    try:
-        sc_iec = iec60909_cross_check(case, model)
-    except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
-        sc_iec = e
-    return with_cross_check(res, sc_iec)
 
 
 def _attach_detuned_scans(case, res, det: dict) -> None:

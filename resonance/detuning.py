@@ -1032,10 +1032,10 @@ def planned_variants(case, model) -> list:
     -----
     The pre-screen needs the short-circuit power at the bank bus per scenario;
     it is the same Thevenin figure the study's scan reports
-    (:func:`resonance.study.thevenin_pu`).  Re-arrangements depend on the
+    (:func:`resonance.study.bus_short_circuit`).  Re-arrangements depend on the
     study's scans and are not planned.
     """
-    from .study import ModelSettings, _source_orders, bank_models, orders_of_concern, thevenin_pu  # noqa: PLC0415
+    from .study import ModelSettings, _source_orders, bus_short_circuit, bank_models, orders_of_concern  # noqa: PLC0415
 
     st = detuning_settings(case)
     sources, probs = _source_orders(case)
@@ -1049,10 +1049,8 @@ def planned_variants(case, model) -> list:
     for bank, bm in zip(case.bank, bank_models(case, model.arrays, model.model_bus)):
         if bm.p > 0:
             continue
-        sc_mva = {}
-        for scenario, a in (("nominal", model.arrays), ("weak", model.arrays_weak)):
-            if a is not None:
-                sc_mva[scenario] = float(a.base_mva / abs(thevenin_pu(a, np.array([bm.index]), settings)[0]))
+        sc_mva = {scenario: bus_short_circuit(a, bm.index, settings)[0]  # as the study's scan reports it
+                  for scenario, a in (("nominal", model.arrays), ("weak", model.arrays_weak)) if a is not None}
         q_net_stage = bm.stages_kvar * (bm.bus_kv / bm.rated_kv) ** 2 / (1.0 - bm.p)
         for n_req in _trial_orders(st, sig):
             _, why, rate, kv0, p_pct = _prescreen(case, bank, bm, sc_mva, n_req, q_net_stage, sig, st)

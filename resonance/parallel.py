@@ -97,7 +97,6 @@ class SharedJobs:
         self._procs: list = []
         self._conns: list = []
         n_child = min((workers or default_workers()) - 1, len(self.jobs))
-        self._ctx = None
         if n_child >= 1 and can_fork():
             ctx = mp.get_context("fork")
             self._counter = ctx.Value("l", 0)

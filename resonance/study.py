@@ -21,7 +21,7 @@ from .scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, 
 from .screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
 __all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models", "iec60909_cross_check",
-           "iec60909_key", "with_cross_check"]
+           "iec60909_job", "with_cross_check", "bus_short_circuit"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -233,6 +233,32 @@ def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) 
     return np.diagonal(z[0])
 
 
+def bus_short_circuit(arr: NetworkArrays, bus: int, settings: ModelSettings) -> tuple[float, float]:
+    """Short-circuit power [MVA] and X/R [unitless] at a model bus, from the Thevenin impedance.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    bus : int
+        Model bus [unitless].
+    settings : ModelSettings
+        Element models.
+
+    Returns
+    -------
+    (float, float)
+        ``S_sc = S_base / |Z_th|`` [MVA] and ``X_th / R_th`` [unitless], with ``Z_th`` from
+        :func:`thevenin_pu` (no loads, no banks).
+
+    References
+    ----------
+    IEC 60909-0:2016, clause 4.2 (as :func:`thevenin_pu`, with c = 1).
+    """
+    zt = thevenin_pu(arr, np.array([bus]), settings)[0]
+    return float(arr.base_mva / abs(zt)), (float(zt.imag / zt.real) if zt.real > 0 else float("inf"))
+
+
 def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], other_mode: str, pcc: int,
                h: np.ndarray, settings: ModelSettings, orders: HarmonicOrders, margin_pct: float,
                vm_steps: np.ndarray, scenario: str, pattern: YPattern, h_step: float) -> BankScan:
@@ -261,9 +287,7 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
     zpp = np.concatenate([z0[:, None, pc, pc], zs_pp], axis=1).T
     zb_k = bank.bus_kv**2 / base
     zb_p = float(arr.bus_kv[pcc]) ** 2 / base
-    zt = thevenin_pu(arr if other_mode != "full" else arr, np.array([bank.index]), settings)[0]
-    sc_mva = base / abs(zt)
-    x_r = zt.imag / zt.real if zt.real > 0 else float("inf")
+    sc_mva, x_r = bus_short_circuit(arr, bank.index, settings)
     q_nom = bank.q_cap_nominal_kvar()
     if not _ADAPTIVE_PEAKS:
         # peaks of the uniform grid, each refined on finer local grids (all in one batch)
@@ -472,7 +496,7 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
         if a is None:
             continue
         inj = build_injection(case, a, model.model_bus)
-        s_pcc = a.base_mva / abs(thevenin_pu(a, np.array([pcc]), settings)[0])
+        s_pcc = bus_short_circuit(a, pcc, settings)[0]
         if scenario == "nominal":
             sc_pcc = float(s_pcc)
         for b in banks:
@@ -509,13 +533,7 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
                        extras={"model": model, "sources": sources}, assessments=tuple(assessments),
                        sc_mva_pcc=sc_pcc)
-    if not cross_check:
-        return res
-    try:
-        sc_iec = iec60909_cross_check(case, model)
-    except Exception as e:  # noqa: BLE001 - a failed cross-check is reported, not fatal
-        sc_iec = e
-    return with_cross_check(res, sc_iec)
+    return with_cross_check(res, case, model) if cross_check else res
 
 
 def iec60909_cross_check(case: Case, model) -> dict:
@@ -540,24 +558,33 @@ def iec60909_cross_check(case: Case, model) -> dict:
         Whatever pandapower raises when the cross-check cannot run;
         :func:`with_cross_check` turns it into a warning.
     """
-    from . import netmodel  # noqa: PLC0415
-
-    key = iec60909_key(case, model)
-    if key not in model.cache:
-        model.cache[key] = netmodel.iec60909_sc_mva(model, list(key[1]))
+    key, value = iec60909_job(case, model)
+    model.cache.setdefault(key, value)
     return dict(model.cache[key])
 
 
-def iec60909_key(case: Case, model) -> tuple:
-    """Memo key (on ``model.cache``) of :func:`iec60909_cross_check`: the bank buses and the PCC."""
-    return ("iec60909", tuple(sorted({b.bus for b in case.bank} | {case.study.pcc_bus or model.supply_bus})))
+def iec60909_job(case: Case, model) -> tuple:
+    """``(memo key, {bus: S_k'' [MVA]})`` of :func:`iec60909_cross_check`, for another process.
+
+    Reads the memo on ``model.cache`` when it is there; the process that owns the model
+    stores the pair with ``model.cache.setdefault(key, value)``.
+    """
+    from . import netmodel  # noqa: PLC0415
+
+    key = ("iec60909", tuple(sorted({b.bus for b in case.bank} | {case.study.pcc_bus or model.supply_bus})))
+    if key in model.cache:
+        return key, dict(model.cache[key])
+    return key, netmodel.iec60909_sc_mva(model, list(key[1]))
 
 
-def with_cross_check(res: StudyResult, sc_iec) -> StudyResult:
-    """The study with its IEC 60909 figures [MVA], or with a warning where ``sc_iec`` is an exception."""
+def with_cross_check(res: StudyResult, case: Case, model) -> StudyResult:
+    """The study with its IEC 60909 figures [MVA] (:func:`iec60909_cross_check`), or with a
+    warning where the cross-check cannot run (a failed cross-check is reported, not fatal)."""
     import dataclasses  # noqa: PLC0415
 
-    if isinstance(sc_iec, BaseException):
+    try:
+        sc_iec = iec60909_cross_check(case, model)
+    except Exception as e:  # noqa: BLE001 - pandapower's own errors
         return dataclasses.replace(res, sc_mva_iec60909={}, warnings=res.warnings + (
-            f"IEC 60909 cross-check not available ({type(sc_iec).__name__})",))
-    return dataclasses.replace(res, sc_mva_iec60909=dict(sc_iec))
+            f"IEC 60909 cross-check not available ({type(e).__name__})",))
+    return dataclasses.replace(res, sc_mva_iec60909=sc_iec)

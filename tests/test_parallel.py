@@ -115,3 +115,39 @@ def test_results_are_the_same_with_and_without_a_worker(tmp_path):
     assert _strip_timing(a) == _strip_timing(b)
     for f in sorted(p.name for p in out["1"].iterdir() if p.suffix == ".csv"):
         assert (out["1"] / f).read_bytes() == (out["2"] / f).read_bytes()
+
+
+def test_scan_csv_is_what_csv_writer_gives():
+    # the scan CSV is formatted with one %-format per row; it must be byte for byte the text
+    # the standard library's csv.writer makes of the same rows (Python documentation, csv)
+    import csv
+    import io
+
+    from resonance.tables import scan_csv
+
+    res = run_study(load_case(ROOT / "cases" / "demo_plant.toml"))
+    for sc in res.scans:
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(["h", "z_ohm_bank_off"] + [f"z_ohm_step_{s.step}" for s in sc.steps])
+        w.writerows([f"{h:.4f}"] + [f"{z:.6g}" for z in zs] for h, zs in zip(sc.h.tolist(), sc.z_ohm.T.tolist()))
+        assert scan_csv(sc) == buf.getvalue()
+
+
+@pytest.mark.parametrize("workers", ["1", "2"])
+def test_failed_cross_check_is_a_warning_wherever_it_ran(tmp_path, monkeypatch, workers):
+    # the cross-check is a shared job: when it raises (in the worker or here) the check still
+    # ends normally, with the failure named in results.json
+    from resonance import cli, netmodel
+
+    def broken(*a, **k):
+        raise RuntimeError("no short-circuit data")
+
+    monkeypatch.setattr(netmodel, "iec60909_sc_mva", broken)
+    monkeypatch.setenv("RESONANCE_WORKERS", workers)
+    out = tmp_path / "out"
+    rc = cli.main(["check", str(ROOT / "cases" / "demo_plant.toml"), "--out", str(out), "--no-plots", "--quiet"])
+    assert rc in (0, 1)
+    data = json.loads((out / "results.json").read_text())
+    assert any("IEC 60909 cross-check not available (RuntimeError)" in w for w in data["warnings"])
+    assert all(b["sc_mva_iec60909"] is None for b in data["banks"])
