@@ -68,6 +68,19 @@ __all__ = ["DEFAULT_MAX_BYTES", "check_pandapower_json_text", "read_pandapower_j
 #: needed to parse a hostile file bounded.
 DEFAULT_MAX_BYTES = 64 * 1024 * 1024
 
+#: Deepest nesting accepted in the file itself (pandapower writes 3 to 5 levels) [unitless].
+MAX_DEPTH = 32
+#: Deepest nesting accepted inside one table's JSON text (cells hold plain values;
+#: the ``group`` table holds lists in cells) [unitless].
+MAX_PAYLOAD_DEPTH = 16
+#: Most rows in one table [unitless]; ``case9241pegase`` has 13 797 lines.
+MAX_TABLE_ROWS = 500_000
+#: Most table cells in one file [unitless]; bounds the memory and time of building the
+#: DataFrames (measured: ``case9241pegase`` holds 523 195 cells).
+MAX_CELLS = 10_000_000
+#: Most entries in the network object [unitless].
+MAX_TABLES = 1000
+
 #: at most this many problems are listed in one error
 _MAX_PROBLEMS = 20
 
@@ -187,16 +200,94 @@ def _is_plain_scalar(v: Any) -> bool:
     return v is None or isinstance(v, (str, int, float, bool))
 
 
+class _DupDict(dict):
+    """A JSON object in which some key occurred more than once (``dups`` lists them)."""
+
+    dups: tuple = ()
+
+
+def _pairs(pairs: list) -> dict:
+    """``object_pairs_hook`` that keeps the first value and marks every repeated key.
+
+    The standard parser lets the last of two equal keys win while other readers may
+    take the first; a repeated key is refused (by :func:`_refuse_duplicates`) so that
+    the check and pandapower can only ever see one and the same document.
+    """
+    d = dict(pairs)
+    if len(d) == len(pairs):
+        return d
+    seen: set = set()
+    dups = []
+    for k, _ in pairs:
+        if k in seen and k not in dups:
+            dups.append(k)
+        seen.add(k)
+    out = _DupDict(d)
+    out.dups = tuple(dups)
+    return out
+
+
+def _walk_limits(doc: Any, root: str, probs: "_Problems", max_depth: int) -> None:
+    """Refuse repeated keys anywhere in ``doc`` and nesting deeper than ``max_depth``.
+
+    Iterative (no recursion limit); path strings are built only for problems.
+    """
+    stack: list[tuple[Any, tuple, int]] = [(doc, (root,), 1)]
+    deep_reported = False
+    while stack:
+        obj, node, depth = stack.pop()
+        if depth > max_depth:
+            if not deep_reported:
+                probs.add(_render(node), f"nested more than {max_depth} levels deep; a network file "
+                                         "written by pandapower.to_json is never nested this deeply")
+                deep_reported = True
+            continue
+        if isinstance(obj, dict):
+            if isinstance(obj, _DupDict):
+                for k in obj.dups:
+                    probs.add(_render((node, k)), f"key {k!r} occurs more than once in this object; JSON "
+                                                  "readers disagree on which one counts, so the file is refused")
+            for k, v in obj.items():
+                if isinstance(v, (dict, list)):
+                    stack.append((v, (node, k), depth + 1))
+        elif isinstance(obj, list):
+            for i, v in enumerate(obj):
+                if isinstance(v, (dict, list)):
+                    stack.append((v, (node, i), depth + 1))
+
+
 def _parse_json(text: str, file: str, field: str, what: str) -> Any:
-    """``json.loads`` with syntax errors turned into an InputError."""
+    """``json.loads`` with syntax errors turned into an InputError (repeated keys marked)."""
     try:
-        return json.loads(text)
+        return json.loads(text, object_pairs_hook=_pairs)
     except json.JSONDecodeError as exc:
         raise InputError.single(
             file, field, f"{what} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}"
         ) from None
     except RecursionError:
         raise InputError.single(file, field, f"{what} is nested too deeply to be a network file") from None
+
+
+class _CellBudget:
+    """Counts the cells of every table of one file against :data:`MAX_CELLS`."""
+
+    def __init__(self):
+        self.cells = 0
+
+    def add(self, n: int) -> None:
+        self.cells += int(n)
+
+
+def _payload_size(payload: dict, orient: str) -> tuple[int, int]:
+    """Rows and cells of a table payload [unitless]."""
+    if orient == "split":
+        data = payload.get("data", [])
+        if not isinstance(data, list):
+            return 0, 0
+        cells = sum(len(r) if isinstance(r, list) else 1 for r in data)
+        return len(data), cells
+    lengths = [len(col) if isinstance(col, (dict, list)) else 1 for col in payload.values()]
+    return max(lengths, default=0), sum(lengths)
 
 
 def _payload_rows(payload: dict, orient: str) -> int:
@@ -228,7 +319,7 @@ def _check_geo(payload: dict, orient: str, path: str, probs: _Problems) -> None:
                     probs.add(_key(f"{path}.geo", k), problem)
 
 
-def _check_table(key: str, d: dict, path: str, file: str, probs: _Problems) -> None:
+def _check_table(key: str, d: dict, path: str, file: str, probs: _Problems, budget: "_CellBudget") -> None:
     """Check one DataFrame / Series tag of the network at ``path``."""
     is_frame = (d.get("_module"), d.get("_class")) == _FRAME_TAG
     kind = "DataFrame" if is_frame else "Series"
@@ -285,6 +376,14 @@ def _check_table(key: str, d: dict, path: str, file: str, probs: _Problems) -> N
     if not isinstance(payload, dict):
         probs.add(ppath, f"the {kind} payload must be a JSON object")
         return
+    _walk_limits(payload, ppath, probs, MAX_PAYLOAD_DEPTH)
+    rows, cells = _payload_size(payload, orient if isinstance(orient, str) else "")
+    if rows > MAX_TABLE_ROWS:
+        probs.add(path, f"the table has {rows} rows, more than the limit of {MAX_TABLE_ROWS} "
+                        "(the largest network bundled with pandapower has under 14 000)")
+    budget.add(cells)
+    # pandapower receives exactly what was checked: the payload written again from the parsed form
+    d["_object"] = json.dumps(payload, ensure_ascii=False)
     if isinstance(orient, str) and orient in orients:
         if key == "controller" and is_frame and _payload_rows(payload, orient) > 0:
             probs.add(path, f"the controller table has {_payload_rows(payload, orient)} row(s): controllers "
@@ -301,7 +400,9 @@ def check_pandapower_json_text(text: str, *, file: str) -> None:
     """Check that pandapower JSON text describes a network and nothing more.
 
     Pure: no file is opened and pandapower is not imported.  The text is
-    parsed with the standard :mod:`json` module and walked completely,
+    parsed with the standard :mod:`json` module (a key repeated in one object
+    is refused, naming its JSON path; nesting, table rows and cells are
+    bounded, see :data:`MAX_DEPTH`, :data:`MAX_CELLS`) and walked completely,
     including the JSON text held inside each table (see the module docstring
     for what is accepted).
 
@@ -314,8 +415,10 @@ def check_pandapower_json_text(text: str, *, file: str) -> None:
 
     Returns
     -------
-    None
-        Returns only if the text is acceptable [unitless].
+    str
+        The checked document written again as JSON text (each table's payload
+        too) [unitless]: hand this, never the original text, to pandapower, so
+        the reader sees exactly the structure that was checked.
 
     Raises
     ------
@@ -342,6 +445,9 @@ def check_pandapower_json_text(text: str, *, file: str) -> None:
         raise TypeError("text must be str")
     doc = _parse_json(text, file, "", "the file")
     probs = _Problems(file)
+    budget = _CellBudget()
+    _walk_limits(doc, "$", probs, MAX_DEPTH)
+    probs.raise_if_any()
     expected = ("a pandapower network as written by pandapower.to_json, i.e. an object with "
                 "_module='pandapower.auxiliary', _class='pandapowerNet' and an _object holding the tables")
     if not isinstance(doc, dict) or (doc.get("_module"), doc.get("_class")) != _NET_TAG:
@@ -366,12 +472,20 @@ def check_pandapower_json_text(text: str, *, file: str) -> None:
         if isinstance(value, dict) and any(t in value for t in _TAG_KEYS):
             tag = (value.get("_module"), value.get("_class"))
             if tag in (_FRAME_TAG, _SERIES_TAG):
-                _check_table(key, value, path, file, probs)
+                _check_table(key, value, path, file, probs, budget)
             else:
                 probs.add(path, _tag_problem(value, "as a value of the network"))
         elif isinstance(value, (dict, list)):
             _scan_untagged(value, path, probs, "in plain network data")
+    if len(body) > MAX_TABLES:
+        probs.add("$._object", f"{len(body)} entries, more than the limit of {MAX_TABLES} "
+                               "(a pandapower network has about 80)")
+    if budget.cells > MAX_CELLS:
+        probs.add("$._object", f"the tables hold {budget.cells} cells in all, more than the limit of "
+                               f"{MAX_CELLS} (the largest network bundled with pandapower, "
+                               "case9241pegase, holds about 520 000); a file this large would take minutes and gigabytes to build")
     probs.raise_if_any()
+    return json.dumps(doc, ensure_ascii=False)
 
 
 def read_pandapower_json(path: "str | os.PathLike[str]", *, file_label: "str | None" = None,
@@ -429,8 +543,9 @@ def read_pandapower_json(path: "str | os.PathLike[str]", *, file_label: "str | N
         raise InputError.single(label, "", f"cannot read the file: {exc.strerror or exc}") from None
     if not stat.S_ISREG(st.st_mode):
         raise InputError.single(label, "", "not a regular file")
-    too_big = (f"the file is larger than the limit of {max_bytes} bytes; "
-               "pass a larger max_bytes if the network is genuinely this large")
+    too_big = (f"the file is larger than the limit of {max_bytes} bytes ({max_bytes // (1024 * 1024)} MiB), "
+               "about 15 times the largest network bundled with pandapower; remove result tables "
+               "(res_*) and geodata before saving if the network is genuinely this large")
     if st.st_size > max_bytes:
         raise InputError.single(label, "", f"{st.st_size} bytes: {too_big}")
     try:
@@ -448,13 +563,13 @@ def read_pandapower_json(path: "str | os.PathLike[str]", *, file_label: "str | N
         ) from None
     if text.startswith("\ufeff"):
         text = text[1:]
-    check_pandapower_json_text(text, file=label)
+    checked = check_pandapower_json_text(text, file=label)
 
     import pandapower  # noqa: PLC0415 - lazy: importing resonance must not import pandapower
     from pandapower.auxiliary import pandapowerNet  # noqa: PLC0415
 
     try:
-        net = pandapower.from_json_string(text)
+        net = pandapower.from_json_string(checked)  # the checked document, never the raw text
     except Exception as exc:  # noqa: BLE001 - anything pandapower raises is bad input here
         msg = f"{type(exc).__name__}: {exc}"
         if len(msg) > 300:

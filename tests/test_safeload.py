@@ -493,7 +493,16 @@ def test_many_problems_are_capped(tmp_path):
 def test_check_text_is_pure_and_accepts_genuine_text():
     text, _, _ = _genuine("case9")
     with _Recorder() as rec:
-        assert check_pandapower_json_text(text, file="x.json") is None
+        out = check_pandapower_json_text(text, file="x.json")
+    assert rec.paths == []
+    a, b = json.loads(out)["_object"], json.loads(text)["_object"]
+    assert a.keys() == b.keys()
+    for k in a:  # the same document, each table's payload written again from its parsed form
+        if isinstance(a[k], dict) and isinstance(a[k].get("_object"), str):
+            assert json.loads(a[k]["_object"]) == json.loads(b[k]["_object"])
+            a[k] = {**a[k], "_object": None}
+            b[k] = {**b[k], "_object": None}
+    assert a == b
     assert rec.paths == []
 
 
@@ -505,3 +514,92 @@ def test_import_does_not_import_pandapower():
     res = subprocess.run([sys.executable, "-W", "error", "-c", code], cwd=root, capture_output=True,
                          text=True, timeout=60, check=False)
     assert res.returncode == 0, res.stderr
+
+
+# --------------------------------------------------------------------------- one document (issue: duplicate keys)
+
+def _sentinel_module(tmp_path: Path, name: str) -> Path:
+    """A module that records its import by writing a file; returns that file's path."""
+    mark = tmp_path / f"{name}.imported"
+    (tmp_path / f"{name}.py").write_text(f"open({str(mark)!r}, 'w').write('ran')\n", encoding="utf-8")
+    return mark
+
+
+def _dup_first(text_obj: str, key: str, first: str) -> str:
+    """Insert ``"key": first`` as the first member of the JSON object text ``text_obj``."""
+    assert text_obj.startswith("{")
+    return "{" + json.dumps(key) + ": " + first + ", " + text_obj[1:]
+
+
+@pytest.mark.parametrize("where", ["bus", "dtype"])
+def test_duplicate_key_with_a_module_is_refused_and_nothing_imported(tmp_path, monkeypatch, where):
+    """A first duplicate that names a module (the standard parser keeps the last one) must not
+    reach pandapower: refused with its JSON path, and the sentinel module never runs."""
+    name = f"evil_{where}_mod"
+    mark = _sentinel_module(tmp_path, name)
+    monkeypatch.syspath_prepend(str(tmp_path))
+    text, _, _ = _genuine("case9")
+    evil = json.dumps({"_module": name, "_class": "Thing", "_object": "{}"})
+    doc = json.loads(text)
+    body = json.dumps(doc["_object"])
+    if where == "bus":
+        body = _dup_first(body, "bus", evil)
+        field = '$._object.bus'
+    else:
+        bus = json.dumps(doc["_object"]["bus"])
+        bus = _dup_first(bus, "dtype", evil)
+        body = body.replace(json.dumps(doc["_object"]["bus"]), bus, 1)
+        field = '$._object.bus.dtype'
+    crafted = '{"_module": "pandapower.auxiliary", "_class": "pandapowerNet", "_object": ' + body + "}"
+    # the standard parser alone would not see the module: the last duplicate wins
+    assert name not in json.dumps(json.loads(crafted))
+    path = _write(tmp_path, crafted)
+    with pytest.raises(InputError) as ei:
+        read_pandapower_json(path)
+    assert not mark.exists() and name not in sys.modules
+    p = ei.value.problems[0]
+    assert p.field == field and "occurs more than once" in p.problem
+
+
+def test_duplicate_key_inside_a_table_payload_is_refused(tmp_path):
+    doc = _doc("case9")
+    raw = doc["_object"]["bus"]["_object"]
+    doc["_object"]["bus"]["_object"] = _dup_first(raw, "columns", '["x"]')
+    with pytest.raises(InputError) as ei:
+        read_pandapower_json(_write(tmp_path, doc))
+    assert ei.value.problems[0].field == "$._object.bus._object.columns"
+
+
+def test_pandapower_gets_the_checked_document_not_the_text(tmp_path, monkeypatch):
+    """What pandapower is handed parses to the same network as the file, from text the check wrote."""
+    calls = []
+    real = pp.from_json_string
+    monkeypatch.setattr(pp, "from_json_string", lambda t, *a, **k: calls.append(t) or real(t, *a, **k))
+    text, n_bus, n_line = _genuine("case9")
+    spaced = text.replace(", ", ",   ")  # same document, different text
+    net = read_pandapower_json(_write(tmp_path, spaced))
+    assert len(calls) == 1 and calls[0] != spaced
+    assert len(net.bus) == n_bus and len(net.line) == n_line
+
+
+def test_nesting_and_size_are_bounded(tmp_path, monkeypatch):
+    """A file under the byte limit cannot ask for unbounded work: nesting and cells are capped."""
+    import resonance.safeload as sl
+
+    doc = _doc("case9")
+    deep = []
+    for _ in range(sl.MAX_DEPTH + 5):
+        deep = [deep]
+    doc["_object"]["user_pf_options"] = deep
+    with pytest.raises(InputError) as ei:
+        read_pandapower_json(_write(tmp_path, doc))
+    assert "nested more than" in ei.value.problems[0].problem
+    monkeypatch.setattr(sl, "MAX_CELLS", 50)  # case9 holds more than 50 cells
+    with pytest.raises(InputError) as ei:
+        read_pandapower_json(_write(tmp_path, _doc("case9"), "n2.json"))
+    assert any("cells in all" in p.problem and p.field == "$._object" for p in ei.value.problems)
+    monkeypatch.setattr(sl, "MAX_TABLE_ROWS", 3)  # case9 has 9 buses
+    monkeypatch.setattr(sl, "MAX_CELLS", 10_000_000)
+    with pytest.raises(InputError) as ei:
+        read_pandapower_json(_write(tmp_path, _doc("case9"), "n3.json"))
+    assert any(p.field == "$._object.bus" and "rows" in p.problem for p in ei.value.problems)
