@@ -149,7 +149,7 @@ def plant_timings() -> dict:
         t_first, rc, _ = _check(case_path, "--no-plots")
     print(f"demo plant: first check in this process (lazy imports included) {t_first:.2f} s, exit {rc}")
     def timed_runs(n: int, workers: str | None) -> tuple[list[float], float]:
-        """n checks without report: wall times [s] and CPU per check, this process and its workers [s]."""
+        """n checks without report: wall times [s] and CPU per check [s]."""
         old = os.environ.get("RESONANCE_WORKERS")
         if workers is not None:
             os.environ["RESONANCE_WORKERS"] = workers
@@ -167,16 +167,12 @@ def plant_timings() -> dict:
                 os.environ["RESONANCE_WORKERS"] = old
         return walls, cpu
 
-    serial, cpu_serial = timed_runs(5, "1")
-    print(f"demo plant: full check without report, one process (RESONANCE_WORKERS=1) {min(serial):.2f} s "
-          f"(best of 5: {', '.join(f'{t:.2f}' for t in serial)}; {cpu_serial:.2f} s CPU per check)")
-    runs, cpu_par = timed_runs(5, None)
+    runs, cpu_one = timed_runs(5, None)  # everything of a small check runs in this process
     t_compute = min(runs)
     out["compute"] = t_compute
     print(f"demo plant: full check without report (study, detuning, time in step, results.json, tables) "
           f"{t_compute:.2f} s (best of 5: {', '.join(f'{t:.2f}' for t in runs)}; median "
-          f"{sorted(runs)[len(runs) // 2]:.2f} s; {cpu_par:.2f} s CPU per check, worker included); "
-          f"target < 0.5 s")
+          f"{sorted(runs)[len(runs) // 2]:.2f} s; {cpu_one:.2f} s CPU per check); target < 0.5 s")
     with contextlib.redirect_stdout(io.StringIO()):
         runs = [_check(case_path) for _ in range(2)]
     t_full = min(r[0] for r in runs)

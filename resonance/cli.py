@@ -1,7 +1,11 @@
 """Command-line interface: ``resonance check CASE --out DIR``.
 
-Exit status: 0 every check passes; 1 a finding beyond a limit; 2 bad input or usage.
+Exit status: 0 every check passes; 1 a finding beyond a limit; 2 bad input or usage;
+3 a defect of the tool (an unexpected error: one line on the terminal, the traceback in
+``DIR/resonance-defect.txt``); 128 + n when ended by signal n (SIGINT, SIGTERM, SIGHUP),
+with no staging folder and no child process left.
 Heavy libraries (pandapower, matplotlib) are imported only inside the commands.
+Everything printed has control characters escaped (a title cannot drive the terminal).
 """
 
 from __future__ import annotations
@@ -10,7 +14,9 @@ import argparse
 import hashlib
 import json
 import os
+import signal
 import sys
+import traceback
 from pathlib import Path
 
 from . import __version__
@@ -18,7 +24,65 @@ from .errors import InputError, ModelError, ResonanceError
 
 __all__ = ["main", "build_parser"]
 
-EXIT_OK, EXIT_FINDING, EXIT_INPUT = 0, 1, 2
+EXIT_OK, EXIT_FINDING, EXIT_INPUT, EXIT_DEFECT = 0, 1, 2, 3
+
+#: the run in progress: case path and open output folder (for the defect and signal paths)
+_STATE: dict = {"case": None, "out": None, "out_arg": None}
+
+#: errors of the output medium (full disk, quota, read-only, permission): exit 2, not a defect
+_WRITE_ERRNOS = frozenset({28, 122, 30, 13, 1})  # ENOSPC, EDQUOT, EROFS, EACCES, EPERM
+
+#: file in the output folder that receives the traceback of a defect of the tool
+DEFECT_FILE = "resonance-defect.txt"
+
+
+def _escape(text: str) -> str:
+    """``text`` with control characters (other than newline) shown as escapes, e.g. ``\\x1b``."""
+    if text.isprintable():
+        return text
+    out = []
+    for ch in text:
+        if ch == "\n" or ch.isprintable():
+            out.append(ch)
+        elif ch == "\t":
+            out.append("    ")
+        else:
+            out.append(ch.encode("unicode_escape").decode("ascii"))
+    return "".join(out)
+
+
+def _say(text: str, file=None) -> None:
+    """Print one message with control characters escaped."""
+    print(_escape(str(text)), file=file if file is not None else sys.stdout)
+
+
+class _Terminated(BaseException):
+    """Raised in the main thread by SIGTERM or SIGHUP, like KeyboardInterrupt for SIGINT."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _on_signal(signum, _frame):
+    # ignore a second signal while the first one unwinds and cleans up
+    for sig in (signal.SIGTERM, signal.SIGHUP, signal.SIGINT):
+        try:
+            signal.signal(sig, signal.SIG_IGN)
+        except (ValueError, OSError):  # pragma: no cover
+            pass
+    raise _Terminated(signum)
+
+
+def _install_signals() -> dict:
+    """SIGTERM and SIGHUP raise :class:`_Terminated` (main thread only); returns the old handlers."""
+    old = {signal.SIGINT: signal.getsignal(signal.SIGINT)}  # restored too: a second signal ignores it
+    for sig in (signal.SIGTERM, signal.SIGHUP):
+        try:
+            old[sig] = signal.signal(sig, _on_signal)
+        except (ValueError, OSError):  # not the main thread: leave the handlers alone
+            pass
+    return old
 
 
 class _Parser(argparse.ArgumentParser):
@@ -33,7 +97,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="resonance", description=(
         "Screening studies for power-factor-correction capacitor banks: frequency scan of every bank "
         "step, harmonic penetration, capacitor duty and distortion limits, detuning proposals."),
-        epilog="Exit status: 0 all checks pass, 1 a finding beyond a limit, 2 bad input or usage.")
+        epilog="Exit status: 0 all checks pass, 1 a finding beyond a limit, 2 bad input or usage, "
+               "3 a defect of the tool (traceback in DIR/resonance-defect.txt).")
     p.add_argument("--version", action="version", version=f"resonance {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     c = sub.add_parser("check", help="run the full check of a case file and write results",
@@ -77,6 +142,19 @@ def _summary(data: dict) -> str:
     return "\n".join(lines)
 
 
+def _input_files(case, case_path: Path) -> list[Path]:
+    """Every input file the case names (case, network, demand intervals): never written."""
+    files = [case_path]
+    base = Path(case.base_dir)
+    if case.network is not None:
+        files.append(base / case.network.pandapower_json)
+    demand = getattr(case, "demand", None)
+    csv_name = getattr(demand, "intervals_csv", None) if demand is not None else None
+    if csv_name:
+        files.append(base / csv_name)
+    return files
+
+
 def _check(args) -> int:
     from .case import load_case  # noqa: PLC0415
     from .study import run_study  # noqa: PLC0415
@@ -85,35 +163,24 @@ def _check(args) -> int:
 
     case_path = Path(args.case)
     case = load_case(case_path)
+    _STATE["case"] = str(case_path)
     for hint in case.hints:  # likely mistakes in a valid case: reported, not fatal
-        print(f"warning: {hint}", file=sys.stderr)
-    protect = [case_path]
-    if case.network is not None:
-        protect.append(Path(case.base_dir) / case.network.pandapower_json)
-    out = OutputDir(args.out, protect=protect)
-    workers = _workers()  # processes for the shared jobs and the report (None: the default)
-    ahead = None
+        _say(f"warning: {hint}", sys.stderr)
+    out = OutputDir(args.out, protect=_input_files(case, case_path))
+    _STATE["out"] = out
+    _workers()  # a bad RESONANCE_WORKERS is named here; the sparse engine reads it itself
     try:
         from . import netmodel  # noqa: PLC0415
-        from .detuning import accept_variant, propose_detuning  # noqa: PLC0415
+        from .detuning import propose_detuning  # noqa: PLC0415
         from .demand import time_in_step  # noqa: PLC0415
         from .study import with_cross_check  # noqa: PLC0415
         from .tables import write_scan_tables  # noqa: PLC0415
 
         model = netmodel.build_model(case)
         res = run_study(case, model=model, cross_check=False)
-        # the IEC 60909 cross-check and the detuning re-checks the proposal will most likely
-        # run, started in a worker now that the model's memo (load flows, bank-off scans) is
-        # filled, while this process writes the tables and then takes jobs too
-        ahead = _run_ahead(case, model, workers)
         tis = time_in_step(case, res)
         write_scan_tables(res, out)
-        for key, r in ahead.finish().values():  # each job gives (memo key, value)
-            if key[0] == "study":
-                accept_variant(model, key, r)
-            else:
-                model.cache.setdefault(key, r)
-        res = with_cross_check(res, case, model)  # from the memo where a job ran it
+        res = with_cross_check(res, case, model)
         det = propose_detuning(case, model, res)
         _attach_detuned_scans(case, res, det)
         sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
@@ -145,70 +212,54 @@ def _check(args) -> int:
         if not (args.no_plots or args.no_report):
             from .report import write_report  # noqa: PLC0415
 
-            write_report(res, data, out, workers=workers)
+            write_report(res, data, out)
         written = out.commit()
     except BaseException:
         out.discard()
         raise
     finally:
-        if ahead is not None:
-            ahead.close()
+        _STATE["out"] = None
     if not args.quiet:
-        print(_summary(data))
-        print()
+        _say(_summary(data))
+        _say("")
     for f in data["findings"]:
-        print(f"FINDING: {f['message']}")
+        _say(f"FINDING: {f['message']}")
     for b in data["banks"]:
         t = b.get("time_in_step")
         if t:
-            print(f"\nbank {b['name']}: from {t['source']}: achieved PF {t['pf_achieved_period']:.3f}, "
-                  f"{t['switching_ops_per_day']:g} operations/day, time in steps with findings "
-                  f"{t['time_with_findings_pct']:.1f} %; time in step 0..{len(t['fraction']) - 1}: "
-                  + ", ".join(f"{100 * f:.1f} %" for f in t["fraction"]))
+            _say(f"\nbank {b['name']}: from {t['source']}: achieved PF {t['pf_achieved_period']:.3f}, "
+                 f"{t['switching_ops_per_day']:g} operations/day, time in steps with findings "
+                 f"{t['time_with_findings_pct']:.1f} %; time in step 0..{len(t['fraction']) - 1}: "
+                 + ", ".join(f"{100 * f:.1f} %" for f in t["fraction"]))
         d = b.get("detuning") or {}
         rec = d.get("recommended")
         if rec:
-            print(f"\nbank {b['name']}: proposed detuned design: tuning order {rec['tuning_order']:.2f} "
-                  f"(p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV, nameplate stages "
-                  f"{', '.join(f'{q:g}' for q in rec['steps_kvar'])} kvar")
+            _say(f"\nbank {b['name']}: proposed detuned design: tuning order {rec['tuning_order']:.2f} "
+                 f"(p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV, nameplate stages "
+                 f"{', '.join(f'{q:g}' for q in rec['steps_kvar'])} kvar")
         if d.get("reason") and (rec or d.get("status") == "proposed"):
-            print(f"  {d['reason']}")
+            _say(f"  {d['reason']}")
     for w in data["warnings"]:
         if not args.quiet:
-            print(f"note: {w}")
+            _say(f"note: {w}")
     if not args.quiet:
-        print(f"\nwrote {len(written)} files to {out.path.resolve()}: " + ", ".join(p.name for p in written))
-        print(f"\n{CAUTION}")
+        _say(f"\nwrote {len(written)} files to {out.path.resolve()}: " + ", ".join(p.name for p in written))
+        _say(f"\n{CAUTION}")
     return EXIT_OK if data["passed"] else EXIT_FINDING
 
 
-def _run_ahead(case, model, workers: int | None = None):
-    """The IEC 60909 cross-check and the detuning re-checks the proposal will most likely
-    need, as shared jobs (:class:`resonance.parallel.SharedJobs`) that start in a forked worker.
-
-    Each job returns ``(memo key, value)``.  The results are the same wherever the jobs run
-    (deterministic and memoised, see :func:`resonance.detuning.run_variant`); a worker only
-    saves time.  ``workers=1`` (``RESONANCE_WORKERS=1``) keeps everything in this process.
-    """
-    import functools  # noqa: PLC0415
-
-    from .detuning import planned_variants, variant_job  # noqa: PLC0415
-    from .parallel import SharedJobs  # noqa: PLC0415
-    from .study import iec60909_job  # noqa: PLC0415
-
-    jobs = [functools.partial(iec60909_job, case, model)]
-    jobs += [functools.partial(variant_job, v, model) for v in planned_variants(case, model)]
-    return SharedJobs(jobs, workers)
-
-
 def _workers() -> int | None:
-    """Processes from ``RESONANCE_WORKERS`` (a whole number >= 1), else None (the default)."""
+    """Processes from ``RESONANCE_WORKERS`` (a whole number >= 1), else None (the default).
+
+    The same variable sets the sparse engine's pool (:func:`resonance.engine.default_workers`);
+    here a bad value is named in a warning.
+    """
     env = os.environ.get("RESONANCE_WORKERS", "").strip()
     if env.isdigit() and int(env) >= 1:
         return int(env)
     if env:
-        print(f"warning: RESONANCE_WORKERS={env!r} is not a whole number >= 1; the default is used",
-              file=sys.stderr)
+        _say(f"warning: RESONANCE_WORKERS={env!r} is not a whole number >= 1; the default is used",
+             sys.stderr)
     return None
 
 
@@ -230,27 +281,38 @@ def _attach_detuned_scans(case, res, det: dict) -> None:
             res.extras[f"detuned_scan_{name}"] = sc
 
 
-def _without_full_collections(fn, *a):
-    """``fn(*a)`` with the garbage collector's full (oldest-generation) collections held off.
-
-    The imported libraries leave a few hundred thousand objects on the heap; a full
-    collection over them costs about 0.3 s and would fall at a random point of the check.
-    Young collections still run (they free the short-lived cycles); the thresholds are
-    restored afterwards, so a long-lived caller collects as before (Python documentation,
-    ``gc.set_threshold``).
-    """
-    import gc  # noqa: PLC0415
-
-    t0, t1, t2 = gc.get_threshold()
-    gc.set_threshold(t0, t1, max(t2, 1 << 30))
-    try:
-        return fn(*a)
-    finally:
-        gc.set_threshold(t0, t1, t2)
-
-
 def _safe(name: str) -> str:
     return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+
+
+def _defect(exc: BaseException, command: str | None) -> int:
+    """Report an unexpected error: one line here, the traceback in the output folder."""
+    case = _STATE.get("case") or "(no case read yet)"
+    tb = "".join(traceback.format_exception(type(exc), exc, exc.__traceback__))
+    where = None
+    out_arg = _STATE.get("out_arg")
+    if out_arg:
+        try:
+            d = Path(out_arg)
+            d.mkdir(parents=True, exist_ok=True)
+            where = d / DEFECT_FILE
+            where.write_text(f"resonance {__version__}, command {command}, case {case}\n\n{tb}", encoding="utf-8")
+        except OSError:
+            where = None
+    if where is None:
+        import tempfile  # noqa: PLC0415
+
+        try:
+            fd, name = tempfile.mkstemp(prefix="resonance-defect-", suffix=".txt")
+            with os.fdopen(fd, "w", encoding="utf-8") as fh:
+                fh.write(tb)
+            where = Path(name)
+        except OSError:
+            where = None
+    _say(f"error: {case}: a defect of the tool, not of your input ({type(exc).__name__}); "
+         f"the traceback is in {where or 'no file (the output folder is not writable)'}; "
+         "please report it with the case file", sys.stderr)
+    return EXIT_DEFECT
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -264,7 +326,8 @@ def main(argv: list[str] | None = None) -> int:
     Returns
     -------
     int
-        0 all checks pass, 1 a finding beyond a limit, 2 bad input or usage.
+        0 all checks pass, 1 a finding beyond a limit, 2 bad input or usage, 3 a
+        defect of the tool, 128 + n ended by signal n.
     """
     parser = build_parser()
     try:
@@ -274,20 +337,42 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_INPUT
+    _STATE.update(case=None, out=None, out_arg=getattr(args, "out", None))
+    old = _install_signals()
     try:
         if args.command == "check":
-            return _without_full_collections(_check, args)
+            if not str(args.out).strip():
+                _say("error: --out: an empty output folder name; give the folder for the results", sys.stderr)
+                return EXIT_INPUT
+            return _check(args)
         return int(args.run(args))
     except InputError as e:
         for p in e.problems:
-            print(f"error: {p}", file=sys.stderr)
+            _say(f"error: {p}", sys.stderr)
         return EXIT_INPUT
     except ModelError as e:
-        print(f"error: the network model cannot be solved: {e}", file=sys.stderr)
+        _say(f"error: the network model cannot be solved: {e}", sys.stderr)
         return EXIT_INPUT
     except ResonanceError as e:
-        print(f"error: {e}", file=sys.stderr)
+        _say(f"error: {e}", sys.stderr)
         return EXIT_INPUT
     except KeyboardInterrupt:
-        print("interrupted; no partial outputs were left", file=sys.stderr)
-        return 130
+        _say("interrupted (SIGINT); no partial outputs were left", sys.stderr)
+        return 128 + int(signal.SIGINT)
+    except _Terminated as e:
+        _say(f"terminated ({signal.Signals(e.signum).name}); no partial outputs were left", sys.stderr)
+        return 128 + e.signum
+    except OSError as e:
+        if e.errno in _WRITE_ERRNOS:  # the machine, not the input nor the tool: say which folder
+            _say(f"error: {getattr(args, 'out', '') or '.'}: --out: cannot write the outputs: "
+                 f"{e.strerror or e}; no partial outputs were left", sys.stderr)
+            return EXIT_INPUT
+        return _defect(e, args.command)
+    except Exception as e:  # noqa: BLE001 - a defect of the tool: exit 3, traceback to a file
+        return _defect(e, args.command)
+    finally:
+        for sig, h in old.items():
+            try:
+                signal.signal(sig, h if h is not None else signal.SIG_DFL)
+            except (ValueError, OSError):  # pragma: no cover
+                pass

@@ -52,7 +52,15 @@ _POOL_MIN_WORK_S = 6.0
 
 
 def default_workers() -> int:
-    """Number of processes to use: the CPUs this process may run on [unitless]."""
+    """Number of processes for the pool [unitless].
+
+    ``RESONANCE_WORKERS`` when it holds a whole number >= 1 (the one setting for the
+    command line and the Python API; 1 keeps everything in this process), else the
+    CPUs this process may run on.
+    """
+    env = os.environ.get("RESONANCE_WORKERS", "").strip()
+    if env.isdigit() and int(env) >= 1:
+        return int(env)
     try:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # pragma: no cover - not Linux
@@ -468,8 +476,9 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
         if derivative:
             dout[a:a + chunk] = res[1]
 
-    with ProcessPoolExecutor(max_workers=workers - 1, mp_context=mp.get_context("spawn"),
-                             initializer=_init_worker, initargs=(engine,)) as ex:
+    ex = ProcessPoolExecutor(max_workers=workers - 1, mp_context=mp.get_context("spawn"),
+                             initializer=_init_worker, initargs=(engine,))
+    try:
         futs = {a: ex.submit(_work, *part(a)) for a in reversed(starts)}
         for a in starts:
             if not futs[a].cancel():
@@ -478,4 +487,23 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
             futs.pop(a)
         for a, fu in futs.items():
             put(a, fu.result())
+    except BaseException:
+        # interrupted (a signal, an error): no worker may outlive this call
+        _stop_pool(ex)
+        raise
+    ex.shutdown(wait=True)
     return (out, dout) if derivative else out
+
+
+def _stop_pool(ex: ProcessPoolExecutor) -> None:
+    """Cancel the queued chunks, terminate the pool's processes and wait for them."""
+    procs = list((getattr(ex, "_processes", None) or {}).values())
+    ex.shutdown(wait=False, cancel_futures=True)
+    for p in procs:
+        if p.is_alive():
+            p.terminate()
+    for p in procs:
+        p.join(timeout=5)
+        if p.is_alive():  # pragma: no cover - a worker that ignores SIGTERM
+            p.kill()
+            p.join()

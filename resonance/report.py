@@ -4,8 +4,7 @@ Edge layer.  This module composes the pages; the parts live beside it:
 :mod:`resonance.report_tables` (readers of the results and the tables),
 :mod:`resonance.report_text` (verdicts, methods), :mod:`resonance.report_layout`
 (the page cursor), :mod:`resonance.report_specs` (figure specs and file jobs),
-:mod:`resonance.report_figures` (the drawers) and :mod:`resonance.report_pool`
-(the PDF and the figure files written side by side in forked processes).
+:mod:`resonance.report_figures` (the drawers).
 
 :func:`write_report` reads the study result and the results dictionary of
 :func:`resonance.results.to_dict`; keys of later study stages
@@ -39,7 +38,6 @@ study extras (``res.extras``):
 from __future__ import annotations
 
 import datetime as _dt
-import functools
 import textwrap
 
 import matplotlib
@@ -50,7 +48,6 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from . import __version__  # noqa: E402
 from . import report_figures as rf  # noqa: E402
 from .report_layout import INK, M_BOTTOM, M_LEFT, M_RIGHT, PAGE_H, PAGE_W, TEXT_W, _Doc, _hline, _rect  # noqa: E402
-from .report_pool import run_side_by_side  # noqa: E402
 from .report_specs import _fig_specs, _FigSpec, _step_pages, file_jobs  # noqa: E402
 from .report_tables import Column, Table, _fmt_any, _limits, _safe, report_tables  # noqa: E402
 from .report_text import NOT_EVALUATED, _methods, _verdict  # noqa: E402
@@ -76,8 +73,7 @@ REFERENCES = (
 )
 
 
-def write_report(res: StudyResult, data: dict, out, *, date: str | None = None,
-                 workers: int | None = None) -> list[str]:
+def write_report(res: StudyResult, data: dict, out, *, date: str | None = None) -> list[str]:
     """Stage the PDF report, every figure (PNG and SVG) and every table (CSV).
 
     Parameters
@@ -91,10 +87,6 @@ def write_report(res: StudyResult, data: dict, out, *, date: str | None = None,
         Output directory; files are staged with ``out.file(name)``.
     date : str, optional
         Date printed on the cover (today, ISO format, when None) [unitless].
-    workers : int, optional
-        Processes writing the PDF and the figure files side by side, this one
-        included (up to 2, as the CPUs allow, when None; 1: all in this process)
-        [unitless].  The files are the same whatever the number.
 
     Returns
     -------
@@ -105,12 +97,12 @@ def write_report(res: StudyResult, data: dict, out, *, date: str | None = None,
     -----
     The PDF carries no creation date and SVGs use a fixed id salt, so the same
     input gives the same content apart from the cover date.  The PDF is written
-    in this process while forked workers write the stand-alone figures
-    (:func:`resonance.report_pool.run_side_by_side`); every figure file is drawn
-    once, on its own figure, and saved as PNG and SVG from it.
+    first, then every stand-alone figure file, each drawn once on its own
+    figure and saved as PNG and SVG from it (all in this process: a forked pool
+    gained nothing measurable, see ``docs/performance.md``).
     """
     with matplotlib.rc_context(rf.RC):
-        return _write(res, data, out, date or _dt.date.today().isoformat(), workers)
+        return _write(res, data, out, date or _dt.date.today().isoformat())
 
 
 def _cover(doc: _Doc, data: dict, date: str) -> float:
@@ -201,14 +193,15 @@ def _first_h(specs: list) -> float:
     return specs[0].page_h + 0.5 if specs else 0.0
 
 
-def _write(res: StudyResult, data: dict, out, date: str, workers: int | None) -> list[str]:
+def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
     tables = report_tables(res, data)
     specs = _fig_specs(res, data)
     jobs = file_jobs(res, specs)
     pdf_path = out.file("report.pdf")
     paths = [tuple(out.file(n) for n in job.names) for job in jobs]
-    run_side_by_side(lambda: _pdf(res, data, tables, specs, date, pdf_path),
-                     [functools.partial(job.render, p) for job, p in zip(jobs, paths)], workers)
+    _pdf(res, data, tables, specs, date, pdf_path)
+    for job, p in zip(jobs, paths):
+        job.render(p)
     for t in tables:
         out.write_text(t.name, t.csv())
     return ["report.pdf"] + [n for job in jobs for n in job.names] + [t.name for t in tables]

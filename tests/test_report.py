@@ -299,24 +299,14 @@ steps_kvar = [75.0, 75.0, 75.0, 75.0, 75.0, 75.0, 75.0, 75.0, 75.0, 75.0, 75.0, 
 """
 
 
-def test_twelve_step_bank_every_step_drawn_same_files_in_any_process(tmp_path):
+def test_twelve_step_bank_every_step_drawn(tmp_path):
     # the time this takes is measured in benchmarks/scan_bench.py, not asserted here
-    from resonance import report_pool
-
     case = write_case(tmp_path, TWELVE_STEPS)
     res, data = _study(case)
-    runs = {}
-    for workers in (2, 1):  # PDF here and figure files shared with a forked worker; all here
-        out = OutputDir(tmp_path / f"w{workers}")
-        runs[workers] = write_report(res, data, out, date="2001-02-03", workers=workers)
-        out.commit()
-    names = runs[2]
-    assert runs[1] == names
+    out = OutputDir(tmp_path / "w2")
+    names = write_report(res, data, out, date="2001-02-03")
+    out.commit()
     assert sum(n.startswith("fig_scan_B12_step") for n in names) == 2 * 12
-    if "fork" in __import__("multiprocessing").get_all_start_methods():
-        assert report_pool._can_fork()  # so the two runs above took different routes
-    for n in names:
-        assert (tmp_path / "w1" / n).read_bytes() == (tmp_path / "w2" / n).read_bytes(), n
     flat = _squash(_pdf_text(tmp_path / "w2" / "report.pdf"))
     for st in data["banks"][0]["steps"]:
         # each step's own plot, on a page and in its file (the title names the step and its kvar)
@@ -326,62 +316,3 @@ def test_twelve_step_bank_every_step_drawn_same_files_in_any_process(tmp_path):
         assert title in svg, title
 
 
-def _write_once(path: Path) -> None:
-    with open(path, "x", encoding="utf-8") as fh:  # "x": a job run twice fails
-        fh.write(str(os.getpid()))
-
-
-def _wait_for(path: Path) -> None:
-    for _ in range(500):
-        if path.exists():
-            return
-        time.sleep(0.01)
-
-
-FORK = pytest.mark.skipif("fork" not in __import__("multiprocessing").get_all_start_methods(),
-                          reason="no fork start method")
-
-
-@FORK
-def test_side_by_side_runs_every_job_once(tmp_path):
-    from resonance.report_pool import run_side_by_side
-
-    jobs = [lambda i=i: _write_once(tmp_path / f"job{i}") for i in range(20)]
-
-    def serial():  # returns once the worker has done a job, so both processes take some
-        _wait_for(tmp_path / "job0")
-        _write_once(tmp_path / "serial")
-
-    run_side_by_side(serial, jobs, workers=2)
-    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(["serial"] + [f"job{i}" for i in range(20)])
-    assert (tmp_path / "job0").read_text(encoding="utf-8") != str(os.getpid())  # job0: done by the worker
-
-
-@FORK
-def test_side_by_side_reports_a_failing_worker_job(tmp_path):
-    from resonance.report_pool import run_side_by_side
-
-    def first():
-        (tmp_path / "taken").touch()
-        raise ValueError("figure job failed on purpose")
-
-    def serial():  # waits until the worker has taken the failing job
-        _wait_for(tmp_path / "taken")
-
-    # only the worker can take the first job while this process waits in serial(); the others do nothing
-    with pytest.raises(RuntimeError, match="figure job failed on purpose"):
-        run_side_by_side(serial, [first] + [lambda: None] * 3, workers=2)
-
-
-@FORK
-def test_side_by_side_stops_the_worker_when_the_serial_task_fails(tmp_path):
-    import multiprocessing as mp
-
-    from resonance.report_pool import run_side_by_side
-
-    def serial():
-        raise KeyError("pdf failed")
-
-    with pytest.raises(KeyError, match="pdf failed"):
-        run_side_by_side(serial, [lambda: time.sleep(0.2)] * 4, workers=2)
-    assert mp.active_children() == []
