@@ -192,6 +192,7 @@ def _check(args) -> int:
             extra[(name, "nominal")] = steps
         data = to_dict(res, sha, extra=extra)
         out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
+        rec_text = _recommended_case(case_path, out, det)
         if not args.no_plots:
             from .plots import scan_figure  # noqa: PLC0415
             import matplotlib.pyplot as plt  # noqa: PLC0415
@@ -239,6 +240,8 @@ def _check(args) -> int:
                  f"{', '.join(f'{q:g}' for q in rec['steps_kvar'])} kvar")
         if d.get("reason") and (rec or d.get("status") == "proposed"):
             _say(f"  {d['reason']}")
+    if rec_text is not None:
+        _say(f"\nthe recommended design as a case file, ready to check: {out.path / 'recommended_case.toml'}")
     for w in data["warnings"]:
         if not args.quiet:
             _say(f"note: {w}")
@@ -246,6 +249,19 @@ def _check(args) -> int:
         _say(f"\nwrote {len(written)} files to {out.path.resolve()}: " + ", ".join(p.name for p in written))
         _say(f"\n{CAUTION}")
     return EXIT_OK if data["passed"] else EXIT_FINDING
+
+
+def _recommended_case(case_path: Path, out, det: dict) -> str | None:
+    """Stage ``recommended_case.toml`` when a bank has a recommended design; returns its text."""
+    from .recommend import RECOMMENDED_CASE, recommended_case_text  # noqa: PLC0415
+
+    designs = {name: d["recommended"]["bank_table"] for name, d in det.items()
+               if (d or {}).get("recommended")}
+    text = recommended_case_text(case_path.read_text(encoding="utf-8-sig"), case_path, out.path, designs,
+                                 tool=f"resonance {__version__}")
+    if text is not None:
+        out.write_text(RECOMMENDED_CASE, text)
+    return text
 
 
 def _workers() -> int | None:
