@@ -122,6 +122,9 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         entry.update(extra.get(("bank", b.name), {}))
         banks.append(entry)
     model = res.extras.get("model")
+    # every finding says whose it is: "bank" (the bank causes or worsens it) or "site" (already
+    # beyond the limit with the bank off, and the bank does not make it worse)
+    findings = [{**f, "cause": f.get("cause", "bank")} for f in res.findings]
     out = {
         "tool": {"name": "resonance", "version": __version__},
         "caution": CAUTION,
@@ -146,9 +149,11 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         "harmonic_orders": {"injected": list(res.orders.injected), "background": list(res.orders.background),
                             "characteristic": list(res.orders.characteristic), "pulses": list(res.orders.pulses)},
         "banks": banks,
-        "findings": [dict(f) for f in res.findings],
+        "findings": findings,
         "warnings": list(res.warnings),
-        "passed": res.passed,
+        # the bank's verdict (the exit status) and the site's own distortion apart from it
+        "passed": not any(f["cause"] == "bank" for f in findings),
+        "site_passed": not any(f["cause"] == "site" for f in findings),
     }
     out.update(extra.get("top", {}))
     return clean(out)
