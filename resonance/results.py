@@ -9,6 +9,7 @@ import math
 
 import numpy as np
 
+from .verdict import bank_findings, site_findings
 from . import __version__
 from .study import BankScan, StudyResult
 
@@ -124,7 +125,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
     model = res.extras.get("model")
     # every finding says whose it is: "bank" (the bank causes or worsens it) or "site" (already
     # beyond the limit with the bank off, and the bank does not make it worse)
-    findings = [{**f, "cause": f.get("cause", "bank")} for f in res.findings]
+    findings = [{**f, "cause": "bank" if f in bank_findings([f]) else "site"} for f in res.findings]
     out = {
         "tool": {"name": "resonance", "version": __version__},
         "caution": CAUTION,
@@ -152,8 +153,8 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         "findings": findings,
         "warnings": list(res.warnings),
         # the bank's verdict (the exit status) and the site's own distortion apart from it
-        "passed": not any(f["cause"] == "bank" for f in findings),
-        "site_passed": not any(f["cause"] == "site" for f in findings),
+        "passed": not bank_findings(findings),
+        "site_passed": not site_findings(findings),
     }
     out.update(extra.get("top", {}))
     return clean(out)
