@@ -224,7 +224,12 @@ def _check(args) -> int:
         _say(_summary(data))
         _say("")
     for f in data["findings"]:
-        _say(f"FINDING: {f['message']}")
+        if f.get("cause") == "site":
+            off = f.get("value_bank_off")
+            was = f" (bank off: {off:g})" if isinstance(off, (int, float)) else ""
+            _say(f"SITE: {f['message']}{was}; already beyond the limit without the bank, not made worse by it")
+        else:
+            _say(f"FINDING: {f['message']}")
     for b in data["banks"]:
         t = b.get("time_in_step")
         if t:
