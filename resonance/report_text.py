@@ -117,7 +117,13 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
         out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
     elif not bank.get("detuning_pct"):
         out.append(f"Detuning proposal: {NOT_EVALUATED}.")
-    finds = [f for f in data.get("findings", []) if f.get("bank") == bank["name"]]
+    mine = [f for f in data.get("findings", []) if f.get("bank") == bank["name"]]
+    finds = [f for f in mine if f.get("cause", "bank") == "bank"]
+    site = [f for f in mine if f.get("cause") == "site"]
+    if site:
+        out.append(f"Site condition: {len(site)} distortion figure(s) at the PCC are already beyond their limit "
+                   "with the bank off and the bank does not make them worse; they are the site's own emission, "
+                   "listed with their bank-off values, and do not decide the bank's verdict.")
     if finds:
         by: dict[str, dict[str, set]] = {}
         for f in finds:
