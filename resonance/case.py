@@ -16,6 +16,7 @@ from __future__ import annotations
 import difflib
 import math
 import tomllib
+import unicodedata
 from collections import deque
 from pathlib import Path
 from typing import Annotated, Any, Literal, Union
@@ -41,6 +42,9 @@ __all__ = [
     "check_case",
     "case_hints",
     "sc_kva_estimate",
+    "bus_kv_problems",
+    "STAGE_MIN_KVAR",
+    "DEMAND_MIN_KVA",
 ]
 
 #: a number given as a TOML number: ``true`` or ``"13.8"`` are refused rather
@@ -50,10 +54,37 @@ Num = Annotated[float, Strict()]
 Int = Annotated[int, Strict()]
 
 
+#: Unicode categories refused in the case's text (names, bus names, title, paths): control
+#: characters (escape sequences, bell, tab, newline), format characters (bidirectional
+#: overrides, zero-width characters) and line/paragraph separators; they would change how a
+#: terminal or a report shows the text, or make two names that look alike differ
+_REFUSED_CATEGORIES = {"Cc": "control character", "Cf": "invisible format character",
+                       "Zl": "line separator", "Zp": "paragraph separator"}
+
+
+def _refused_char(text: str) -> str:
+    """Description of the first refused character of ``text`` ("" when there is none)."""
+    for k, ch in enumerate(text):
+        kind = _REFUSED_CATEGORIES.get(unicodedata.category(ch))
+        if kind:
+            return f"{kind} U+{ord(ch):04X} at position {k + 1}"
+    return ""
+
+
 class _Strict(BaseModel):
-    """Base: unknown keys are errors, values are frozen once read."""
+    """Base: unknown keys are errors, values are frozen once read, text is printable."""
 
     model_config = ConfigDict(extra="forbid", frozen=True, str_strip_whitespace=True, allow_inf_nan=False)
+
+    @field_validator("*", mode="after")
+    @classmethod
+    def _printable(cls, v: Any, info: Any) -> Any:
+        if isinstance(v, str) and info.field_name not in ("source_file", "base_dir"):
+            bad = _refused_char(v)
+            if bad:
+                raise ValueError(f"contains a {bad}; names, bus names, the title and file names must be "
+                                 "printable text (remove escape sequences, tabs and line breaks)")
+        return v
 
 
 Name = Field(min_length=1, max_length=80)
@@ -171,14 +202,24 @@ class HarmonicSource(_Strict):
     @field_validator("spectrum")
     @classmethod
     def _spec(cls, v: Union[str, dict[int, float]]) -> Union[str, dict[int, float]]:
-        if isinstance(v, dict):
-            if not v:
-                raise ValueError("the spectrum table is empty")
-            for h, pct in v.items():
-                if h < 2:
-                    raise ValueError(f"harmonic order {h} must be an integer >= 2")
-                if not math.isfinite(pct) or pct < 0 or pct > 200:
-                    raise ValueError(f"order {h}: {pct} % must be between 0 and 200 % of the fundamental")
+        from .spectra import BUILTIN_SPECTRA  # noqa: PLC0415  (pure data; imported late to keep case light)
+
+        if isinstance(v, str):
+            if v not in BUILTIN_SPECTRA:
+                valid = ", ".join(repr(k) for k in BUILTIN_SPECTRA)
+                raise ValueError(f"unknown spectrum {_one_line(repr(v), 60)}; built-in spectra are {valid}, "
+                                 "or give a table {order = percent}")
+            return v
+        if not v:
+            raise ValueError("the spectrum table is empty")
+        bad = []  # every wrong order at once
+        for h, pct in v.items():
+            if h < 2:
+                bad.append(f"harmonic order {h} must be an integer >= 2")
+            elif not math.isfinite(pct) or pct < 0 or pct > 200:
+                bad.append(f"order {h}: {pct} % must be between 0 and 200 % of the fundamental")
+        if bad:
+            raise ValueError("; ".join(bad))
         return v
 
     @field_validator("phase_deg")
@@ -233,8 +274,10 @@ class StudySettings(_Strict):
     ieee519_edition: Literal["2014", "2022"] = "2014"
     summation: Literal["arithmetic", "iec61000-3-6", "phasor"] = "arithmetic"
     pcc_bus: str | None = None
-    max_demand_kw: Num | None = Field(default=None, gt=0.0)
-    max_demand_a: Num | None = Field(default=None, gt=0.0)
+    #: at least 1 kW (see :data:`DEMAND_MIN_KVA`), at most 10 GW
+    max_demand_kw: Num | None = Field(default=None, ge=1.0, le=1.0e7)
+    #: at most 1 MA; the lower bound depends on the PCC voltage (:func:`bus_kv_problems`)
+    max_demand_a: Num | None = Field(default=None, gt=0.0, le=1.0e6)
 
 
 class DetuningTable(_Strict):
@@ -407,6 +450,16 @@ def _rows(raw: dict, key: str) -> list[tuple[int, dict]]:
     return [(i, t) for i, t in enumerate(v) if isinstance(t, dict)] if isinstance(v, list) else []
 
 
+#: highest nominal voltage a case accepts [kV] (the schema's upper bound; the highest
+#: IEC 60038 level is 765/800 kV)
+_KV_MAX = 800.0
+
+
+def _looks_like_volts(v: Any) -> bool:
+    """A finite number above 1000 whose value in kV would be a usable voltage (so the hint is one)."""
+    return _is_num(v) and 1000.0 < v <= 1000.0 * _KV_MAX
+
+
 def _volts_hint(file: str, field: str, v: float) -> InputProblem:
     return InputProblem(file, field, f"{v:g} kV looks like a value in volts; give kV (e.g. {v / 1000:g})")
 
@@ -416,21 +469,21 @@ def _unit_hints(raw: dict, file: str) -> list[InputProblem]:
     probs = []
     sup = raw.get("supply") if isinstance(raw.get("supply"), dict) else {}
     kv = sup.get("kv")
-    if _is_num(kv) and kv > 1000:
+    if _looks_like_volts(kv):
         probs.append(_volts_hint(file, "supply.kv", kv))
     for i, t in _rows(raw, "transformer"):
         hv = t.get("hv_kv")
         for k in ("hv_kv", "lv_kv"):
             v = t.get(k)
             volts_lv = (k == "lv_kv" and _is_num(v) and _is_num(hv) and v > hv and v >= 100 and v / 1000 < hv)
-            if _is_num(v) and (v > 1000 or volts_lv):
+            if _looks_like_volts(v) or (volts_lv and v <= 1000.0 * _KV_MAX):
                 probs.append(_volts_hint(file, f"transformer[{i}].{k}", v))
         z = t.get("z_pct")
         if _is_num(z) and 0 < z <= 0.5:
             probs.append(InputProblem(file, f"transformer[{i}].z_pct", f"{z:g} looks like per unit; give percent (e.g. {z * 100:g})"))
     for i, bk in _rows(raw, "bank"):
         v = bk.get("rated_kv")
-        if _is_num(v) and v > 1000:
+        if _looks_like_volts(v):
             probs.append(_volts_hint(file, f"bank[{i}].rated_kv", v))
         p = bk.get("detuning_pct")
         if _is_num(p) and 0 < p < 0.5:
@@ -442,6 +495,21 @@ def _unit_hints(raw: dict, file: str) -> list[InputProblem]:
         if _is_num(pf) and 10 <= pf <= 100:
             probs.append(InputProblem(file, f"load[{i}].pf", f"{pf:g} looks like a percentage; give the power factor "
                                       f"as a fraction (e.g. {pf / 100:g})"))
+        elif _is_num(pf) and not 0 < pf <= 1:
+            probs.append(InputProblem(file, f"load[{i}].pf", f"{pf:g} is not a power factor; it must be in (0, 1], "
+                                      "e.g. 0.85"))
+    study = raw.get("study") if isinstance(raw.get("study"), dict) else {}
+    md = study.get("max_demand_kw")
+    if _is_num(md) and 0 < md < DEMAND_MIN_KVA:
+        probs.append(InputProblem(file, "study.max_demand_kw",
+                                  f"{md:g} kW is below the smallest maximum demand the study takes, "
+                                  f"{DEMAND_MIN_KVA:g} kW: the IEEE 519 current limits are per cent of this demand, "
+                                  "and a service with a capacitor bank draws far more (check the unit: kW, not MW)"))
+    dm = raw.get("demand") if isinstance(raw.get("demand"), dict) else {}
+    tpf = dm.get("target_pf")
+    if _is_num(tpf) and 10 <= tpf <= 100:
+        probs.append(InputProblem(file, "demand.target_pf", f"{tpf:g} looks like a percentage; give the power factor "
+                                  f"as a fraction (e.g. {tpf / 100:g})"))
     return probs
 
 
@@ -514,11 +582,21 @@ def load_case(path: str | Path) -> Case:
         raise InputError.single(file, "", f"not UTF-8 text (byte {e.start})") from None
     except OSError as e:
         raise InputError.single(file, "", f"cannot read: {e.strerror}") from None
+    # a UTF-8 byte-order mark (some Windows editors write one) is not TOML but carries no meaning:
+    # it is dropped, as the recommended case file's writer drops it when it reads the case
+    text = text.removeprefix("\ufeff")
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
         raise InputError.single(file, "", f"not valid TOML: {e}") from None
-    return parse_case(raw, file, str(p.resolve().parent))
+    except RecursionError:
+        raise InputError.single(file, "", "arrays or tables are nested too deeply to be a case file "
+                                "(a hand-written case nests tables a few levels deep)") from None
+    try:
+        return parse_case(raw, file, str(p.resolve().parent))
+    except RecursionError:
+        raise InputError.single(file, "", "values are nested too deeply to be a case file "
+                                "(a hand-written case nests tables a few levels deep)") from None
 
 
 # ---------------------------------------------------------------- physical checks
@@ -639,8 +717,11 @@ def check_case(case: Case) -> list[InputProblem]:
     file names; no cable with zero series impedance; demand given once; a
     supply (or a network file); every named bus exists (with the closest name
     as a hint) and is connected to the supply; transformer windings and cables
-    match the voltages of their buses (10 %); bank rating 0.85 to 1.6 times its
-    bus voltage (a value in volts is named as such); a bank not below the
+    match the voltages of their buses (10 %); a ``demand.bank`` that exists; the
+    voltage checks of :func:`bus_kv_problems` (bank rating 0.85 to 1.6 times its
+    bus voltage, a value in volts named as such; stages of at least
+    :data:`STAGE_MIN_KVAR` at the bus voltage; a demand current of at least
+    :data:`DEMAND_MIN_KVA`); a bank not below the
     short-circuit power at its bus (``h_r = sqrt(S_sc/Q) <= 1``); harmonic
     orders and angles within the scan and with a magnitude.
     """
@@ -655,6 +736,9 @@ def check_case(case: Case) -> list[InputProblem]:
     st = case.study
     if st.max_demand_kw is not None and st.max_demand_a is not None:
         probs.append(InputProblem(file, "study.max_demand_a", "give either max_demand_kw or max_demand_a, not both"))
+    if case.demand is not None and case.demand.bank is not None and case.demand.bank not in {b.name for b in case.bank}:
+        probs.append(InputProblem(file, "demand.bank", f"no bank named {case.demand.bank!r} (banks: "
+                                  + ", ".join(repr(b.name) for b in case.bank) + ")"))
     if case.network is None:
         if case.supply is None:
             probs.append(InputProblem(file, "supply", "required (or give [network] pandapower_json)"))
@@ -680,15 +764,7 @@ def check_case(case: Case) -> list[InputProblem]:
                     if getattr(item, key) not in known:
                         probs.append(InputProblem(file, f"{table}[{i}].{key}",
                                                   f"bus {getattr(item, key)!r} is not connected to the supply"))
-        for i, bk in enumerate(case.bank):
-            if bk.bus in kv:
-                ratio = bk.rated_kv / kv[bk.bus]
-                if 0.85 <= ratio / 1000.0 <= 1.6:
-                    probs.append(_volts_hint(file, f"bank[{i}].rated_kv", bk.rated_kv))
-                elif not (0.85 <= ratio <= 1.6):
-                    probs.append(InputProblem(file, f"bank[{i}].rated_kv",
-                                              f"{bk.rated_kv} kV does not suit bus {bk.bus!r} at {kv[bk.bus]:g} kV "
-                                              "(expected 0.85 to 1.6 times the bus voltage)"))
+        probs += bus_kv_problems(case, {b: v for b, v in kv.items()}, pcc_bus=case.pcc_bus)
         if st.pcc_bus and st.pcc_bus not in defined:
             probs.append(InputProblem(file, "study.pcc_bus", _no_bus(st.pcc_bus, defined)))
         elif st.pcc_bus and st.pcc_bus not in known:
@@ -713,6 +789,82 @@ def check_case(case: Case) -> list[InputProblem]:
             if h not in case.supply.background_pct:
                 probs.append(InputProblem(file, "supply.background_phase_deg",
                                           f"order {h} has an angle but no magnitude in background_pct"))
+    return probs
+
+
+#: smallest stage output at the bus nominal voltage that the study takes [kvar] (project choice:
+#: the detuned-bank proposals state nameplate stages in 0.1 kvar steps, and a stage must not
+#: round to nothing; real low-voltage capacitor units start at about 1 kvar)
+STAGE_MIN_KVAR = 0.05
+#: smallest maximum demand at the point of common coupling [kVA] (project choice: the IEEE 519
+#: current limits are per cent of this demand, and a service with a capacitor bank draws far
+#: more; a smaller value is a unit mistake and would make every per-cent figure meaningless)
+DEMAND_MIN_KVA = 1.0
+
+
+def bus_kv_problems(case: Case, kv: dict[str, float], pcc_bus: str = "") -> list[InputProblem]:
+    """Checks that need the nominal voltage of the banks' buses and of the PCC.
+
+    Used for table-built cases (voltages from :func:`bus_voltages_kv`) and, once the
+    network file is read, for network-file cases (voltages from the file's bus table).
+
+    Parameters
+    ----------
+    case : Case
+        Schema-valid case.
+    kv : dict
+        Bus name -> nominal line-to-line voltage [kV]; buses left out are not checked.
+    pcc_bus : str
+        Bus of the point of common coupling, for the demand check ("" for none) [unitless].
+
+    Returns
+    -------
+    list of InputProblem
+        A bank rating outside 0.85 to 1.6 times its bus voltage (a value in volts is named
+        as such); a stage delivering less than :data:`STAGE_MIN_KVAR` at the bus voltage; a
+        ``study.max_demand_a`` below :data:`DEMAND_MIN_KVA` at the PCC voltage.
+
+    Notes
+    -----
+    A stage of ``Q_R`` at rated voltage ``U_R`` delivers ``Q = Q_R (U_n / U_R)^2`` at the bus
+    nominal voltage ``U_n``; a demand current ``I`` is ``S = sqrt(3) U_n I`` at the PCC.
+
+    References
+    ----------
+    IEEE Std 18-2012, clause 5 (capacitor output proportional to the square of the voltage).
+    """
+    file = case.source_file
+    probs: list[InputProblem] = []
+    for i, bk in enumerate(case.bank):
+        u = kv.get(bk.bus)
+        if u is None or not (math.isfinite(u) and u > 0):
+            continue
+        ratio = bk.rated_kv / u
+        if 0.85 <= ratio / 1000.0 <= 1.6:
+            probs.append(_volts_hint(file, f"bank[{i}].rated_kv", bk.rated_kv))
+            continue
+        if not (0.85 <= ratio <= 1.6):
+            probs.append(InputProblem(file, f"bank[{i}].rated_kv",
+                                      f"{bk.rated_kv:g} kV does not suit bus {bk.bus!r} at {u:g} kV "
+                                      "(expected 0.85 to 1.6 times the bus voltage)"))
+            continue
+        for k, q in enumerate(bk.steps_kvar):
+            q_bus = q / ratio**2
+            if q_bus < STAGE_MIN_KVAR:
+                at = "" if ratio == 1.0 else f" ({q_bus:.3g} kvar at the bus's {u:g} kV)"
+                probs.append(InputProblem(file, f"bank[{i}].steps_kvar",
+                                          f"stage {k + 1} is {q:g} kvar{at}; the smallest stage the study takes is "
+                                          f"{STAGE_MIN_KVAR:g} kvar at the bus voltage (stages are kvar, not Mvar)"))
+                break
+    st = case.study
+    u_pcc = kv.get(pcc_bus)
+    if st.max_demand_a is not None and u_pcc is not None and math.isfinite(u_pcc) and u_pcc > 0:
+        s_kva = math.sqrt(3.0) * u_pcc * st.max_demand_a
+        if s_kva < DEMAND_MIN_KVA:
+            probs.append(InputProblem(file, "study.max_demand_a",
+                                      f"{st.max_demand_a:g} A at {u_pcc:g} kV is a demand of {s_kva:.3g} kVA; the "
+                                      f"maximum demand must be at least {DEMAND_MIN_KVA:g} kVA (the IEEE 519 current "
+                                      "limits are per cent of it; check the unit: A, not kA)"))
     return probs
 
 
@@ -829,6 +981,13 @@ _STAGE_MIN_KVAR = 1.0
 _RISE_HINT = 0.10
 
 
+def _mva_hint(kva: float, small_kva: float) -> str:
+    """Hint for a rating below ``small_kva``: in MVA when 1000 times it is a rating, else just tiny."""
+    if kva * 1000.0 >= small_kva:
+        return f"{kva:g} kVA looks like a value in MVA (give kVA, e.g. {kva * 1000:g})"
+    return f"{kva:g} kVA is implausibly small (check the value and its unit, kVA)"
+
+
 def case_hints(case: Case) -> tuple[InputProblem, ...]:
     """Non-fatal warnings about a valid case that probably holds a mistake.
 
@@ -874,12 +1033,10 @@ def case_hints(case: Case) -> tuple[InputProblem, ...]:
                                     f"(give kvar, e.g. {q0 * 1000:g})"))
     for i, t in enumerate(case.transformer):
         if t.kva < 10.0:
-            out.append(InputProblem(file, f"transformer[{i}].kva", f"{t.kva:g} kVA looks like a value in MVA "
-                                    f"(give kVA, e.g. {t.kva * 1000:g})"))
+            out.append(InputProblem(file, f"transformer[{i}].kva", _mva_hint(t.kva, 10.0)))
     for i, hs in enumerate(case.harmonic_source):
         if hs.kva < 1.0:
-            out.append(InputProblem(file, f"harmonic_source[{i}].kva", f"{hs.kva:g} kVA looks like a value in MVA "
-                                    f"(give kVA, e.g. {hs.kva * 1000:g})"))
+            out.append(InputProblem(file, f"harmonic_source[{i}].kva", _mva_hint(hs.kva, 1.0)))
     from .spectra import BUILTIN_SPECTRA  # noqa: PLC0415  (pure data; imported late to keep case light)
 
     for i, hs in enumerate(case.harmonic_source):

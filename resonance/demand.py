@@ -11,9 +11,38 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, InputProblem
 
 __all__ = ["time_in_step"]
+
+
+def _in_case_terms(err: InputError, case_file: str, given: str, path: Path) -> InputError:
+    """The CSV's problems restated as problems of the case field that names the CSV.
+
+    Parameters
+    ----------
+    err : InputError
+        Problems found in the interval CSV (file, line and column).
+    case_file : str
+        The case file [unitless].
+    given : str
+        ``demand.intervals_csv`` as written in the case [unitless].
+    path : Path
+        Where the CSV was looked for (relative paths resolve against the case's folder).
+
+    Returns
+    -------
+    InputError
+        One problem per CSV problem, each naming the case file and ``demand.intervals_csv``,
+        then the CSV (as given, and where it was looked for when that differs), its line or
+        column and the problem.
+    """
+    where = given if str(path) == given else f"{given} ({path})"
+    probs = []
+    for p in err.problems:
+        inner = f"{p.field}: {p.problem}" if p.field else p.problem
+        probs.append(InputProblem(case_file, "demand.intervals_csv", f"{where}: {inner}"))
+    return InputError(probs)
 
 
 def time_in_step(case, res) -> dict:
@@ -52,7 +81,10 @@ def time_in_step(case, res) -> dict:
     path = Path(dm.intervals_csv)
     if not path.is_absolute():
         path = Path(case.base_dir) / path
-    data = read_intervals(path)
+    try:
+        data = read_intervals(path)
+    except InputError as e:
+        raise _in_case_terms(e, case.source_file, str(dm.intervals_csv), path) from None
     # net kvar each stage adds at the bus (nominal voltage)
     cum = np.array([s.kvar_nominal for s in sc.steps])
     stages = np.diff(np.concatenate([[0.0], cum]))

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .case import Case, bus_voltages_kv
+from .case import Case, bus_kv_problems, bus_voltages_kv
 from .errors import InputError, InputProblem, ModelError
 from .network import BRANCH_LINE, BRANCH_OTHER, BRANCH_TRAFO, NetworkArrays
 
@@ -203,6 +203,64 @@ def _bus_label(net, idx: int) -> str:
     return str(name) if isinstance(name, str) and name.strip() else f"#{idx}"
 
 
+#: element tables of a pandapower net that the model reads (directly or through pandapower's
+#: converter); each must be a table (DataFrame) when the file has it
+_NET_TABLES = ("bus", "ext_grid", "load", "sgen", "gen", "motor", "storage", "shunt", "switch", "line", "trafo",
+               "trafo3w", "impedance", "ward", "xward", "dcline", "svc", "ssc", "tcsc", "asymmetric_load",
+               "asymmetric_sgen")
+#: nominal bus voltages a network file may hold [kV] (the case file's range for supply.kv)
+_VN_KV_RANGE = (0.05, 800.0)
+
+
+def _check_net_tables(net, label: str) -> None:
+    """The element tables the model reads are tables, and every bus has a usable nominal voltage.
+
+    Parameters
+    ----------
+    net : pandapowerNet
+        Network as read from the file.
+    label : str
+        How the network file is named in messages [unitless].
+
+    Raises
+    ------
+    InputError
+        Every element entry that is not a table (named by its key) and every bus whose
+        ``vn_kv`` is missing, not finite or outside 0.05 to 800 kV (named by bus name and index).
+    """
+    import pandas as pd  # noqa: PLC0415  (pandapower's own dependency)
+
+    probs: list[InputProblem] = []
+    for key in _NET_TABLES:
+        if key in net and not isinstance(net[key], pd.DataFrame):
+            probs.append(InputProblem(label, key, f"the {key!r} entry is a {type(net[key]).__name__}, not a table; "
+                                      "save the network with pandapower.to_json"))
+    for key in ("bus", "ext_grid"):
+        if key not in net:
+            probs.append(InputProblem(label, key, f"the network has no {key!r} table"))
+    if probs:
+        raise InputError(probs)
+    if "vn_kv" not in net.bus.columns:
+        raise InputError.single(label, "bus.vn_kv", "the bus table has no vn_kv column (nominal voltage in kV)")
+    lo, hi = _VN_KV_RANGE
+    for i, v in zip(net.bus.index, net.bus["vn_kv"]):
+        try:
+            x = float(v)
+        except (TypeError, ValueError):
+            x = float("nan")
+        if not (math.isfinite(x) and lo < x <= hi):
+            try:
+                where = f"bus {_bus_label(net, int(i))!r}"
+            except (TypeError, ValueError):
+                where = f"bus index {i!r}"
+            probs.append(InputProblem(label, "bus.vn_kv", f"{where} has vn_kv = {v!r}; every bus needs its nominal "
+                                      f"voltage in kV, above {lo:g} and at most {hi:g}"))
+            if len(probs) >= 20:
+                break
+    if probs:
+        raise InputError(probs)
+
+
 def _from_network_file(case: Case):
     from .safeload import read_pandapower_json  # noqa: PLC0415
 
@@ -212,7 +270,9 @@ def _from_network_file(case: Case):
     if not path.is_absolute():
         path = Path(case.base_dir) / path
     # a new net on every read (nothing shared), so it is changed here without a copy
-    net = read_pandapower_json(path, file_label=f"{file}: network.pandapower_json -> {case.network.pandapower_json}")
+    label = f"{file}: network.pandapower_json -> {case.network.pandapower_json}"
+    net = read_pandapower_json(path, file_label=label)
+    _check_net_tables(net, label)
     probs: list[InputProblem] = []
     # bus names: the pandapower name when unique, else '#<index>'; both are accepted
     labels = [_bus_label(net, int(i)) for i in net.bus.index]
@@ -263,6 +323,13 @@ def _from_network_file(case: Case):
     if case.transformer or case.cable:
         probs.append(InputProblem(file, "network", "a case with a network file takes its transformers and cables "
                                   "from the file; remove [[transformer]] and [[cable]]"))
+    if probs:
+        raise InputError(probs)
+    # the voltage checks a table-built case gets at validation, now that the bus voltages are known
+    pcc = case.study.pcc_bus or supply_bus
+    kv = {name: float(net.bus.at[bus_pp[name], "vn_kv"])
+          for name in {b.bus for b in case.bank} | {pcc} if name in bus_pp}
+    probs = bus_kv_problems(case, kv, pcc_bus=pcc)
     if probs:
         raise InputError(probs)
     pp = _pp()

@@ -88,6 +88,9 @@ _NET_TAG = ("pandapower.auxiliary", "pandapowerNet")
 _FRAME_TAG = ("pandas.core.frame", "DataFrame")
 _SERIES_TAG = ("pandas.core.series", "Series")
 _TAG_KEYS = ("_module", "_class")
+#: element tables the model reads; each must be a DataFrame tag when present
+_ELEMENT_TABLES = frozenset({"bus", "ext_grid", "load", "sgen", "gen", "line", "trafo", "trafo3w", "shunt",
+                             "impedance", "switch", "ward", "xward", "motor", "storage", "asymmetric_load"})
 
 # keys pandapower's json_dataframe / json_series write beside the tag
 _FRAME_KEYS = frozenset({
@@ -468,6 +471,12 @@ def check_pandapower_json_text(text: str, *, file: str) -> None:
         path = _key("$._object", key)
         if key.startswith("_"):
             probs.add(path, "keys starting with '_' are not written by pandapower.to_json; refused")
+            continue
+        if key in _ELEMENT_TABLES and not (isinstance(value, dict) and
+                                           (value.get("_module"), value.get("_class")) == _FRAME_TAG):
+            what = {list: "a list", dict: "an object", str: "a string"}.get(type(value), type(value).__name__)
+            probs.add(path, f"the {key!r} entry is {what}, not a table: pandapower.to_json writes every "
+                            "element table as a DataFrame tag")
             continue
         if isinstance(value, dict) and any(t in value for t in _TAG_KEYS):
             tag = (value.get("_module"), value.get("_class"))

@@ -106,7 +106,7 @@ def _check_args(args) -> None:
         raise InputError.single(_CMD, "--target-pf", f"{args.target_pf:g} must be in (0, 1]")
     for opt, v in (("--rated-kv", args.rated_kv), ("--bus-kv", args.bus_kv)):
         if v is not None and not (np.isfinite(v) and 0.05 < v <= 800.0):
-            hint = f" (give kV, e.g. {v / 1000:g})" if v > 800 else ""
+            hint = f" (give kV, e.g. {v / 1000:g})" if np.isfinite(v) and 800 < v <= 800_000 else ""
             raise InputError.single(_CMD, opt, f"{v:g} kV must be between 0.05 and 800 kV{hint}")
     if args.max_stages < 1:
         raise InputError.single(_CMD, "--max-stages", f"{args.max_stages} must be >= 1")

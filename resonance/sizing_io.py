@@ -240,7 +240,7 @@ def read_intervals(path) -> IntervalData:
             if y is None:
                 probs.add(line, "pf", f"{raw_pf!r} is not a finite number" if raw_pf else "is empty")
             elif not (0.0 < y <= 1.0):
-                hint = f"; {y:g} looks like a percentage, give {y / 100:g}" if 1.0 < y <= 100.0 else ""
+                hint = f"; {y:g} looks like a percentage, give {y / 100:g}" if 10.0 <= y <= 100.0 else ""
                 probs.add(line, "pf", f"{y:g} is outside (0, 1]{hint}")
             elif not np.isnan(p[i]):
                 q[i] = p[i] * math.sqrt(1.0 - y * y) / y

@@ -355,7 +355,7 @@ def test_rearrangement_found_and_confirmed():
 
 def test_bank_off_pcc_reference_is_the_limit_of_a_tiny_bank():
     raw = tomllib.loads(DEMO.read_text(encoding="utf-8"))
-    raw["bank"][0]["steps_kvar"] = [0.001]
+    raw["bank"][0]["steps_kvar"] = [0.05]  # the smallest stage the case takes (case.STAGE_MIN_KVAR)
     case, model, res = _study(raw)
     for scen in ("nominal", "weak"):
         asm = res.assessment_for("PFC-1", scen)

@@ -41,7 +41,7 @@ x_r = 5.0
 name = "B1"
 bus = "LV"
 rated_kv = 0.48
-steps_kvar = [0.01]
+steps_kvar = [0.05]
 
 [study]
 load_model = "none"
@@ -70,7 +70,7 @@ bus = "LV"
 kva = 200.0
 spectrum = {5 = 20.0, 7 = 14.0, 11 = 9.0}
 """
-    text = STIFF.format(background="", source=src).replace("steps_kvar = [0.01]", "steps_kvar = [150.0, 150.0]")
+    text = STIFF.format(background="", source=src).replace("steps_kvar = [0.05]", "steps_kvar = [150.0, 150.0]")
     text = text.replace("x_r = 5.0", "x_r = 200.0").replace("x_r = 10.0", "x_r = 200.0")
     res = run_study(load_case(write_case(tmp_path, text)))
     a = res.assessment_for("B1")
@@ -94,7 +94,7 @@ def test_background_drives_current_into_bank(tmp_path):
     # derived: a background voltage E_h behind the supply impedance with only the bank at the
     # bus gives V_h = E_h X_C/h / |X_C/h - h X_s| (voltage divider, no damping).
     text = STIFF.format(background="background_pct = {5 = 2.0}", source="")
-    text = text.replace("sc_mva = 1.0e6", "sc_mva = 50.0").replace("steps_kvar = [0.01]", "steps_kvar = [200.0]")
+    text = text.replace("sc_mva = 1.0e6", "sc_mva = 50.0").replace("steps_kvar = [0.05]", "steps_kvar = [200.0]")
     text = text.replace("x_r = 5.0", "x_r = 200.0").replace("x_r = 10.0", "x_r = 200.0")
     res = run_study(load_case(write_case(tmp_path, text)))
     f = res.assessment_for("B1").steps[0].fields

@@ -603,3 +603,12 @@ def test_nesting_and_size_are_bounded(tmp_path, monkeypatch):
     with pytest.raises(InputError) as ei:
         read_pandapower_json(_write(tmp_path, _doc("case9"), "n3.json"))
     assert any(p.field == "$._object.bus" and "rows" in p.problem for p in ei.value.problems)
+
+
+def test_an_element_table_that_is_a_plain_list_is_refused(tmp_path):
+    doc = _doc("case9")
+    doc["_object"]["bus"] = [[1, 2, 3]]
+    with pytest.raises(InputError) as ei:
+        read_pandapower_json(_write(tmp_path, doc))
+    p = ei.value.problems[0]
+    assert p.field == "$._object.bus" and "not a table" in p.problem
