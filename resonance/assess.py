@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .verdict import distortion_cause
 from .case import Case
 from .duty import capacitor_duty, duty_limits
 from .limits import ieee519_current_limits, ieee519_voltage_limits
@@ -210,6 +211,12 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
     clim = ieee519_current_limits(ratio if math.isfinite(ratio) else 1e9, h if h.size else np.array([5.0]),
                                   st.ieee519_edition, file=case.source_file)
     i1_bank = vm_steps * b / (1.0 - bank.p)  # [pu]
+    # the same quantities with the bank (all of its steps) out of service: row 0 of the penetration
+    vp_off = v_pcc[0]
+    thd_p_off = 100.0 * float(np.sqrt(np.sum(vp_off**2)))
+    i_off_a = pen.i_supply_local_pu[0] * i_base_pcc if h.size else np.zeros(0)
+    ind_off_pct = 100.0 * i_off_a / i_l if (h.size and i_l > 0) else np.zeros(h.size)
+    tdd_off = 100.0 * float(np.sqrt(np.sum(i_off_a**2))) / i_l if i_l > 0 else 0.0
     steps = []
     for s in range(n):
         f: dict = {}
@@ -258,39 +265,51 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
         })
         finds = []
         tag = f"bank {bank.name} step {s + 1} ({scenario} supply)"
-        if not duty.ok[s]:
-            g = str(duty.governing[s])
-            val = {"v_rms": duty.v_rms_pct, "v_peak": duty.v_peak_pct, "i_rms": duty.i_rms_pct, "kvar": duty.kvar_pct}[g][s]
-            limv = {"v_rms": lim.v_rms, "v_peak": lim.v_peak, "i_rms": lim.i_rms, "kvar": lim.q}[g] * 100
-            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": f"duty_{g}",
-                          "value": round(float(val), 2), "limit": round(float(limv), 2),
-                          "message": f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
-                                     f"{lim.name} limit {limv:.0f} %"})
+        for g, vals, limv in (("v_rms", duty.v_rms_pct, lim.v_rms), ("v_peak", duty.v_peak_pct, lim.v_peak),
+                              ("i_rms", duty.i_rms_pct, lim.i_rms), ("kvar", duty.kvar_pct, lim.q)):
+            val, limp = float(vals[s]), float(limv) * 100.0
+            if val > limp:  # each quantity beyond its limit is a finding of its own
+                finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": f"duty_{g}",
+                              "value": round(val, 2), "limit": round(limp, 2), "unit": "% of rating",
+                              "source": lim.citation, "cause": "bank",
+                              "message": f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
+                                         f"{lim.name} limit {limp:.0f} %"})
         if thd_p > vlim.thd_pct:
             finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_thd_v",
-                          "value": round(thd_p, 3), "limit": vlim.thd_pct,
+                          "value": round(thd_p, 3), "limit": vlim.thd_pct, "unit": "% of nominal voltage",
+                          "source": vlim.source, "value_bank_off": round(thd_p_off, 3),
+                          "cause": distortion_cause(thd_p, thd_p_off, vlim.thd_pct),
                           "message": f"{tag}: voltage THD at the PCC {thd_p:.2f} % exceeds the IEEE 519 limit "
                                      f"{vlim.thd_pct:g} %"})
         if worst_ind > vlim.individual_pct:
-            hw = int(h[int(np.argmax(vp))])
+            jw = int(np.argmax(vp))
+            hw = int(h[jw])
+            off_w = 100.0 * float(vp_off[jw])
             finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_v_individual",
-                          "value": round(worst_ind, 3), "limit": vlim.individual_pct,
+                          "value": round(worst_ind, 3), "limit": vlim.individual_pct, "order": hw,
+                          "unit": "% of nominal voltage", "source": vlim.source, "value_bank_off": round(off_w, 3),
+                          "cause": distortion_cause(worst_ind, off_w, vlim.individual_pct),
                           "message": f"{tag}: harmonic {hw} voltage at the PCC {worst_ind:.2f} % exceeds the "
                                      f"IEEE 519 individual limit {vlim.individual_pct:g} %"})
         if tdd > clim.tdd_pct:
             finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_tdd",
-                          "value": round(tdd, 3), "limit": clim.tdd_pct,
+                          "value": round(tdd, 3), "limit": clim.tdd_pct, "unit": "% of I_L", "source": clim.source,
+                          "value_bank_off": round(tdd_off, 3), "cause": distortion_cause(tdd, tdd_off, clim.tdd_pct),
                           "message": f"{tag}: TDD at the PCC {tdd:.2f} % exceeds the IEEE 519 limit {clim.tdd_pct:g} % "
                                      f"(Isc/IL = {ratio:.0f})"})
         if worst_i < 0:
             j = int(np.argmin(np.where(clim.limited, clim.individual_pct - ind_pct, np.inf)))
             finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_i_individual",
                           "value": round(float(ind_pct[j]), 3), "limit": float(clim.individual_pct[j]),
+                          "order": int(h[j]), "unit": "% of I_L", "source": clim.source,
+                          "value_bank_off": round(float(ind_off_pct[j]), 3),
+                          "cause": distortion_cause(float(ind_pct[j]), float(ind_off_pct[j]),
+                                                    float(clim.individual_pct[j])),
                           "message": f"{tag}: harmonic {int(h[j])} current at the PCC {ind_pct[j]:.2f} % of I_L "
                                      f"exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"})
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
     off = {"thd_v_pct": round(100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))), 4),
-           "thd_v_pcc_pct": round(100.0 * float(np.sqrt(np.sum(v_pcc[0] ** 2))), 4)}
+           "thd_v_pcc_pct": round(thd_p_off, 4), "tdd_pct": round(tdd_off, 4)}
     info = {"pcc_v_limits": {"individual_pct": vlim.individual_pct, "thd_pct": vlim.thd_pct, "source": vlim.source},
             "pcc_i_limits": {"row": clim.row, "tdd_pct": clim.tdd_pct, "source": clim.source,
                              "isc_over_il": round(ratio, 2) if math.isfinite(ratio) else None,

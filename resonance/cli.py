@@ -266,6 +266,9 @@ def _recommended_case(case_path: Path, out, det: dict) -> str | None:
                                  tool=f"resonance {__version__}")
     if text is not None:
         out.write_text(RECOMMENDED_CASE, text)
+    elif designs:
+        _say(f"warning: {case_path}: the recommended design could not be written into a copy of this case "
+             f"file (a layout the editor does not follow); enter it by hand from results.json", sys.stderr)
     return text
 
 

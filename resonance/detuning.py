@@ -548,59 +548,32 @@ def rearrange_stages(allowed: np.ndarray, n_max: int) -> tuple[int, ...] | None:
 
 # ----------------------------------------------------------------------------- evaluation of a study result
 
-_ATOL_PCT = 1e-3  # assess rounds its per-step figures to 1e-4 %
-
-
-def _pcc_off(case, model, asm, scenario: str, pcc_name: str) -> dict:
-    """Bank-off PCC figures of one scenario (from the penetration's step 0)."""
-    from .assess import demand_current_a  # noqa: PLC0415
-
-    arr = model.arrays if scenario == "nominal" else model.arrays_weak
-    pcc = model.model_bus[pcc_name]
-    pen = asm.pen
-    if pen.h.size == 0:
-        return {"v_pct": np.zeros(0), "thd_v_pct": 0.0, "i_pct": np.zeros(0), "tdd_pct": 0.0}
-    kp = int(np.nonzero(np.asarray(pen.rows) == pcc)[0][0])
-    v = pen.v_bus_pu[0, :, kp] * 100.0
-    v_kv = float(arr.bus_kv[pcc])
-    i_base = arr.base_mva * 1000.0 / (math.sqrt(3.0) * v_kv)
-    i_l, _ = demand_current_a(case, v_kv, arr)
-    i_pct = pen.i_supply_local_pu[0] * i_base / i_l * 100.0 if i_l > 0 else np.zeros(pen.h.size)
-    return {"v_pct": v, "thd_v_pct": float(np.sqrt(np.sum(v**2))), "i_pct": i_pct,
-            "tdd_pct": float(np.sqrt(np.sum(i_pct**2)))}
-
-
 def _bank_status(result, case, model, bank_name: str) -> dict:
-    """Step-by-step pass/fail of one bank in every scenario of a study result.
+    """Step-by-step figures of one bank in every scenario, and its verdict.
 
-    A step passes when its resonance is clear of the orders of concern, the
-    capacitor duty is within limits, and no IEEE 519 PCC figure that exceeds its
-    limit is worse than with the bank off (a PCC excess that exists with the
-    bank off is not the bank's doing and does not block it).
+    The verdict is the one assessment's (:func:`resonance.verdict.bank_findings`): the bank
+    passes when no finding in any step or scenario is its own (resonance, capacitor duty, the
+    tuning of a detuned bank, and any distortion figure that the bank causes or makes worse;
+    the site's own distortion, already beyond its limit with the bank off, does not block it).
+    No second set of rules lives here.
     """
-    out = {"scenarios": {}, "resonance_ok": True, "duty_ok": True, "pcc_ok": True, "problems": []}
+    from .verdict import bank_findings  # noqa: PLC0415
+
+    own = bank_findings(result.findings, bank_name)
+    out = {"scenarios": {}, "problems": [f["message"] for f in own],
+           "resonance_ok": not any(f["check"] == "resonance" for f in own),
+           "duty_ok": not any(str(f["check"]).startswith("duty_") for f in own),
+           "pcc_ok": not any(str(f["check"]).startswith("pcc_") for f in own),
+           "tuning_ok": not any(f["check"] == "detuning_tuning" for f in own)}
     for sc in result.scans:
         if sc.bank.name != bank_name:
             continue
         asm = result.assessment_for(bank_name, sc.scenario)
-        off = _pcc_off(case, model, asm, sc.scenario, result.pcc_bus)
-        vlim = asm.info["pcc_v_limits"]
-        tdd_lim = asm.info["pcc_i_limits"]["tdd_pct"]
         rows = []
         for s, sd in zip(sc.steps, asm.steps):
             f = sd.fields
-            worse = []
-            if f["thd_v_pcc_pct"] > vlim["thd_pct"] and f["thd_v_pcc_pct"] > off["thd_v_pct"] + _ATOL_PCT:
-                worse.append("PCC voltage THD")
-            if f["tdd_pct"] > tdd_lim and f["tdd_pct"] > off["tdd_pct"] + _ATOL_PCT:
-                worse.append("PCC TDD")
-            for j, hh in enumerate(f["harmonics"]):
-                if hh["v_pcc_pct"] > vlim["individual_pct"] and hh["v_pcc_pct"] > off["v_pct"][j] + _ATOL_PCT:
-                    worse.append(f"PCC h{hh['h']} voltage")
-                lim = hh["i_limit_pct_of_il"]
-                if lim is not None and hh["i_supply_pct_of_il"] > lim and \
-                        hh["i_supply_pct_of_il"] > off["i_pct"][j] + _ATOL_PCT:
-                    worse.append(f"PCC h{hh['h']} current")
+            worse = [x["check"] for x in own if x["scenario"] == sc.scenario and x["step"] == s.step
+                     and str(x["check"]).startswith("pcc_")]
             m = f["duty_margins_pct"]
             rows.append({
                 "step": s.step, "h_scan": None if s.h_scan is None else round(s.h_scan, 3),
@@ -613,25 +586,12 @@ def _bank_status(result, case, model, bank_name: str) -> dict:
                 "bank_i_rms_a": f["bank_i_rms_a"], "i_bank_h_a": {str(hh["h"]): hh["i_bank_a"] for hh in f["harmonics"]},
                 "tdd_pct": f["tdd_pct"], "thd_v_pcc_pct": f["thd_v_pcc_pct"], "pcc_worse_than_off": worse,
             })
-            tag = f"step {s.step} ({sc.scenario})"
-            if not s.resonance_ok:
-                out["resonance_ok"] = False
-                out["problems"].append(f"{tag}: resonance h = {s.h_scan:.2f} within the screening margin of "
-                                       f"order {s.nearest_order}")
-            if not f["duty_ok"]:
-                out["duty_ok"] = False
-                out["problems"].append(f"{tag}: capacitor {f['duty_governing'].replace('_', ' ')} over its limit")
-            if worse:
-                out["pcc_ok"] = False
-                out["problems"].append(f"{tag}: {', '.join(worse)} over the IEEE 519 limit and worse than bank off")
         out["scenarios"][sc.scenario] = {"sc_mva": round(sc.sc_mva, 4), "steps": rows,
-                                         "pcc_off": {"thd_v_pct": round(off["thd_v_pct"], 4),
-                                                     "tdd_pct": round(off["tdd_pct"], 4)}}
-    out["passes"] = out["resonance_ok"] and out["duty_ok"] and out["pcc_ok"]
+                                         "pcc_off": {"thd_v_pct": asm.bank_off["thd_v_pcc_pct"],
+                                                     "tdd_pct": asm.bank_off["tdd_pct"]}}
+    out["passes"] = not own
     return out
 
-
-# ----------------------------------------------------------------------------- the proposal
 
 def _r(x, nd: int = 4):
     if x is None:

@@ -24,8 +24,8 @@ _BANK_KEYS = ("rated_kv", "steps_kvar", "detuning_pct", "reactor_q")
 #: keys holding paths relative to the case's folder, by table
 _PATH_KEYS = {"network": "pandapower_json", "demand": "intervals_csv"}
 
-_HEADER_RE = re.compile(r"^\s*(\[\[?)\s*([A-Za-z0-9_.\-]+)\s*\]\]?\s*(#.*)?$")
-_KEY_RE = re.compile(r"^\s*([A-Za-z0-9_\-]+)\s*=")
+_HEADER_RE = re.compile(r"^\s*(\[\[?)\s*[\"']?([A-Za-z0-9_.\-]+)[\"']?\s*\]\]?\s*(#.*)?$")
+_KEY_RE = re.compile(r"^\s*[\"']?([A-Za-z0-9_\-]+)[\"']?\s*=")
 
 
 def _toml_value(v) -> str:
@@ -153,7 +153,7 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
         if name == "bank":
             bank_name = None
             for ln in chunk:
-                m = re.match(r'^\s*name\s*=\s*("(?:[^"\\]|\\.)*"|\'[^\']*\')', ln)
+                m = re.match(r'^\s*["\']?name["\']?\s*=\s*("(?:[^"\\]|\\.)*"|\'[^\']*\')', ln)
                 if m:
                     lit = m.group(1)
                     bank_name = json.loads(lit) if lit.startswith('"') else lit[1:-1]
@@ -166,7 +166,7 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
             key = _PATH_KEYS[name]
             fixed = []
             for ln in chunk:
-                m = re.match(rf'^(\s*{key}\s*=\s*)("(?:[^"\\]|\\.)*")(.*)$', ln)
+                m = re.match(rf'^(\s*["\']?{key}["\']?\s*=\s*)("(?:[^"\\]|\\.)*")(.*)$', ln)
                 if m:
                     p = Path(json.loads(m.group(2)))
                     if not p.is_absolute():
@@ -181,6 +181,9 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
         new.extend(chunk)
     if not replaced:
         return None
+    text = "\n".join(new) + "\n"
+    if not _holds(text, designs):  # a layout the line editor does not follow: say so, write nothing
+        return None
     desc = "; ".join(
         f"bank {n}: detuned p = {designs[n]['detuning_pct']:g} %, capacitors {designs[n]['rated_kv']:g} kV, "
         f"stages {', '.join(f'{q:g}' for q in designs[n]['steps_kvar'])} kvar" for n in replaced)
@@ -189,4 +192,25 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
               "# Every other line is the original case; paths of other input files point back to it.",
               "# A screening aid: to be reviewed by a qualified engineer before any equipment is specified.",
               ""]
-    return "\n".join(header + new) + "\n"
+    return "\n".join(header) + "\n" + text
+
+
+def _holds(text: str, designs: dict) -> bool:
+    """True when ``text`` parses and every bank of ``designs`` has its recommended keys."""
+    try:
+        import tomllib  # noqa: PLC0415
+    except ModuleNotFoundError:  # pragma: no cover - Python 3.10
+        import tomli as tomllib  # noqa: PLC0415
+    try:
+        doc = tomllib.loads(text)
+    except Exception:  # noqa: BLE001 - any parse failure means the edit did not hold
+        return False
+    banks = {b.get("name"): b for b in doc.get("bank", []) if isinstance(b, dict)}
+    for name, d in designs.items():
+        b = banks.get(name)
+        if b is None:
+            return False
+        for k in _BANK_KEYS:
+            if d.get(k) is not None and b.get(k) != d[k]:
+                return False
+    return True

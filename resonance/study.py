@@ -6,7 +6,6 @@ Pure apart from the pandapower calls made through :mod:`resonance.netmodel`
 
 from __future__ import annotations
 
-import math
 import weakref
 from dataclasses import dataclass, field
 
@@ -187,8 +186,10 @@ class StudyResult:
 
     @property
     def passed(self) -> bool:
-        """True when no finding exceeds a limit."""
-        return not self.findings
+        """True when no finding is the bank's (:func:`resonance.verdict.bank_findings`)."""
+        from .verdict import bank_findings  # noqa: PLC0415
+
+        return not bank_findings(self.findings)
 
     def scans_for(self, bank: str, scenario: str = "nominal") -> BankScan | None:
         """The scan of one bank in one scenario (None if absent)."""
@@ -514,7 +515,8 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
             if not s.resonance_ok:
                 findings.append({
                     "bank": sc.bank.name, "step": s.step, "scenario": sc.scenario, "check": "resonance",
-                    "value": s.h_scan, "limit": st.margin_pct,
+                    "value": s.h_scan, "limit": st.margin_pct, "unit": "harmonic order (limit: % margin)",
+                    "source": "screening margin of the case ([study] margin_pct; common practice)", "cause": "bank",
                     "message": (f"bank {sc.bank.name} step {s.step} ({sc.scenario} supply): resonance at "
                                 f"h = {s.h_scan:.2f} is {abs(s.margin_pct):.1f} % from the {s.nearest_kind} "
                                 f"order {s.nearest_order} (screening margin {st.margin_pct:g} %)"),
@@ -528,7 +530,6 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
                 findings.extend(sd.findings)
         if sc.steps and sc.steps[0].h_scan is None:
             warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
-    _ = math
     res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
                        extras={"model": model, "sources": sources}, assessments=tuple(assessments),
