@@ -736,6 +736,97 @@ def _reactor_figures(status: dict, q_np: np.ndarray, ratings, p: float, u_kv: fl
     return out
 
 
+def tuning_reasons(n: float, h_low, st: "DetuningSettings") -> list[str]:
+    """Why a series tuning order is unsafe against the lowest significant harmonic (empty: it is safe).
+
+    One rule for the proposals' pre-screen and for a detuned bank the user gives.
+
+    Parameters
+    ----------
+    n : float
+        Nominal tuning order ``1/sqrt(p)`` [unitless].
+    h_low : int or None
+        Lowest significant harmonic order present (None: nothing to tune below) [unitless].
+    st : DetuningSettings
+        ``order_margin_pct`` (nominal tuning at least this far below ``h_low``) [%],
+        ``band_margin_pct`` (the tolerance band's top at least this far below) [%],
+        ``cap_tolerance_pct``, ``reactor_tolerance_pct`` [%].
+
+    Returns
+    -------
+    list of str
+        Plain-language reasons [unitless].
+
+    Notes
+    -----
+    Fails when ``n > h_low (1 - order_margin/100)`` or, tuned below that, when the top of
+    :func:`tuning_band` exceeds ``h_low (1 - band_margin/100)``.
+
+    References
+    ----------
+    IEEE Std 1531-2020 (tuning below the lowest harmonic, tolerances); the margins are
+    common practice (REFERENCES.md "Detuned (series reactor) banks").
+    """
+    why: list[str] = []
+    if h_low is None:
+        return why
+    n_hi = tuning_band(n, st.cap_tolerance_pct, st.reactor_tolerance_pct)[1]
+    lim = h_low * (1.0 - st.order_margin_pct / 100.0)
+    if n > lim + 1e-9:
+        why.append(f"tuning order {n:.2f} is not {st.order_margin_pct:g} % below the lowest significant "
+                   f"harmonic {h_low} (at most {lim:.2f})")
+    lim_b = h_low * (1.0 - st.band_margin_pct / 100.0)
+    if n <= lim + 1e-9 and n_hi > lim_b:
+        why.append(f"with tolerances the tuning reaches {n_hi:.2f}, within {st.band_margin_pct:g} % of the "
+                   f"significant harmonic {h_low}")
+    return why
+
+
+def detuned_bank_findings(case, sources, characteristic, scans) -> list[dict]:
+    """Findings for a detuned bank given in the case whose tuning is unsafe (same rule as a proposal).
+
+    Parameters
+    ----------
+    case : Case
+        Validated case (``[detuning]`` settings, background voltages).
+    sources : list of (name, {order: pct}, pulse)
+        Resolved source spectra [%].
+    characteristic : sequence of int
+        Characteristic orders of the study (fallback for the significant orders) [unitless].
+    scans : sequence of BankScan
+        The study's scans (the nominal one of each bank is used).
+
+    Returns
+    -------
+    list of dict
+        One ``detuning_tuning`` finding per step of each failing bank (cause ``"bank"``).
+
+    References
+    ----------
+    See :func:`tuning_reasons`.
+    """
+    st = detuning_settings(case)
+    background = dict(case.supply.background_pct) if case.supply else {}
+    sig = significant_orders(sources, background, st, fallback=characteristic)
+    out = []
+    for sc in scans:
+        bm = sc.bank
+        if sc.scenario != "nominal" or bm.p <= 0:
+            continue
+        n = 1.0 / math.sqrt(bm.p)
+        why = tuning_reasons(n, sig[0] if sig else None, st)
+        if not why:
+            continue
+        for s in sc.steps:
+            out.append({"bank": bm.name, "step": s.step, "scenario": "all", "check": "detuning_tuning",
+                        "value": _r(n, 4), "limit": _r(sig[0] * (1.0 - st.order_margin_pct / 100.0), 4),
+                        "unit": "harmonic order", "cause": "bank",
+                        "source": "IEEE Std 1531-2020; margins common practice ([detuning] settings)",
+                        "message": f"bank {bm.name} step {s.step}: detuned p = {100 * bm.p:g} % is unsafe: "
+                                   + "; ".join(why)})
+    return out
+
+
 def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarray, sig: tuple,
                st: DetuningSettings):
     """Ratings and tolerance checks of one tuning order before any re-check.
@@ -755,16 +846,7 @@ def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarr
     kv0 = capacitor_rating_kv(u_c1 * (1.0 + st.cap_voltage_margin_pct / 100.0), st.standard_cap_kv, st.mv_cap_step_kv)
     h_low = sig[0] if sig else None
     n_lo, n_hi = tuning_band(n, st.cap_tolerance_pct, st.reactor_tolerance_pct)
-    why = []
-    if h_low is not None:
-        lim = h_low * (1.0 - st.order_margin_pct / 100.0)
-        if n > lim + 1e-9:
-            why.append(f"tuning order {n:.2f} is not {st.order_margin_pct:g} % below the lowest significant "
-                       f"harmonic {h_low} (at most {lim:.2f})")
-        lim_b = h_low * (1.0 - st.band_margin_pct / 100.0)
-        if n <= lim + 1e-9 and n_hi > lim_b:
-            why.append(f"with tolerances the tuning reaches {n_hi:.2f}, within {st.band_margin_pct:g} % of the "
-                       f"significant harmonic {h_low}")
+    why = tuning_reasons(n, h_low, st)
     cand = {"tuning_order": _r(n, 4), "detuning_pct": p_pct, "f_tuning_hz": _r(n * f_hz, 2),
             "u_cap_fundamental_kv": _r(u_c1, 5), "lowest_significant_order": h_low,
             "tolerance": {"cap_pct": list(st.cap_tolerance_pct), "reactor_pct": list(st.reactor_tolerance_pct),

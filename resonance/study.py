@@ -530,6 +530,9 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
                 findings.extend(sd.findings)
         if sc.steps and sc.steps[0].h_scan is None:
             warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
+    from .detuning import detuned_bank_findings  # noqa: PLC0415 - the proposals' own tuning rule
+
+    findings.extend(detuned_bank_findings(case, sources, orders.characteristic, scans))
     res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
                        extras={"model": model, "sources": sources}, assessments=tuple(assessments),
