@@ -14,7 +14,42 @@ from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["OutputDir"]
+__all__ = ["OutputDir", "csv_text_cell", "MANIFEST", "LOCK"]
+
+#: hidden file listing what the last run wrote here (removed again when a later run does not)
+MANIFEST = ".resonance-manifest.json"
+#: hidden lock file: one run at a time per output folder
+LOCK = ".resonance-lock"
+
+#: first characters that make a spreadsheet evaluate a cell (OWASP, "CSV Injection")
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def csv_text_cell(value):
+    """A CSV cell that no spreadsheet evaluates: text starting with ``= + - @``, a tab or a carriage
+    return gets a leading apostrophe; numbers (negative ones too) are returned unchanged.
+
+    Parameters
+    ----------
+    value : object
+        Cell value [unitless].
+
+    Returns
+    -------
+    object
+        ``value``, or ``"'" + value`` for such text [unitless].
+
+    References
+    ----------
+    OWASP Foundation, *CSV Injection* (community page), recommended neutralisation.
+    """
+    if isinstance(value, str) and value.startswith(_FORMULA_START):
+        try:
+            float(value)
+            return value  # a number written as text, e.g. "-1.5"
+        except ValueError:
+            return "'" + value
+    return value
 
 #: prefix of the hidden staging directory made inside the output directory
 STAGE_PREFIX = ".resonance-partial-"
@@ -77,6 +112,47 @@ class OutputDir:
             self._remove_created()
             raise InputError.single(str(path), "--out", f"cannot write in the directory ({e.strerror})") from None
         self.names: list[str] = []
+        self._lock_fh = None
+        self._take_lock(str(path))
+
+    def _take_lock(self, label: str) -> None:
+        """Exclusive lock on ``LOCK`` in the folder (released by the OS if the process dies)."""
+        try:
+            import fcntl  # noqa: PLC0415
+        except ImportError:  # pragma: no cover - not POSIX: no lock
+            return
+        lock_path = self.path / LOCK
+        existed = lock_path.exists()
+        fh = open(lock_path, "a+", encoding="utf-8")  # noqa: SIM115 - held until commit/discard
+        try:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            fh.close()
+            self._remove_stage()
+            if not existed:
+                lock_path.unlink(missing_ok=True)
+            self._remove_created()
+            raise InputError.single(label, "--out", f"another resonance run is writing to this folder (lock "
+                                    f"{lock_path.name}); wait for it to end or choose another --out") from None
+        self._lock_fh = fh
+        self._lock_made = not existed
+
+    def _release_lock(self, remove: bool) -> None:
+        fh, self._lock_fh = self._lock_fh, None
+        if fh is None:
+            return
+        if remove:
+            try:
+                (self.path / LOCK).unlink()
+            except OSError:
+                pass
+        fh.close()
+
+    def __del__(self):  # an OutputDir dropped without commit or discard still lets the lock go
+        try:
+            self._release_lock(remove=False)
+        except Exception:  # noqa: BLE001 - interpreter shutdown
+            pass
 
     def _is_protected(self, target: Path) -> bool:
         if target.resolve() in self._protect_resolved:
@@ -134,9 +210,46 @@ class OutputDir:
             dst = self.path / name
             os.replace(self.stage / name, dst)
             done.append(dst)
+        self._remove_stale(set(order))
+        self._write_manifest(order)
         self._remove_stage()
         self._created = []  # the directory now holds results: keep it
+        self._release_lock(remove=True)
         return done
+
+    def _previous(self) -> list[str]:
+        """Names the last run's manifest lists (plain names only; anything else is ignored)."""
+        import json  # noqa: PLC0415
+
+        try:
+            doc = json.loads((self.path / MANIFEST).read_text(encoding="utf-8"))
+            names = doc.get("files", []) if isinstance(doc, dict) else []
+        except (OSError, ValueError):
+            return []
+        return [n for n in names if isinstance(n, str) and n and n not in (".", "..")
+                and Path(n).name == n and "/" not in n and "\\" not in n]
+
+    def _remove_stale(self, written: set) -> None:
+        """Remove files the previous run wrote here that this run did not (never a protected input)."""
+        for name in self._previous():
+            if name in written or name in (MANIFEST, LOCK):
+                continue
+            target = self.path / name
+            if target.is_file() and not target.is_symlink() and not self._is_protected(target):
+                try:
+                    target.unlink()
+                except OSError:
+                    pass
+
+    def _write_manifest(self, order: list) -> None:
+        import json  # noqa: PLC0415
+
+        from . import __version__  # noqa: PLC0415
+
+        tmp = self.stage / MANIFEST
+        tmp.write_text(json.dumps({"tool": f"resonance {__version__}", "files": list(order)}, indent=1) + "\n",
+                       encoding="utf-8")
+        os.replace(tmp, self.path / MANIFEST)
 
     def _remove_stage(self) -> None:
         shutil.rmtree(self.stage, ignore_errors=True)
@@ -151,5 +264,6 @@ class OutputDir:
     def discard(self) -> None:
         """Remove the staging directory and whatever it holds (and a directory made for this run, if empty)."""
         self._remove_stage()
+        self._release_lock(remove=getattr(self, "_lock_made", False))
         self._remove_created()
         self._created = []

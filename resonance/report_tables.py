@@ -17,6 +17,7 @@ import textwrap
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
+from .outputs import csv_text_cell
 from .study import BankScan, StudyResult
 
 __all__ = ["Table", "Column", "report_tables", "DUTY_KEYS", "DUTY_LABEL"]
@@ -262,9 +263,11 @@ class Table:
         """CSV text: header ``label [unit]``, raw values (empty for None)."""
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
-        w.writerow([c.label.replace("\n", " ") + (f" [{c.unit}]" if c.unit else "") for c in self.columns])
+        w.writerow([csv_text_cell(c.label.replace("\n", " ") + (f" [{c.unit}]" if c.unit else ""))
+                    for c in self.columns])
         for r in self.rows:
-            w.writerow(["" if v is None else (_s(v) if isinstance(v, (list, tuple, bool)) else v) for v in r])
+            w.writerow(["" if v is None else csv_text_cell(_s(v) if isinstance(v, (list, tuple, bool)) else v)
+                        for v in r])
         return buf.getvalue()
 
     def cells(self) -> list[list[str]]:

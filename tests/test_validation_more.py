@@ -347,7 +347,7 @@ def test_results_json_is_moved_last_and_reported(case_file, tmp_path, capsys):
     out.write_text("a.csv", "y")
     done = out.commit()
     assert [d.name for d in done] == ["b.csv", "a.csv", "results.json"]
-    assert _listing(tmp_path / "o") == ["a.csv", "b.csv", "results.json"]
+    assert _listing(tmp_path / "o") == [".resonance-manifest.json", "a.csv", "b.csv", "results.json"]
     with pytest.raises(ValueError):
         OutputDir(tmp_path / "o2").file("../escape.txt")
     # the CLI says what it wrote where
