@@ -25,7 +25,6 @@ banks" (p, n, U_C, Q_net, tolerances, linearity current).
 from __future__ import annotations
 
 import math
-import time
 from dataclasses import asdict, dataclass, fields
 
 import numpy as np
@@ -34,9 +33,6 @@ from .errors import InputError, ModelError
 
 __all__ = [
     "run_variant",
-    "planned_variants",
-    "variant_job",
-    "accept_variant",
     "DetuningSettings",
     "DetunedStep",
     "detuning_settings",
@@ -631,10 +627,8 @@ def _nice_unit(x: float) -> float:
 
 
 def _run(variant, model, clock: list):
-    t = time.perf_counter()
-    res = run_variant(variant, model)
-    clock.append(time.perf_counter() - t)
-    return res
+    clock.append(1)  # counts the re-checks of one bank
+    return run_variant(variant, model)
 
 
 def run_variant(variant, model):
@@ -664,37 +658,6 @@ def run_variant(variant, model):
 
 def _variant_key(variant) -> tuple:
     return ("study", variant.model_dump_json())
-
-
-def variant_job(variant, model):
-    """Run a variant's study for another process: ``(key, result)`` with the model left out.
-
-    Parameters
-    ----------
-    variant : Case
-        A variant from :func:`planned_variants`.
-    model : PlantModel
-        Plant model of the original case.
-
-    Returns
-    -------
-    tuple
-        The memo key and the :class:`~resonance.study.StudyResult` without
-        ``extras["model"]`` (so it pickles without the pandapower net); give
-        both to :func:`accept_variant` in the process that owns ``model``.
-    """
-    import dataclasses  # noqa: PLC0415
-
-    res = run_variant(variant, model)
-    return _variant_key(variant), dataclasses.replace(
-        res, extras={k: v for k, v in res.extras.items() if k != "model"})
-
-
-def accept_variant(model, key: tuple, result) -> None:
-    """Memoise a study from :func:`variant_job` on ``model`` (unless it is there already)."""
-    if key not in model.cache:
-        result.extras["model"] = model
-        model.cache[key] = result
 
 
 def _reactor_figures(status: dict, q_np: np.ndarray, ratings, p: float, u_kv: float, reactor_q: float,
@@ -1050,63 +1013,6 @@ def _trial_orders(st: DetuningSettings, sig: tuple) -> list[float]:
     return trial
 
 
-def planned_variants(case, model) -> list:
-    """The re-checks :func:`propose_detuning` will most likely run, known before the study.
-
-    Parameters
-    ----------
-    case : Case
-        The case as given.
-    model : PlantModel
-        Its plant model.
-
-    Returns
-    -------
-    list of Case
-        For every plain bank (``detuning_pct`` unset or zero) and every tuning
-        order that passes the pre-screen, the variant at the first capacitor
-        rating, in the order :func:`propose_detuning` tries them.  A caller may
-        run them ahead (:func:`run_variant` memoises each), for instance in
-        another process while the study of the case itself runs; a variant that
-        turns out not to be needed costs time only.
-
-    Notes
-    -----
-    The pre-screen needs the short-circuit power at the bank bus per scenario;
-    it is the same Thevenin figure the study's scan reports
-    (:func:`resonance.study.bus_short_circuit`).  Re-arrangements depend on the
-    study's scans and are not planned.
-    """
-    from .study import ModelSettings, _source_orders, bus_short_circuit, bank_models, orders_of_concern  # noqa: PLC0415
-
-    st = detuning_settings(case)
-    sources, probs = _source_orders(case)
-    if probs:
-        return []
-    background = dict(case.supply.background_pct) if case.supply else {}
-    sig = significant_orders(sources, background, st,
-                             fallback=orders_of_concern(sources, background, case.study.h_max).characteristic)
-    settings = ModelSettings(case.study.resistance_model, case.study.load_model)
-    out = []
-    for bank, bm in zip(case.bank, bank_models(case, model.arrays, model.model_bus)):
-        if bm.p > 0:
-            continue
-        sc_mva = {scenario: bus_short_circuit(a, bm.index, settings)[0]  # as the study's scan reports it
-                  for scenario, a in (("nominal", model.arrays), ("weak", model.arrays_weak)) if a is not None}
-        q_net_stage = bm.stages_kvar * (bm.bus_kv / bm.rated_kv) ** 2 / (1.0 - bm.p)
-        for n_req in _trial_orders(st, sig):
-            _, why, rate, kv0, p_pct = _prescreen(case, bank, bm, sc_mva, n_req, q_net_stage, sig, st)
-            kvs = _ratings(kv0, bm.bus_kv, st)
-            if why or not kvs:
-                continue
-            try:
-                out.append(_variant(case, bank, detuning_pct=p_pct, rated_kv=kvs[0],
-                                    steps_kvar=[float(x) for x in rate(kvs[0])[0]]))
-            except InputError:
-                continue
-    return out
-
-
 def propose_detuning(case, model, result) -> dict:
     """Detuned-bank proposals (and stage re-arrangements) for every bank of a case.
 
@@ -1129,7 +1035,7 @@ def propose_detuning(case, model, result) -> dict:
         ``reactor_q`` [unitless], ``bank_table`` ready for a ``[[bank]]`` entry)
         or None, ``reason`` (plain words), ``candidates`` (every figure,
         ``qualified``, ``why``), ``rearrangement`` (or None), ``settings`` and
-        ``timing`` [s].
+        ``re_checks`` [unitless].
 
     Notes
     -----
@@ -1160,7 +1066,6 @@ def propose_detuning(case, model, result) -> dict:
     out = {}
     for bank in case.bank:
         clock: list[float] = []
-        t0 = time.perf_counter()
         scans = {sc.scenario: sc for sc in result.scans if sc.bank.name == bank.name}
         bm = scans["nominal"].bank
         own = _bank_status(result, case, model, bank.name)
@@ -1209,7 +1114,6 @@ def propose_detuning(case, model, result) -> dict:
                 f"{c['tuning_order']:.2f}: {c['why']}" for c in cands))[:2000]
         if not own["resonance_ok"] and bm.p == 0:
             entry["rearrangement"] = _rearrangement(case, model, result, bank, bm, scans, st, clock)
-        entry["timing"] = {"runs": len(clock), "run_study_s": _r(sum(clock), 3),
-                           "total_s": _r(time.perf_counter() - t0, 3)}
+        entry["re_checks"] = len(clock)  # studies run for this bank (no wall-clock time: equal runs stay equal)
         out[bank.name] = entry
     return out
