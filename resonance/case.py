@@ -632,7 +632,9 @@ def _names_unique(case: Case, file: str) -> list[InputProblem]:
 
 def _file_stem(name: str) -> str:
     """Bank name as used in output file names (as the CLI and the report write them)."""
-    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+    from .names import file_stem  # noqa: PLC0415
+
+    return file_stem(name)
 
 
 def bus_voltages_kv(case: Case) -> tuple[dict[str, float], list[InputProblem]]:

@@ -306,7 +306,9 @@ def _attach_detuned_scans(case, res, det: dict) -> None:
 
 
 def _safe(name: str) -> str:
-    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+    from .names import file_stem  # noqa: PLC0415
+
+    return file_stem(name)
 
 
 def _defect(exc: BaseException, command: str | None) -> int:

@@ -17,6 +17,7 @@ import textwrap
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
+from .names import file_stem
 from .outputs import csv_text_cell
 from .study import BankScan, StudyResult
 
@@ -209,7 +210,7 @@ def _has_duty(bank: dict) -> bool:
 
 
 def _safe(name: str) -> str:
-    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+    return file_stem(name)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .names import file_stem
 from .study import StudyResult
 
 __all__ = ["write_scan_tables", "scan_csv"]
@@ -20,6 +21,6 @@ def scan_csv(sc) -> str:
 def write_scan_tables(res: StudyResult, out) -> None:
     """Stage one scan CSV per bank and scenario into an :class:`~resonance.outputs.OutputDir`."""
     for sc in res.scans:
-        safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in sc.bank.name)
+        safe = file_stem(sc.bank.name)
         suffix = "" if sc.scenario == "nominal" else f"_{sc.scenario}"
         out.write_text(f"scan_{safe}{suffix}.csv", scan_csv(sc))
