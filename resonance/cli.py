@@ -129,16 +129,20 @@ def _summary(data: dict) -> str:
         lines.append(f"\nbank {b['name']} at {b['bus']} ({b['bus_kv']:g} kV, {kind}); "
                      f"S_sc = {b['sc_mva']:.2f} MVA (IEC 60909: {iec} MVA)")
         lines.append("  step    kvar  h_est  h_scan  near  margin%  THDbus%  THDpcc%  Vrms%  Vpk%  Irms%  kvar%  TDD%  result")
+        # the one judge: a row is "ok" when the bank has no finding of its own at that step
+        # (nominal supply, or one that holds in every scenario); the site's own distortion is "site"
+        mine = [f for f in data["findings"] if f["bank"] == b["name"] and f["scenario"] in ("nominal", "all")]
         for s in b["steps"]:
-            ok = (s["resonance_ok"] and s.get("duty_ok", True) and s.get("pcc_voltage_ok", True)
-                  and s.get("pcc_current_ok", True))
+            here = [f for f in mine if f["step"] == s["step"]]
+            ok = not any(f["cause"] == "bank" for f in here)
+            word = ("ok" if not here else "site") if ok else "FINDING"
             near = f"{s['nearest_order']:>4}" if s["nearest_order"] is not None else "   -"
             lines.append(f"  {s['step']:>4} {s['kvar_nameplate']:>7.0f} {_fmt(s['h_estimate'], 2, 6)} "
                          f"{_fmt(s['h_scan'], 2, 7)} {near} {_fmt(s['margin_pct'], 1, 8)} "
                          f"{_fmt(s.get('thd_v_pct'), 2, 8)} {_fmt(s.get('thd_v_pcc_pct'), 2, 8)} "
                          f"{_fmt(s.get('cap_v_rms_pct'), 1, 6)} {_fmt(s.get('cap_v_peak_pct'), 1, 5)} "
                          f"{_fmt(s.get('cap_i_rms_pct'), 1, 6)} {_fmt(s.get('cap_kvar_pct'), 1, 6)} "
-                         f"{_fmt(s.get('tdd_pct'), 1, 5)}  {'ok' if ok else 'FINDING'}")
+                         f"{_fmt(s.get('tdd_pct'), 1, 5)}  {word}")
     return "\n".join(lines)
 
 

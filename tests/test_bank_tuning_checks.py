@@ -80,3 +80,12 @@ def test_every_duty_quantity_beyond_its_limit_is_a_finding(case_file, tmp_path):
                 assert f["value"] == round(s[keys[f["check"][5:]]], 2)
         seen_multi |= len(over) > 1
     assert seen_multi, "the case must drive more than one quantity past its limit"
+
+
+def test_summary_row_follows_the_findings(case_file, tmp_path):
+    # the terminal's per-step word comes from the one assessment: a tuning finding makes it FINDING
+    text = _bank(STRONG_5TH, '[[bank]]\nname = "B1"\nbus = "LV"\nrated_kv = 0.525\n'
+                             'steps_kvar = [400.0]\ndetuning_pct = 4.0\n')
+    rc, data, out = _run(case_file, tmp_path, text)
+    row = next(ln for ln in out.splitlines() if ln.strip().startswith("1 ") and "400" in ln)
+    assert rc == 1 and row.rstrip().endswith("FINDING"), row
