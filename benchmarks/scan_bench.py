@@ -5,7 +5,7 @@ Run from the repository root:  /tmp/venv/bin/python benchmarks/scan_bench.py
 line is ``speedup: <ratio>x``.
 
 Fast path: one sparse factorisation per order with the pattern, ordering and value map
-built once (resonance.engine), both cores, and every step by Sherman-Morrison.
+built once (resonance.harmonics.engine), both cores, and every step by Sherman-Morrison.
 Naive baseline: per step and per order, Y(h) with the step on its diagonal assembled
 and solved with scipy.sparse.linalg.spsolve (default ordering and pivoting); timed on a
 subset of orders kept under about a minute and scaled to the full workload.
@@ -52,7 +52,7 @@ def machine() -> str:
 def load_network():
     import pandapower.networks as pn
 
-    from resonance.netmodel import net_to_arrays
+    from resonance.model.netmodel import net_to_arrays
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -180,13 +180,13 @@ def plant_timings() -> dict:
     print(f"demo plant: full check with plots and report {t_full:.2f} s (best of 2), exit {runs[0][1]}, "
           f"{len(runs[0][2])} files; target < 8 s")
     # the report alone for a 12-step bank with 3 sources
-    from resonance.case import load_case
+    from resonance.inputs.case import load_case
     from resonance.cli import _attach_detuned_scans
-    from resonance.detuning import propose_detuning
+    from resonance.design.detuning import propose_detuning
     from resonance.outputs import OutputDir
-    from resonance.report import write_report
-    from resonance.results import to_dict
-    from resonance.study import run_study
+    from resonance.report.document import write_report
+    from resonance.report.results_json import to_dict
+    from resonance.assessment.study import run_study
 
     with tempfile.TemporaryDirectory() as tmp:
         p = Path(tmp) / "twelve_steps.toml"
@@ -212,10 +212,10 @@ def plant_timings() -> dict:
 
 
 def main() -> int:
-    from resonance.admittance import YPattern, bank_step_admittance
-    from resonance.engine import default_workers
-    from resonance.scan import find_peaks, harmonic_grid, sparse_engine, step_update
-    from resonance.scan import impedance_columns
+    from resonance.model.admittance import YPattern, bank_step_admittance
+    from resonance.harmonics.engine import default_workers
+    from resonance.harmonics.scan import find_peaks, harmonic_grid, sparse_engine, step_update
+    from resonance.harmonics.scan import impedance_columns
 
     print(f"machine: {machine()}")
     t0 = time.perf_counter()

@@ -14,15 +14,15 @@ __all__ = ["__version__", "load_case", "run_study", "InputError", "ResonanceErro
 
 def __getattr__(name):  # lazy re-exports keep `resonance --help` fast
     if name == "load_case":
-        from .case import load_case
+        from resonance.inputs.case import load_case
 
         return load_case
     if name == "run_study":
-        from .study import run_study
+        from resonance.assessment.study import run_study
 
         return run_study
     if name in ("InputError", "ResonanceError"):
-        from . import errors
+        from resonance import errors
 
         return getattr(errors, name)
     raise AttributeError(name)

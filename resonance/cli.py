@@ -19,8 +19,8 @@ import sys
 import traceback
 from pathlib import Path
 
-from . import __version__
-from .errors import InputError, ModelError, ResonanceError
+from resonance import __version__
+from resonance.errors import InputError, ModelError, ResonanceError
 
 __all__ = ["main", "build_parser"]
 
@@ -109,7 +109,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--no-report", action="store_true", help="skip the PDF report")
     c.add_argument("--quiet", action="store_true", help="print only findings")
     try:
-        from .sizing_cli import add_parser as _add_size  # noqa: PLC0415
+        from resonance.sizing_cli import add_parser as _add_size  # noqa: PLC0415
     except ImportError:  # pragma: no cover - sizing is optional at import time
         _add_size = None
     if _add_size is not None:
@@ -160,10 +160,10 @@ def _input_files(case, case_path: Path) -> list[Path]:
 
 
 def _check(args) -> int:
-    from .case import load_case  # noqa: PLC0415
-    from .study import run_study  # noqa: PLC0415
-    from .results import to_dict, CAUTION  # noqa: PLC0415
-    from .outputs import OutputDir  # noqa: PLC0415
+    from resonance.inputs.case import load_case  # noqa: PLC0415
+    from resonance.assessment.study import run_study  # noqa: PLC0415
+    from resonance.report.results_json import to_dict, CAUTION  # noqa: PLC0415
+    from resonance.outputs import OutputDir  # noqa: PLC0415
 
     case_path = Path(args.case)
     case = load_case(case_path)
@@ -174,11 +174,11 @@ def _check(args) -> int:
     _STATE["out"] = out
     _workers()  # a bad RESONANCE_WORKERS is named here; the sparse engine reads it itself
     try:
-        from . import netmodel  # noqa: PLC0415
-        from .detuning import propose_detuning  # noqa: PLC0415
-        from .demand import time_in_step  # noqa: PLC0415
-        from .study import with_cross_check  # noqa: PLC0415
-        from .tables import write_scan_tables  # noqa: PLC0415
+        from resonance.model import netmodel  # noqa: PLC0415
+        from resonance.design.detuning import propose_detuning  # noqa: PLC0415
+        from resonance.design.demand import time_in_step  # noqa: PLC0415
+        from resonance.assessment.study import with_cross_check  # noqa: PLC0415
+        from resonance.report.scan_tables import write_scan_tables  # noqa: PLC0415
 
         model = netmodel.build_model(case)
         res = run_study(case, model=model, cross_check=False)
@@ -198,7 +198,7 @@ def _check(args) -> int:
         out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
         rec_text = _recommended_case(case_path, out, det)
         if not args.no_plots:
-            from .plots import scan_figure  # noqa: PLC0415
+            from resonance.report.plots import scan_figure  # noqa: PLC0415
             import matplotlib.pyplot as plt  # noqa: PLC0415
 
             for sc in res.scans:
@@ -215,7 +215,7 @@ def _check(args) -> int:
                     fig.savefig(out.file(f"scan_{safe}_weak.png"))
                     plt.close(fig)
         if not (args.no_plots or args.no_report):
-            from .report import write_report  # noqa: PLC0415
+            from resonance.report.document import write_report  # noqa: PLC0415
 
             write_report(res, data, out)
         written = out.commit()
@@ -262,7 +262,7 @@ def _check(args) -> int:
 
 def _recommended_case(case_path: Path, out, det: dict) -> str | None:
     """Stage ``recommended_case.toml`` when a bank has a recommended design; returns its text."""
-    from .recommend import RECOMMENDED_CASE, recommended_case_text  # noqa: PLC0415
+    from resonance.design.recommend import RECOMMENDED_CASE, recommended_case_text  # noqa: PLC0415
 
     designs = {name: d["recommended"]["bank_table"] for name, d in det.items()
                if (d or {}).get("recommended")}
@@ -279,7 +279,7 @@ def _recommended_case(case_path: Path, out, det: dict) -> str | None:
 def _workers() -> int | None:
     """Processes from ``RESONANCE_WORKERS`` (a whole number >= 1), else None (the default).
 
-    The same variable sets the sparse engine's pool (:func:`resonance.engine.default_workers`);
+    The same variable sets the sparse engine's pool (:func:`resonance.harmonics.engine.default_workers`);
     here a bad value is named in a warning.
     """
     env = os.environ.get("RESONANCE_WORKERS", "").strip()
@@ -293,7 +293,7 @@ def _workers() -> int | None:
 
 def _attach_detuned_scans(case, res, det: dict) -> None:
     """Scan of each recommended detuned design, for the report's side-by-side plot."""
-    from .detuning import run_variant  # noqa: PLC0415
+    from resonance.design.detuning import run_variant  # noqa: PLC0415
 
     for name, d in det.items():
         rec = (d or {}).get("recommended")
@@ -310,7 +310,7 @@ def _attach_detuned_scans(case, res, det: dict) -> None:
 
 
 def _safe(name: str) -> str:
-    from .names import file_stem  # noqa: PLC0415
+    from resonance.names import file_stem  # noqa: PLC0415
 
     return file_stem(name)
 

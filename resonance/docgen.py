@@ -9,7 +9,7 @@ __all__ = ["cli_markdown"]
 
 def cli_markdown() -> str:
     """Markdown text of ``resonance --help`` and every subcommand's help."""
-    from .cli import build_parser  # noqa: PLC0415
+    from resonance.cli import build_parser  # noqa: PLC0415
 
     p = build_parser()
     parts = ["# Command-line reference", "", "Generated from the argument parser "

@@ -12,7 +12,7 @@ import shutil
 import tempfile
 from pathlib import Path
 
-from .errors import InputError
+from resonance.errors import InputError
 
 __all__ = ["OutputDir", "csv_text_cell", "MANIFEST", "LOCK"]
 
@@ -244,7 +244,7 @@ class OutputDir:
     def _write_manifest(self, order: list) -> None:
         import json  # noqa: PLC0415
 
-        from . import __version__  # noqa: PLC0415
+        from resonance import __version__  # noqa: PLC0415
 
         tmp = self.stage / MANIFEST
         tmp.write_text(json.dumps({"tool": f"resonance {__version__}", "files": list(order)}, indent=1) + "\n",

@@ -1,7 +1,7 @@
 """Command ``resonance size CSV --bus BUS --rated-kv KV --out DIR``: bank size and stage plan from demand.
 
-Reads interval demand (:mod:`resonance.sizing_io`), sizes the bank and
-simulates its controller (:mod:`resonance.sizing`), and writes into ``DIR``:
+Reads interval demand (:mod:`resonance.inputs.sizing_io`), sizes the bank and
+simulates its controller (:mod:`resonance.design.sizing`), and writes into ``DIR``:
 
 * ``sizing.json``: inputs, settings, demand, plan, controller figures and the
   time-in-step table;
@@ -22,13 +22,13 @@ import sys
 
 import numpy as np
 
-from .errors import InputError
-from .outputs import OutputDir
-from .sizing import (STAGE_LAYOUTS, STANDARD_STAGES_KVAR, BillingRule, ControllerResult, ControllerSettings,
+from resonance.errors import InputError
+from resonance.outputs import OutputDir
+from resonance.design.sizing import (STAGE_LAYOUTS, STANDARD_STAGES_KVAR, BillingRule, ControllerResult, ControllerSettings,
                      monthly_cost,
                      output_factor, power_factor, required_kvar_series, simulate_controller, size_bank,
                      time_in_step_table)
-from .sizing_io import IntervalData, bank_block_toml, read_intervals
+from resonance.inputs.sizing_io import IntervalData, bank_block_toml, read_intervals
 
 __all__ = ["add_parser", "run"]
 

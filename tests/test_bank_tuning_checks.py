@@ -2,7 +2,7 @@
 quantity beyond its limit is a finding of its own.
 
 Sources: tuning order n = 1/sqrt(p) (derived from the series L-C resonance, IEEE Std 1531-2020);
-margins: common practice (resonance.detuning settings); duty limits IEEE Std 18-2002 clause 5.6
+margins: common practice (resonance.design.detuning settings); duty limits IEEE Std 18-2002 clause 5.6
 (110 % rms voltage, 120 % crest, 135 % rms current, 135 % kvar; [published] in REFERENCES.md).
 """
 

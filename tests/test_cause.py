@@ -1,7 +1,7 @@
-"""Whose a finding is: the bank's or the site's (resonance.verdict and the assessment).
+"""Whose a finding is: the bank's or the site's (resonance.assessment.verdict and the assessment).
 
 Limits: IEEE Std 519-2014 Table 2 (current distortion, [published] in REFERENCES.md); the
-bank-off/bank-in split is the project's convention (resonance.verdict), checked here against
+bank-off/bank-in split is the project's convention (resonance.assessment.verdict), checked here against
 its definition and against a second route (the same case with the bank removed).
 """
 
@@ -15,7 +15,7 @@ import tomllib
 import pytest
 
 from resonance.cli import main
-from resonance.verdict import CAUSE_ABS_TOL_PCT, CAUSE_REL_TOL, bank_passes, distortion_cause
+from resonance.assessment.verdict import CAUSE_ABS_TOL_PCT, CAUSE_REL_TOL, bank_passes, distortion_cause
 
 from .conftest import CASES
 from .test_fuzz import to_toml

@@ -12,7 +12,7 @@ from .conftest import CASES
 
 
 def test_a_defect_of_the_tool_exits_3_with_one_line_and_a_traceback_file(tmp_path, monkeypatch, capsys):
-    from resonance import study
+    from resonance.assessment import study
 
     def broken(*a, **k):
         raise ZeroDivisionError("planted defect")
@@ -95,6 +95,6 @@ def test_copy_of_demo_runs_from_another_folder(tmp_path):
     # the input-file list resolves relative names against the case's own folder
     for n in ("demo_plant.toml", "demo_plant_intervals.csv"):
         shutil.copy(CASES / n, tmp_path / n)
-    case = cli._input_files(__import__("resonance.case", fromlist=["load_case"]).load_case(tmp_path / "demo_plant.toml"),
+    case = cli._input_files(__import__("resonance.inputs.case", fromlist=["load_case"]).load_case(tmp_path / "demo_plant.toml"),
                             tmp_path / "demo_plant.toml")
     assert [p.name for p in case] == ["demo_plant.toml", "demo_plant_intervals.csv"]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from resonance.grid import _split_dh, adaptive_scan, golden_refine, zoom_refine
+from resonance.harmonics.grid import _split_dh, adaptive_scan, golden_refine, zoom_refine
 
 
 def _parallel_rlc(h, h0, q):
@@ -39,7 +39,7 @@ def test_zoom_refine_with_no_brackets():
 
 def test_adaptive_grid_leaves_no_interval_the_rule_would_still_halve():
     # two sharp resonances (Q = 300 and 2000) between base samples 0.1 apart; the stopping rule
-    # (resonance.grid.adaptive_scan Notes) must hold on every interval of the final grid
+    # (resonance.harmonics.grid.adaptive_scan Notes) must hold on every interval of the final grid
     h0 = np.array([[5.03], [11.377]])
     q = np.array([[300.0], [2000.0]])
 
@@ -65,7 +65,7 @@ def test_adaptive_grid_leaves_no_interval_the_rule_would_still_halve():
 def test_load_models_are_finite_and_match_their_defining_circuits(p_pu):
     # Reference: derived from each model's circuit; a vanishing load draws (almost) nothing and
     # must not turn into inf/nan admittance (seen with a denormal kW in a generated case)
-    from resonance.admittance import load_admittance
+    from resonance.model.admittance import load_admittance
 
     q_pu = 0.6 * p_pu
     h = np.array([1.0, 5.0, 13.0])
@@ -94,7 +94,7 @@ def test_load_models_are_finite_and_match_their_defining_circuits(p_pu):
                                          (0.0, np.inf, 0.002), (0.14, 30.0, 0.001)])
 def test_step_admittance_derivative_equals_central_difference(p, q_r, r_c):
     # Reference: derived (dY/dh of the series L-C branch), checked against a central difference
-    from resonance.admittance import bank_step_admittance, bank_step_admittance_dh
+    from resonance.model.admittance import bank_step_admittance, bank_step_admittance_dh
 
     h = np.linspace(1.0, 50.0, 397)
     b = np.array([0.05, 0.1, 0.4])

@@ -11,9 +11,9 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 
-from resonance import netmodel
-from resonance.case import load_case, parse_case
-from resonance.detuning import (
+from resonance.model import netmodel
+from resonance.inputs.case import load_case, parse_case
+from resonance.design.detuning import (
     DetuningSettings,
     _bank_status,
     capacitor_rating_kv,
@@ -27,8 +27,8 @@ from resonance.detuning import (
     tuning_band,
 )
 from resonance.errors import InputError
-from resonance.screening import h_estimate
-from resonance.study import run_study
+from resonance.harmonics.screening import h_estimate
+from resonance.assessment.study import run_study
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "cases" / "demo_plant.toml"
@@ -382,7 +382,7 @@ def test_settings_defaults_and_overrides():
 
 
 def test_reactor_figures_from_bank_currents():
-    from resonance.detuning import _reactor_figures
+    from resonance.design.detuning import _reactor_figures
 
     q_np = np.array([50.0, 50.0])
     rt = detuned_step(q_np, 0.525, 0.0567, 60.0, 0.48)

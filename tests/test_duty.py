@@ -1,9 +1,9 @@
-"""Tests of resonance.duty: capacitor duty per IEEE Std 18 quantities."""
+"""Tests of resonance.standards.duty: capacitor duty per IEEE Std 18 quantities."""
 
 import numpy as np
 import pytest
 
-from resonance.duty import (
+from resonance.standards.duty import (
     DUTY_LIMITS,
     capacitor_duty,
     duty_limits,

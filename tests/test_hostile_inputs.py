@@ -2,8 +2,8 @@
 
 Every test runs ``main(["check", CASE, "--out", DIR, "--no-plots", "--no-report"])`` (or
 ``load_case``) on a copy of a bundled case with one thing broken, and checks the exit status
-and the words of the message.  The expected words come from the rules in ``resonance.case``
-and ``resonance.netmodel`` (project choices, stated there with their basis).
+and the words of the message.  The expected words come from the rules in ``resonance.inputs.case``
+and ``resonance.model.netmodel`` (project choices, stated there with their basis).
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from pathlib import Path
 
 import pytest
 
-from resonance.case import DEMAND_MIN_KVA, STAGE_MIN_KVAR, load_case
+from resonance.inputs.case import DEMAND_MIN_KVA, STAGE_MIN_KVAR, load_case
 from resonance.cli import main
 from resonance.errors import InputError
 

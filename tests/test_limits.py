@@ -1,10 +1,10 @@
-"""Tests of resonance.limits: IEEE Std 519 limits, THD and TDD."""
+"""Tests of resonance.standards.limits: IEEE Std 519 limits, THD and TDD."""
 
 import numpy as np
 import pytest
 
 from resonance.errors import InputError
-from resonance.limits import (
+from resonance.standards.limits import (
     ieee519_current_limits,
     ieee519_voltage_limits,
     tdd_pct,

@@ -1,4 +1,4 @@
-"""The arrays load flow (resonance.loadflow) against closed forms and pandapower's runpp."""
+"""The arrays load flow (resonance.model.loadflow) against closed forms and pandapower's runpp."""
 
 from __future__ import annotations
 
@@ -9,11 +9,11 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from resonance import loadflow
-from resonance.case import load_case
+from resonance.model import loadflow
+from resonance.inputs.case import load_case
 from resonance.errors import ModelError
-from resonance.loadflow import PowerFlowCase, newton_raphson, solve_with_shunts
-from resonance.netmodel import LoadFlow, build_model, load_flow_session
+from resonance.model.loadflow import PowerFlowCase, newton_raphson, solve_with_shunts
+from resonance.model.netmodel import LoadFlow, build_model, load_flow_session
 
 from .conftest import CASES
 
@@ -139,8 +139,8 @@ def test_failed_step_is_a_model_error_and_the_session_recovers():
 @pytest.mark.parametrize("case_name", ["demo_plant.toml", "feeder_network_file.toml"])
 def test_weak_arrays_equal_a_full_conversion_with_the_weak_supply(case_name):
     # Reference: pandapower to_ppc conversion of the same net with the weak supply data
-    # (resonance.netmodel.net_to_arrays); the model derives them by changing the grid impedance only
-    from resonance.netmodel import net_to_arrays
+    # (resonance.model.netmodel.net_to_arrays); the model derives them by changing the grid impedance only
+    from resonance.model.netmodel import net_to_arrays
 
     case = load_case(CASES / case_name)
     model = build_model(case)
@@ -159,9 +159,9 @@ def test_conversion_in_place_leaves_the_element_tables_alone(case_name):
     # as built (checked against a fresh conversion of an untouched copy)
     import pandas as pd
 
-    from resonance.netmodel import net_to_arrays
+    from resonance.model.netmodel import net_to_arrays
 
-    from resonance import netmodel
+    from resonance.model import netmodel
 
     case = load_case(CASES / case_name)
     model = build_model(case)

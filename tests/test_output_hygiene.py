@@ -84,7 +84,7 @@ def test_csv_cells_that_a_spreadsheet_would_run_are_neutralised(text, cell):
 
 
 def test_report_tables_neutralise_a_bank_named_like_a_formula():
-    from resonance.report_tables import Column, Table
+    from resonance.report.tables import Column, Table
 
     t = Table("x.csv", "x", [Column("bank", "-"), Column("kvar", "kvar")], [["=1+2", -5.0]])
     rows = list(csv.reader(io.StringIO(t.csv())))

@@ -9,10 +9,10 @@ import warnings
 import numpy as np
 import pytest
 
-from resonance.admittance import dense_y
-from resonance.case import load_case
-from resonance.netmodel import build_model, iec60909_sc_mva, net_to_arrays
-from resonance.study import run_study
+from resonance.model.admittance import dense_y
+from resonance.inputs.case import load_case
+from resonance.model.netmodel import build_model, iec60909_sc_mva, net_to_arrays
+from resonance.assessment.study import run_study
 
 from .conftest import SMALL_CASE, write_case
 

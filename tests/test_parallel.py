@@ -10,15 +10,15 @@ from pathlib import Path
 
 import pytest
 
-from resonance.case import load_case
-from resonance.study import run_study
+from resonance.inputs.case import load_case
+from resonance.assessment.study import run_study
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.mark.parametrize("value, expected", [("1", 1), ("3", 3), ("", None), ("zero", None), ("0", None)])
 def test_resonance_workers_reaches_the_sparse_engine(monkeypatch, value, expected):
-    from resonance import engine
+    from resonance.harmonics import engine
 
     monkeypatch.setenv("RESONANCE_WORKERS", value)
     got = engine.default_workers()
@@ -34,7 +34,7 @@ def test_scan_csv_is_what_csv_writer_gives():
     import csv
     import io
 
-    from resonance.tables import scan_csv
+    from resonance.report.scan_tables import scan_csv
 
     res = run_study(load_case(ROOT / "cases" / "demo_plant.toml"))
     for sc in res.scans:
@@ -48,7 +48,8 @@ def test_scan_csv_is_what_csv_writer_gives():
 def test_failed_cross_check_is_a_warning(tmp_path, monkeypatch):
     # when the IEC 60909 cross-check raises, the check still ends normally, with the failure
     # named in results.json
-    from resonance import cli, netmodel
+    from resonance import cli
+    from resonance.model import netmodel
 
     def broken(*a, **k):
         raise RuntimeError("no short-circuit data")

@@ -8,9 +8,9 @@ import math
 import numpy as np
 import pytest
 
-from resonance.case import load_case
+from resonance.inputs.case import load_case
 from resonance.cli import main
-from resonance.study import run_study
+from resonance.assessment.study import run_study
 
 from .conftest import CASES, write_case
 

@@ -1,4 +1,4 @@
-"""Tests of the submittal report (resonance.report): PDF, figures, tables, determinism.
+"""Tests of the submittal report (resonance.report.document): PDF, figures, tables, determinism.
 
 The PDF text is read back with ``pdftotext`` (poppler-utils).  Values in the PDF are
 compared with ``results.json`` of the same run, never with numbers copied from our output.
@@ -27,8 +27,8 @@ import pytest  # noqa: E402
 
 from resonance import cli  # noqa: E402
 from resonance.outputs import OutputDir  # noqa: E402
-from resonance.report import NOT_EVALUATED, SECTIONS, write_report  # noqa: E402
-from resonance.results import CAUTION  # noqa: E402
+from resonance.report.document import NOT_EVALUATED, SECTIONS, write_report  # noqa: E402
+from resonance.report.results_json import CAUTION  # noqa: E402
 
 from .conftest import CASES, write_case  # noqa: E402
 
@@ -43,9 +43,9 @@ def _safe(name: str) -> str:
 
 
 def _study(case_path: Path):
-    from resonance.case import load_case
-    from resonance.results import to_dict
-    from resonance.study import run_study
+    from resonance.inputs.case import load_case
+    from resonance.report.results_json import to_dict
+    from resonance.assessment.study import run_study
 
     res = run_study(load_case(case_path))
     return res, to_dict(res, hashlib.sha256(case_path.read_bytes()).hexdigest())
@@ -200,8 +200,8 @@ def test_detuning_section_fills_from_results(demo, tmp_path):
 def test_detuned_candidate_scan_beside_the_plain_bank(demo, tmp_path):
     import dataclasses
 
-    from resonance.case import load_case
-    from resonance.study import run_study
+    from resonance.inputs.case import load_case
+    from resonance.assessment.study import run_study
 
     res, data = demo
     case = load_case(CASES / "demo_plant.toml")

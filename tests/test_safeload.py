@@ -1,4 +1,4 @@
-"""Tests for resonance.safeload: untrusted pandapower JSON files.
+"""Tests for resonance.inputs.safeload: untrusted pandapower JSON files.
 
 Every crafted file starts from genuine ``pandapower.to_json`` output and is
 altered in one place.  Where a test shows that the crafted file is dangerous,
@@ -21,7 +21,7 @@ from pathlib import Path
 import pytest
 
 from resonance.errors import InputError, ResonanceError
-from resonance.safeload import DEFAULT_MAX_BYTES, check_pandapower_json_text, read_pandapower_json
+from resonance.inputs.safeload import DEFAULT_MAX_BYTES, check_pandapower_json_text, read_pandapower_json
 
 pp = pytest.importorskip("pandapower")
 pn = pytest.importorskip("pandapower.networks")
@@ -276,7 +276,7 @@ def test_size_limit_is_inclusive_and_default_admits_largest_bundled(tmp_path):
 
 def test_file_growing_after_stat_is_capped(tmp_path, monkeypatch):
     # the size seen by stat is faked smaller than the file, as if it grew in between
-    from resonance import safeload
+    from resonance.inputs import safeload
 
     path = _write(tmp_path, _genuine("case9")[0])
     real = os.stat(path)
@@ -507,7 +507,7 @@ def test_check_text_is_pure_and_accepts_genuine_text():
 
 
 def test_import_does_not_import_pandapower():
-    code = ("import sys, resonance.safeload\n"
+    code = ("import sys, resonance.inputs.safeload\n"
             "bad = [m for m in ('pandapower', 'pandas') if m in sys.modules]\n"
             "sys.exit(1 if bad else 0)\n")
     root = Path(__file__).resolve().parents[1]
@@ -584,7 +584,7 @@ def test_pandapower_gets_the_checked_document_not_the_text(tmp_path, monkeypatch
 
 def test_nesting_and_size_are_bounded(tmp_path, monkeypatch):
     """A file under the byte limit cannot ask for unbounded work: nesting and cells are capped."""
-    import resonance.safeload as sl
+    import resonance.inputs.safeload as sl
 
     doc = _doc("case9")
     deep = []

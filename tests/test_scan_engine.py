@@ -20,13 +20,13 @@ import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from resonance import engine as engine_mod
-from resonance.admittance import YPattern, bank_step_admittance
-from resonance.case import load_case
-from resonance.engine import SparseEngine, sparse_columns
-from resonance.grid import grid_peaks
-from resonance.netmodel import build_model, net_to_arrays
-from resonance.scan import (
+from resonance.harmonics import engine as engine_mod
+from resonance.model.admittance import YPattern, bank_step_admittance
+from resonance.inputs.case import load_case
+from resonance.harmonics.engine import SparseEngine, sparse_columns
+from resonance.harmonics.grid import grid_peaks
+from resonance.model.netmodel import build_model, net_to_arrays
+from resonance.harmonics.scan import (
     DENSE_MAX_BUSES,
     ModelSettings,
     driving_point_steps,
@@ -37,7 +37,7 @@ from resonance.scan import (
     step_update,
     woodbury_update,
 )
-from resonance.study import bank_models
+from resonance.assessment.study import bank_models
 
 from .conftest import CASES, ROOT, SMALL_CASE, write_case
 
@@ -136,7 +136,7 @@ def test_woodbury_several_banks_switched_together(case118):
 @pytest.mark.parametrize("load_model", ["parallel_rl", "series_rl", "cigre_c4", "none"])
 @pytest.mark.parametrize("r_model", ["constant", "sqrt_h", "breuer"])
 def test_engine_values_equal_admittance_pattern(case118, load_model, r_model):
-    # Reference: resonance.admittance.YPattern.values (the element models' own assembly).
+    # Reference: resonance.model.admittance.YPattern.values (the element models' own assembly).
     arr = case118
     pat = YPattern.build(arr)
     eng = SparseEngine.build(arr, r_model, load_model, pat)
@@ -201,7 +201,7 @@ def test_zero_diagonal_and_pivoted_fallback(monkeypatch):
     # diagonals of Y vanish (j h - j / h = 0) while Y = [[0, j], [j, 0]] is regular (the
     # ordering is then taken at another order, and SuperLU's threshold pivoting steps off the
     # zero diagonal).  Reference: numpy.linalg.inv of the 2 x 2 matrix, derived from the pi model.
-    from resonance.network import NetworkArrays
+    from resonance.model.network import NetworkArrays
 
     arr = NetworkArrays(
         f_hz=50.0, base_mva=1.0, bus_names=("a", "b"), bus_kv=np.array([1.0, 1.0]),
@@ -293,6 +293,6 @@ def test_cli_help_imports_neither_pandapower_nor_matplotlib():
 
 
 def test_numeric_core_imports_neither_pandapower_nor_matplotlib():
-    code = ("import resonance.scan, resonance.engine, resonance.grid, resonance.admittance, "
-            "resonance.study, resonance.duty, resonance.limits, resonance.spectra")
+    code = ("import resonance.harmonics.scan, resonance.harmonics.engine, resonance.harmonics.grid, resonance.model.admittance, "
+            "resonance.assessment.study, resonance.standards.duty, resonance.standards.limits, resonance.standards.spectra")
     assert _modules_after(code) == []

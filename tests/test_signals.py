@@ -83,9 +83,10 @@ POOL_SCRIPT = textwrap.dedent("""
     import sys
     import numpy as np
     import pandapower.networks as pn
-    from resonance import cli, engine
-    from resonance.netmodel import net_to_arrays
-    from resonance.scan import sparse_engine
+    from resonance import cli
+    from resonance.harmonics import engine
+    from resonance.model.netmodel import net_to_arrays
+    from resonance.harmonics.scan import sparse_engine
 
     net = pn.case118()
     arr, _ = net_to_arrays(net, require_grid_data=False)

@@ -1,4 +1,4 @@
-"""Tests of bank sizing from demand: resonance.sizing, resonance.sizing_io, resonance.sizing_cli."""
+"""Tests of bank sizing from demand: resonance.design.sizing, resonance.inputs.sizing_io, resonance.sizing_cli."""
 
 from __future__ import annotations
 
@@ -18,9 +18,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from resonance.case import Bank
+from resonance.inputs.case import Bank
 from resonance.errors import InputError
-from resonance.sizing import (
+from resonance.design.sizing import (
     BillingRule,
     ControllerSettings,
     bank_output_kvar,
@@ -36,7 +36,7 @@ from resonance.sizing import (
     time_in_step_table,
 )
 from resonance.sizing_cli import add_parser, run
-from resonance.sizing_io import MAX_REPORTED_PROBLEMS, bank_block_toml, read_intervals
+from resonance.inputs.sizing_io import MAX_REPORTED_PROBLEMS, bank_block_toml, read_intervals
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "cases" / "demo_plant_intervals.csv"
@@ -495,6 +495,6 @@ def test_cli_no_bank_needed(tmp_path):
 
 
 def test_core_and_cli_import_without_matplotlib():
-    code = ("import sys, resonance.sizing, resonance.sizing_io, resonance.sizing_cli; "
+    code = ("import sys, resonance.design.sizing, resonance.inputs.sizing_io, resonance.sizing_cli; "
             "sys.exit(int('matplotlib' in sys.modules))")
     assert subprocess.run([sys.executable, "-c", code], cwd=ROOT).returncode == 0

@@ -1,10 +1,10 @@
-"""Tests of resonance.spectra: built-in spectra, case tables and summation."""
+"""Tests of resonance.standards.spectra: built-in spectra, case tables and summation."""
 
 import numpy as np
 import pytest
 
 from resonance.errors import InputError
-from resonance.spectra import (
+from resonance.standards.spectra import (
     BUILTIN_SPECTRA,
     characteristic_orders,
     combine,

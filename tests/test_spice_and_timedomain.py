@@ -8,8 +8,8 @@ import math
 import numpy as np
 import pytest
 
-from resonance.case import load_case
-from resonance.study import run_study
+from resonance.inputs.case import load_case
+from resonance.assessment.study import run_study
 
 from .conftest import write_case
 from .refs import spice, timedomain

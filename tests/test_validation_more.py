@@ -1,6 +1,6 @@
 """Bad input, unit hints, safe outputs and numerical edge cases, all through ``main([...])``.
 
-Every validation rule of :mod:`resonance.case` has a case here (or in
+Every validation rule of :mod:`resonance.inputs.case` has a case here (or in
 tests/test_case_validation.py): exit status 2, one line per problem naming the
 file and the field, no traceback and no results written.
 """
@@ -14,7 +14,7 @@ import tomllib
 
 import pytest
 
-from resonance.case import parse_case, sc_kva_estimate
+from resonance.inputs.case import parse_case, sc_kva_estimate
 from resonance.cli import main
 
 from .conftest import SMALL_CASE
@@ -263,7 +263,7 @@ def _listing(d):
     return sorted(p.name for p in d.iterdir()) if d.exists() else None
 
 
-@pytest.mark.parametrize("target,plots", [("resonance.tables.scan_csv", False), ("resonance.plots.scan_figure", True)])
+@pytest.mark.parametrize("target,plots", [("resonance.report.scan_tables.scan_csv", False), ("resonance.report.plots.scan_figure", True)])
 def test_failure_mid_run_leaves_nothing(case_file, tmp_path, capsys, monkeypatch, target, plots):
     module, name = target.rsplit(".", 1)
     mod = __import__(module, fromlist=[name])

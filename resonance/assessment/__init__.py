@@ -1,0 +1,1 @@
+"""The one assessment: duty and distortion findings, the study stage, the verdict."""

@@ -1,0 +1,321 @@
+"""Penetration, capacitor duty and distortion limits for every step of every bank.
+
+Pure: takes the validated case, the network arrays and the per-step fundamental
+voltages; returns plain per-step figures and findings.
+
+References
+----------
+IEEE Std 18-2002 (capacitor continuous limits), IEEE Std 519-2014/2022
+(distortion limits at the PCC), IEC 61000-3-6 (summation law).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from resonance.assessment.verdict import distortion_cause
+from resonance.inputs.case import Case
+from resonance.standards.duty import capacitor_duty, duty_limits
+from resonance.standards.limits import ieee519_current_limits, ieee519_voltage_limits
+from resonance.model.network import NetworkArrays
+from resonance.harmonics.penetration import Injection, PenetrationResult, penetrate
+from resonance.harmonics.scan import ModelSettings
+from resonance.standards.spectra import resolve_spectrum
+
+__all__ = ["StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
+
+
+@dataclass(frozen=True, eq=False)
+class StepDuty:
+    """Distortion and duty figures of one step (plain data for results.json).
+
+    ``fields`` holds the per-step keys (``thd_v_pct``, ``cap_*_pct``, ``duty_ok``,
+    PCC figures, per-order table); ``findings`` the limits it breaks.
+    """
+
+    step: int
+    fields: dict
+    findings: tuple
+
+
+@dataclass(frozen=True, eq=False)
+class BankAssessment:
+    """All steps of one bank in one scenario, plus the bank-off reference."""
+
+    bank: str
+    scenario: str
+    steps: tuple
+    bank_off: dict
+    pen: PenetrationResult
+    info: dict = field(default_factory=dict)
+
+
+def build_injection(case: Case, arr: NetworkArrays, model_bus: dict) -> Injection:
+    """Harmonic excitation from the case's sources and background.
+
+    Parameters
+    ----------
+    case : Case
+        Validated case.
+    arr : NetworkArrays
+        Network [pu].
+    model_bus : dict
+        Bus name -> model index.
+
+    Returns
+    -------
+    Injection
+        Orders present, source currents [pu] and background voltages [pu].
+
+    Notes
+    -----
+    Fundamental current of a source ``I_1 = S / (sqrt3 U_n)``; in per unit
+    on the system base at its bus ``I_1 = S / S_base``; ``I_h = pct_h / 100 I_1``.
+    """
+    specs = [resolve_spectrum(hs.spectrum, file=case.source_file, field=f"harmonic_source[{i}].spectrum",
+                              phase_deg=hs.phase_deg or None) for i, hs in enumerate(case.harmonic_source)]
+    bg = dict(case.supply.background_pct) if case.supply else {}
+    orders = sorted({int(h) for s in specs for h, p in zip(s.h, s.pct) if p > 0}
+                    | {int(h) for h, p in bg.items() if p > 0})
+    orders = [h for h in orders if 2 <= h <= case.study.h_max]
+    h = np.array(orders, int)
+    i_pu = np.zeros((len(specs), h.size))
+    ph = np.zeros((len(specs), h.size))
+    for k, (hs, s) in enumerate(zip(case.harmonic_source, specs)):
+        i1 = hs.kva / 1000.0 / arr.base_mva
+        i_pu[k] = i1 * np.array([s.pct_at(int(x)) for x in h]) / 100.0
+        if s.phase_deg is not None:
+            lookup = dict(zip((int(x) for x in s.h), s.phase_deg))
+            ph[k] = [lookup.get(int(x), 0.0) for x in h]
+    bg_v = np.array([bg.get(int(x), 0.0) / 100.0 for x in h])
+    bg_ph = None
+    if case.supply and case.supply.background_phase_deg:
+        bg_ph = np.array([case.supply.background_phase_deg.get(int(x), 0.0) for x in h])
+    return Injection(h=h, src_bus=np.array([model_bus[hs.bus] for hs in case.harmonic_source], int),
+                     src_i_pu=i_pu, src_phase_deg=ph, bg_v_pu=bg_v, bg_phase_deg=bg_ph)
+
+
+def demand_current_a(case: Case, v_pcc_kv: float, arr: NetworkArrays | None = None) -> tuple[float, str]:
+    """Maximum demand current I_L at the PCC for IEEE 519 current limits.
+
+    Parameters
+    ----------
+    case : Case
+        Validated case.
+    v_pcc_kv : float
+        PCC nominal voltage [kV].
+    arr : NetworkArrays, optional
+        Network whose linear loads are summed (a network file's loads are
+        not in the case tables) [pu].
+
+    Returns
+    -------
+    (i_l_a, basis) : (float, str)
+        Demand current [A] and how it was obtained.
+
+    Notes
+    -----
+    ``max_demand_a`` when given; else ``max_demand_kw`` at the power factor of
+    the case's loads (1.0 without loads); else the apparent power of the
+    case's linear loads plus the harmonic sources' rating taken as active power,
+    ``|sum(P + jQ) + sum(S_src)| / (sqrt3 U)`` (the sources are plant load too).
+    """
+    if arr is not None:
+        p_load = float(np.sum(arr.load_p_pu)) * arr.base_mva * 1000.0
+        q = float(np.sum(arr.load_q_pu)) * arr.base_mva * 1000.0
+    else:
+        p_load = sum(ld.kw for ld in case.load)
+        q = sum(ld.kw * math.tan(math.acos(ld.pf)) for ld in case.load)
+    p = p_load + sum(hs.kva for hs in case.harmonic_source)
+    pf = p / math.hypot(p, q) if p > 0 else 1.0
+    if case.study.max_demand_a:
+        return float(case.study.max_demand_a), "study.max_demand_a"
+    if case.study.max_demand_kw:
+        return case.study.max_demand_kw / pf / (math.sqrt(3) * v_pcc_kv), f"study.max_demand_kw at pf {pf:.3f}"
+    s = math.hypot(p, q)
+    return s / (math.sqrt(3) * v_pcc_kv), "linear loads plus harmonic source ratings"
+
+
+def _pct_table(h: np.ndarray, v: np.ndarray) -> dict:
+    return {str(int(a)): round(float(b) * 100.0, 4) for a, b in zip(h, v)}
+
+
+def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: np.ndarray, pcc: int,
+                sc_mva_pcc: float, settings: ModelSettings, scenario: str, diag_extra=None) -> BankAssessment:
+    """Penetration, duty and limits of every step of one bank.
+
+    Parameters
+    ----------
+    case : Case
+        Validated case (settings, loads).
+    arr : NetworkArrays
+        Network of the scenario [pu].
+    bank : BankModel
+        The bank (see :class:`resonance.assessment.study.BankModel`).
+    inj : Injection
+        Harmonic excitation.
+    vm_steps : ndarray, shape (N,)
+        Fundamental bus voltage at the bank for each step, from the load flow [pu].
+    pcc : int
+        Model bus of the point of common coupling [unitless].
+    sc_mva_pcc : float
+        Short-circuit power at the PCC (physical) [MVA].
+    settings : ModelSettings
+        Element models.
+    scenario : str
+        "nominal" or "weak".
+    diag_extra : ndarray, optional
+        Other banks in service [pu].
+
+    Returns
+    -------
+    BankAssessment
+    """
+    st = case.study
+    base = arr.base_mva
+    n = bank.n_steps
+    b = bank.step_b_pu(base)
+    xc = 1.0 / b
+    h = inj.h.astype(float)
+    rows = np.unique(np.array([bank.index, pcc], int)) if arr.n_bus > 300 else None
+    if h.size:
+        y = bank.step_admittance(h, base)
+        pen = penetrate(arr, inj, bank.index, y, xc, settings, st.summation, rows=rows, diag_extra=diag_extra)
+        rws = pen.rows
+        kb = int(np.nonzero(rws == bank.index)[0][0])
+        kp = int(np.nonzero(rws == pcc)[0][0])
+        v_bank = pen.v_bus_pu[:, :, kb]  # (N+1, n_h)
+        v_pcc = pen.v_bus_pu[:, :, kp]
+    else:
+        pen = PenetrationResult(h, np.array([bank.index, pcc]), np.zeros((n + 1, 0, 2)), np.zeros((n, 0)),
+                                np.zeros((n, 0)), np.zeros((n + 1, 0)))
+        v_bank = np.zeros((n + 1, 0))
+        v_pcc = np.zeros((n + 1, 0))
+    lim = duty_limits(st.duty_limits, file=case.source_file)
+    # capacitor voltage per unit of its own rating; fundamental across the capacitor is V/(1-p)
+    kv_ratio = bank.bus_kv / bank.rated_kv
+    v1_cap = vm_steps / (1.0 - bank.p) * kv_ratio
+    v_cap = np.concatenate([v1_cap[:, None], pen.v_cap_pu * kv_ratio], axis=1)
+    hh = np.concatenate([[1.0], h])
+    duty = capacitor_duty(hh, v_cap, lim)
+    v_kv_pcc = float(arr.bus_kv[pcc])
+    vlim = ieee519_voltage_limits(v_kv_pcc, st.ieee519_edition, file=case.source_file)
+    i_base_pcc = base * 1000.0 / (math.sqrt(3) * v_kv_pcc)  # [A]
+    i_base_bank = base * 1000.0 / (math.sqrt(3) * bank.bus_kv)
+    i_l, il_basis = demand_current_a(case, v_kv_pcc, arr)
+    i_sc = sc_mva_pcc * 1000.0 / (math.sqrt(3) * v_kv_pcc)
+    ratio = i_sc / i_l if i_l > 0 else float("inf")
+    clim = ieee519_current_limits(ratio if math.isfinite(ratio) else 1e9, h if h.size else np.array([5.0]),
+                                  st.ieee519_edition, file=case.source_file)
+    i1_bank = vm_steps * b / (1.0 - bank.p)  # [pu]
+    # the same quantities with the bank (all of its steps) out of service: row 0 of the penetration
+    vp_off = v_pcc[0]
+    thd_p_off = 100.0 * float(np.sqrt(np.sum(vp_off**2)))
+    i_off_a = pen.i_supply_local_pu[0] * i_base_pcc if h.size else np.zeros(0)
+    ind_off_pct = 100.0 * i_off_a / i_l if (h.size and i_l > 0) else np.zeros(h.size)
+    tdd_off = 100.0 * float(np.sqrt(np.sum(i_off_a**2))) / i_l if i_l > 0 else 0.0
+    steps = []
+    for s in range(n):
+        f: dict = {}
+        vb = v_bank[s + 1]
+        vp = v_pcc[s + 1]
+        thd_b = 100.0 * float(np.sqrt(np.sum(vb**2)))
+        thd_p = 100.0 * float(np.sqrt(np.sum(vp**2)))
+        worst_ind = float(np.max(vp) * 100.0) if vp.size else 0.0
+        i_sup_a = pen.i_supply_local_pu[s + 1] * i_base_pcc if h.size else np.zeros(0)
+        tdd = 100.0 * float(np.sqrt(np.sum(i_sup_a**2))) / i_l if i_l > 0 else 0.0
+        if h.size:
+            ind_pct = 100.0 * i_sup_a / i_l if i_l > 0 else np.zeros_like(i_sup_a)
+            i_margin = np.where(clim.limited, clim.individual_pct - ind_pct, np.inf)
+            worst_i = float(np.min(i_margin)) if np.any(clim.limited) else float("inf")
+        else:
+            ind_pct = np.zeros(0)
+            worst_i = float("inf")
+        ib = pen.i_bank_pu[s] * i_base_bank if h.size else np.zeros(0)
+        i_rms_a = float(math.sqrt((i1_bank[s] * i_base_bank) ** 2 + float(np.sum(ib**2))))
+        v_ok = thd_p <= vlim.thd_pct and worst_ind <= vlim.individual_pct
+        i_ok = tdd <= clim.tdd_pct and worst_i >= 0
+        f.update({
+            "thd_v_pct": round(thd_b, 4),
+            "cap_v_rms_pct": round(float(duty.v_rms_pct[s]), 3),
+            "cap_v_peak_pct": round(float(duty.v_peak_pct[s]), 3),
+            "cap_i_rms_pct": round(float(duty.i_rms_pct[s]), 3),
+            "cap_kvar_pct": round(float(duty.kvar_pct[s]), 3),
+            "duty_ok": bool(duty.ok[s]),
+            "duty_margins_pct": {
+                "v_rms": round(float(duty.v_rms_margin_pct[s]), 3), "v_peak": round(float(duty.v_peak_margin_pct[s]), 3),
+                "i_rms": round(float(duty.i_rms_margin_pct[s]), 3), "kvar": round(float(duty.kvar_margin_pct[s]), 3)},
+            "duty_governing": str(duty.governing[s]),
+            "cap_v1_pct": round(float(v1_cap[s]) * 100.0, 3),
+            "bank_i_rms_a": round(i_rms_a, 3),
+            "thd_v_pcc_pct": round(thd_p, 4),
+            "v_h_max_pcc_pct": round(worst_ind, 4),
+            "tdd_pct": round(tdd, 4),
+            "pcc_voltage_ok": bool(v_ok),
+            "pcc_current_ok": bool(i_ok),
+            "harmonics": [
+                {"h": int(hh_), "v_bank_pct": round(float(vb[j]) * 100, 4), "v_pcc_pct": round(float(vp[j]) * 100, 4),
+                 "v_cap_pct": round(float(v_cap[s, j + 1]) * 100, 4), "i_bank_a": round(float(ib[j]), 4),
+                 "i_supply_a": round(float(i_sup_a[j]), 4), "i_supply_pct_of_il": round(float(ind_pct[j]), 4),
+                 "i_limit_pct_of_il": (round(float(clim.individual_pct[j]), 3) if clim.limited[j] else None)}
+                for j, hh_ in enumerate(h.astype(int))],
+        })
+        finds = []
+        tag = f"bank {bank.name} step {s + 1} ({scenario} supply)"
+        for g, vals, limv in (("v_rms", duty.v_rms_pct, lim.v_rms), ("v_peak", duty.v_peak_pct, lim.v_peak),
+                              ("i_rms", duty.i_rms_pct, lim.i_rms), ("kvar", duty.kvar_pct, lim.q)):
+            val, limp = float(vals[s]), float(limv) * 100.0
+            if val > limp:  # each quantity beyond its limit is a finding of its own
+                finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": f"duty_{g}",
+                              "value": round(val, 2), "limit": round(limp, 2), "unit": "% of rating",
+                              "source": lim.citation, "cause": "bank",
+                              "message": f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
+                                         f"{lim.name} limit {limp:.0f} %"})
+        if thd_p > vlim.thd_pct:
+            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_thd_v",
+                          "value": round(thd_p, 3), "limit": vlim.thd_pct, "unit": "% of nominal voltage",
+                          "source": vlim.source, "value_bank_off": round(thd_p_off, 3),
+                          "cause": distortion_cause(thd_p, thd_p_off, vlim.thd_pct),
+                          "message": f"{tag}: voltage THD at the PCC {thd_p:.2f} % exceeds the IEEE 519 limit "
+                                     f"{vlim.thd_pct:g} %"})
+        if worst_ind > vlim.individual_pct:
+            jw = int(np.argmax(vp))
+            hw = int(h[jw])
+            off_w = 100.0 * float(vp_off[jw])
+            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_v_individual",
+                          "value": round(worst_ind, 3), "limit": vlim.individual_pct, "order": hw,
+                          "unit": "% of nominal voltage", "source": vlim.source, "value_bank_off": round(off_w, 3),
+                          "cause": distortion_cause(worst_ind, off_w, vlim.individual_pct),
+                          "message": f"{tag}: harmonic {hw} voltage at the PCC {worst_ind:.2f} % exceeds the "
+                                     f"IEEE 519 individual limit {vlim.individual_pct:g} %"})
+        if tdd > clim.tdd_pct:
+            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_tdd",
+                          "value": round(tdd, 3), "limit": clim.tdd_pct, "unit": "% of I_L", "source": clim.source,
+                          "value_bank_off": round(tdd_off, 3), "cause": distortion_cause(tdd, tdd_off, clim.tdd_pct),
+                          "message": f"{tag}: TDD at the PCC {tdd:.2f} % exceeds the IEEE 519 limit {clim.tdd_pct:g} % "
+                                     f"(Isc/IL = {ratio:.0f})"})
+        if worst_i < 0:
+            j = int(np.argmin(np.where(clim.limited, clim.individual_pct - ind_pct, np.inf)))
+            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_i_individual",
+                          "value": round(float(ind_pct[j]), 3), "limit": float(clim.individual_pct[j]),
+                          "order": int(h[j]), "unit": "% of I_L", "source": clim.source,
+                          "value_bank_off": round(float(ind_off_pct[j]), 3),
+                          "cause": distortion_cause(float(ind_pct[j]), float(ind_off_pct[j]),
+                                                    float(clim.individual_pct[j])),
+                          "message": f"{tag}: harmonic {int(h[j])} current at the PCC {ind_pct[j]:.2f} % of I_L "
+                                     f"exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"})
+        steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
+    off = {"thd_v_pct": round(100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))), 4),
+           "thd_v_pcc_pct": round(thd_p_off, 4), "tdd_pct": round(tdd_off, 4)}
+    info = {"pcc_v_limits": {"individual_pct": vlim.individual_pct, "thd_pct": vlim.thd_pct, "source": vlim.source},
+            "pcc_i_limits": {"row": clim.row, "tdd_pct": clim.tdd_pct, "source": clim.source,
+                             "isc_over_il": round(ratio, 2) if math.isfinite(ratio) else None,
+                             "i_l_a": round(i_l, 3), "i_l_basis": il_basis, "i_sc_a": round(i_sc, 2)},
+            "duty_limits": {"name": lim.name, "citation": lim.citation, "v_rms_pct": round(lim.v_rms * 100, 6),
+                            "v_peak_pct": round(lim.v_peak * 100, 6), "i_rms_pct": round(lim.i_rms * 100, 6),
+                            "kvar_pct": round(lim.q * 100, 6)},
+            "orders": [int(x) for x in h]}
+    return BankAssessment(bank=bank.name, scenario=scenario, steps=tuple(steps), bank_off=off, pen=pen, info=info)

@@ -1,0 +1,594 @@
+"""Orchestrator: case -> plant model -> scans of every bank step -> StudyResult.
+
+Pure apart from the pandapower calls made through :mod:`resonance.model.netmodel`
+(load flow, IEC 60909): no files, no printing, no plotting.
+"""
+
+from __future__ import annotations
+
+import weakref
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from resonance.model.admittance import YPattern, bank_step_admittance, bank_step_admittance_dh
+from resonance.inputs.case import Case
+from resonance.errors import InputError, InputProblem, ModelError
+from resonance.model.network import NetworkArrays
+from resonance.harmonics.scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, impedance_columns_dh,
+                   refine_peaks)
+from resonance.harmonics.screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
+
+__all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models", "iec60909_cross_check",
+           "iec60909_job", "with_cross_check", "bus_short_circuit"]
+
+
+@dataclass(frozen=True, eq=False)
+class BankModel:
+    """A bank as the core sees it.
+
+    Attributes
+    ----------
+    name, bus : str
+        Bank and bus names.
+    index : int
+        Model bus index [unitless].
+    bus_kv, rated_kv : float
+        Bus nominal and capacitor rated voltage [kV].
+    stages_kvar : ndarray
+        Stage sizes at rated voltage [kvar].
+    p : float
+        Detuning factor X_L/X_C [unitless] (0: plain bank).
+    reactor_q : float
+        Reactor X/R [unitless].
+    """
+
+    name: str
+    bus: str
+    index: int
+    bus_kv: float
+    rated_kv: float
+    stages_kvar: np.ndarray
+    p: float
+    reactor_q: float
+
+    @property
+    def n_steps(self) -> int:
+        """Number of steps [unitless]."""
+        return int(self.stages_kvar.size)
+
+    def q_cap_nominal_kvar(self) -> np.ndarray:
+        """Cumulative capacitor kvar of steps 1..N at the bus nominal voltage [kvar].
+
+        Notes
+        -----
+        ``Q = Q_rated (U_n / U_R)^2`` (constant capacitance).
+        """
+        return np.cumsum(self.stages_kvar) * (self.bus_kv / self.rated_kv) ** 2
+
+    def step_b_pu(self, base_mva: float) -> np.ndarray:
+        """Capacitor susceptance ``1/X_C`` of steps 1..N at the fundamental [pu]."""
+        return self.q_cap_nominal_kvar() / 1000.0 / base_mva
+
+    def step_admittance(self, h: np.ndarray, base_mva: float) -> np.ndarray:
+        """Admittance of steps 1..N at orders h, shape (n_h, N) [pu]."""
+        return bank_step_admittance(h, self.step_b_pu(base_mva), self.p, self.reactor_q)
+
+
+class _StepAdmittance:
+    """``f(h) -> Y`` of a bank's steps [pu], with ``f.dh(h) -> dY/dh`` [pu] (for scan.step_peaks)."""
+
+    def __init__(self, bank: "BankModel", base_mva: float):
+        self._b = bank.step_b_pu(base_mva)
+        self._p, self._q = bank.p, bank.reactor_q
+        self._last = (None, None)  # (grid, Y): the study's base grid is asked for more than once
+
+    def __call__(self, h: np.ndarray) -> np.ndarray:
+        if self._last[0] is h:
+            return self._last[1]
+        y = bank_step_admittance(h, self._b, self._p, self._q)
+        if h.size > 64:
+            y.flags.writeable = False
+            self._last = (h, y)
+        return y
+
+    def dh(self, h: np.ndarray) -> np.ndarray:
+        return bank_step_admittance_dh(h, self._b, self._p, self._q)
+
+
+def bank_models(case: Case, arr: NetworkArrays, model_bus: dict) -> list[BankModel]:
+    """Bank models for every bank of the case [see :class:`BankModel`]."""
+    out = []
+    for b in case.bank:
+        m = model_bus[b.bus]
+        out.append(BankModel(name=b.name, bus=b.bus, index=m, bus_kv=float(arr.bus_kv[m]), rated_kv=b.rated_kv,
+                             stages_kvar=np.asarray(b.steps_kvar, float),
+                             p=(b.detuning_pct or 0.0) / 100.0, reactor_q=b.reactor_q))
+    return out
+
+
+@dataclass(frozen=True, eq=False)
+class StepScan:
+    """Screening result of one step of one bank in one supply scenario.
+
+    Units: kvar [kvar], voltages [pu], orders [unitless], impedance [ohm], margin [%].
+    """
+
+    step: int
+    kvar_nameplate: float
+    kvar_nominal: float
+    kvar_delivered: float
+    v_bus_pu: float
+    h_estimate: float
+    h_scan: float | None
+    z_peak_ohm: float | None
+    peaks: tuple
+    nearest_order: int | None
+    nearest_kind: str | None
+    margin_pct: float | None
+    resonance_ok: bool
+    damping_sensitive: bool
+
+
+@dataclass(frozen=True, eq=False)
+class BankScan:
+    """All steps of one bank in one supply scenario, with the scan curves.
+
+    Attributes
+    ----------
+    scenario : str
+        "nominal" or "weak".
+    sc_mva : float
+        Physical (c = 1) short-circuit power at the bank bus, loads excluded [MVA].
+    x_r : float
+        X/R of the Thevenin impedance at the bank bus [unitless].
+    h : ndarray, shape (n_h,)
+        Scan orders [unitless].
+    z_ohm : ndarray, shape (N + 1, n_h)
+        Driving-point impedance magnitude at the bank bus, row 0 bank off [ohm].
+    z_pcc_ohm : ndarray, shape (N + 1, n_h)
+        Driving-point impedance magnitude at the PCC bus [ohm].
+    steps : tuple of StepScan
+    """
+
+    bank: BankModel
+    scenario: str
+    sc_mva: float
+    x_r: float
+    h: np.ndarray
+    z_ohm: np.ndarray
+    z_pcc_ohm: np.ndarray
+    steps: tuple
+
+
+@dataclass(frozen=True, eq=False)
+class StudyResult:
+    """Everything the study found; the edge writes it out."""
+
+    case: Case
+    orders: HarmonicOrders
+    scans: tuple
+    sc_mva_iec60909: dict
+    pcc_bus: str
+    settings: ModelSettings
+    findings: tuple
+    warnings: tuple = field(default_factory=tuple)
+    extras: dict = field(default_factory=dict)
+    assessments: tuple = field(default_factory=tuple)
+    sc_mva_pcc: float = float("nan")
+
+    def assessment_for(self, bank: str, scenario: str = "nominal"):
+        """Penetration and duty of one bank in one scenario (None if absent)."""
+        for a in self.assessments:
+            if a.bank == bank and a.scenario == scenario:
+                return a
+        return None
+
+    @property
+    def passed(self) -> bool:
+        """True when no finding is the bank's (:func:`resonance.assessment.verdict.bank_findings`)."""
+        from resonance.assessment.verdict import bank_findings  # noqa: PLC0415
+
+        return not bank_findings(self.findings)
+
+    def scans_for(self, bank: str, scenario: str = "nominal") -> BankScan | None:
+        """The scan of one bank in one scenario (None if absent)."""
+        for s in self.scans:
+            if s.bank.name == bank and s.scenario == scenario:
+                return s
+        return None
+
+
+#: network -> the same network without loads (weak keys: dropped with the network)
+_NO_LOADS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) -> np.ndarray:
+    """Driving-point impedance at the fundamental, loads excluded (short-circuit impedance).
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    buses : ndarray of int
+        Buses [unitless].
+    settings : ModelSettings
+        Element models (the resistance model matters little at h = 1).
+
+    Returns
+    -------
+    ndarray, complex
+        ``Z_kk(1)`` [pu].
+
+    References
+    ----------
+    IEC 60909-0:2016, clause 4.2 (short-circuit impedance at the fault
+    location, here with c = 1 and no correction factors).
+    """
+    buses = np.asarray(buses, int)
+    bare = _NO_LOADS.get(arr)
+    if bare is None:  # one load-free copy per network, so its solver set-up is reused
+        bare = _NO_LOADS[arr] = arr.without_loads()
+    z = impedance_columns(bare, np.array([1.0]), buses,
+                          ModelSettings(settings.r_model, "none"), rows=buses)
+    return np.diagonal(z[0])
+
+
+def bus_short_circuit(arr: NetworkArrays, bus: int, settings: ModelSettings) -> tuple[float, float]:
+    """Short-circuit power [MVA] and X/R [unitless] at a model bus, from the Thevenin impedance.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    bus : int
+        Model bus [unitless].
+    settings : ModelSettings
+        Element models.
+
+    Returns
+    -------
+    (float, float)
+        ``S_sc = S_base / |Z_th|`` [MVA] and ``X_th / R_th`` [unitless], with ``Z_th`` from
+        :func:`thevenin_pu` (no loads, no banks).
+
+    References
+    ----------
+    IEC 60909-0:2016, clause 4.2 (as :func:`thevenin_pu`, with c = 1).
+    """
+    zt = thevenin_pu(arr, np.array([bus]), settings)[0]
+    return float(arr.base_mva / abs(zt)), (float(zt.imag / zt.real) if zt.real > 0 else float("inf"))
+
+
+def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], other_mode: str, pcc: int,
+               h: np.ndarray, settings: ModelSettings, orders: HarmonicOrders, margin_pct: float,
+               vm_steps: np.ndarray, scenario: str, pattern: YPattern, h_step: float) -> BankScan:
+    base = arr.base_mva
+    cols = np.unique(np.array([bank.index, pcc], int))
+    kc = int(np.nonzero(cols == bank.index)[0][0])
+    pc = int(np.nonzero(cols == pcc)[0][0])
+
+    def extra(hh: np.ndarray) -> np.ndarray | None:
+        if other_mode != "full" or not others:
+            return None
+        d = np.zeros((hh.size, arr.n_bus), complex)
+        for ob in others:
+            d[:, ob.index] += ob.step_admittance(hh, base)[:, -1]
+        return d
+
+    z0, dz0 = _bank_off_columns(arr, h, cols, settings, extra, pattern)
+    step_y = _StepAdmittance(bank, base)
+    ys = step_y(h)  # (n_h, N)
+    # Sherman-Morrison (scan.step_update) for the two diagonal entries used:
+    # Z'_ij = Z_ij - Z_ik g Z_kj with g = y / (1 + y Z_kk)
+    g = ys / (1.0 + ys * z0[:, kc, kc][:, None])  # (n_h, N)
+    zs_kk = z0[:, kc, kc][:, None] - g * (z0[:, kc, kc] ** 2)[:, None]
+    zs_pp = z0[:, pc, pc][:, None] - g * (z0[:, pc, kc] * z0[:, kc, pc])[:, None]
+    zkk = np.concatenate([z0[:, None, kc, kc], zs_kk], axis=1).T  # (N+1, n_h)
+    zpp = np.concatenate([z0[:, None, pc, pc], zs_pp], axis=1).T
+    zb_k = bank.bus_kv**2 / base
+    zb_p = float(arr.bus_kv[pcc]) ** 2 / base
+    sc_mva, x_r = bus_short_circuit(arr, bank.index, settings)
+    q_nom = bank.q_cap_nominal_kvar()
+    if not _ADAPTIVE_PEAKS:
+        # peaks of the uniform grid, each refined on finer local grids (all in one batch)
+        peaks_idx = find_peaks(h, np.abs(zkk[1:]))
+        flat_h, flat_step = [], []
+        for s, idx in enumerate(peaks_idx):
+            flat_h += list(h[idx])
+            flat_step += [s] * idx.size
+        flat_h_arr = np.array(flat_h, float)
+        flat_step_arr = np.array(flat_step, int)
+
+        def fun(hh: np.ndarray, which: np.ndarray) -> np.ndarray:
+            z = impedance_columns(arr, hh, np.array([bank.index]), settings, extra(hh),
+                                  rows=np.array([bank.index]), pattern=pattern)[:, 0, 0]
+            y = bank.step_admittance(hh, base)[np.arange(hh.size), flat_step_arr[which]]
+            return np.abs(z / (1.0 + y * z))
+
+        h_ref, z_ref = refine_peaks(fun, flat_h_arr, h_step)
+    else:
+        # adaptive grid (resonance.harmonics.grid): brackets every local maximum, even one narrower than the
+        # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
+        from resonance.harmonics.scan import step_peaks  # noqa: PLC0415
+
+        spk = step_peaks(arr, bank.index, step_y, h, settings,
+                         extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
+        hs_, zs_, st_ = [], [], []
+        for s in range(bank.n_steps):
+            hp, zp = np.asarray(spk.h_peak[s + 1], float), np.asarray(spk.z_peak[s + 1], float)
+            keep = _prominent(spk.scan, s + 1, hp, zp)
+            hs_ += list(hp[keep])
+            zs_ += list(zp[keep])
+            st_ += [s] * int(np.sum(keep))
+        h_ref, z_ref, flat_step_arr = np.array(hs_, float), np.array(zs_, float), np.array(st_, int)
+    steps = []
+    for s in range(bank.n_steps):
+        sel = flat_step_arr == s
+        hp, zp = h_ref[sel], z_ref[sel]
+        # amplification against the bank-off impedance picks the bank's own resonance
+        z_off = np.interp(hp, h, np.abs(zkk[0])) if hp.size else hp
+        amp = zp / np.maximum(z_off, 1e-300)
+        peaks = tuple((float(a), float(b * zb_k), float(c)) for a, b, c in zip(hp, zp, amp))
+        if hp.size:
+            j = int(np.argmax(amp))
+            h_scan, z_pk = float(hp[j]), float(zp[j] * zb_k)
+            near, kind, margin = nearest_order(h_scan, orders)
+            ok = margin is None or abs(margin) > margin_pct
+            sensitive = bool(amp[j] > 10.0)
+        else:
+            h_scan = z_pk = None
+            near = kind = margin = None
+            ok, sensitive = True, False
+        vm = float(vm_steps[s])
+        factor = 1.0 / (1.0 - bank.p)
+        steps.append(StepScan(
+            step=s + 1, kvar_nameplate=float(np.sum(bank.stages_kvar[: s + 1])),
+            kvar_nominal=float(q_nom[s] * factor), kvar_delivered=float(q_nom[s] * factor * vm**2),
+            v_bus_pu=vm, h_estimate=h_estimate(sc_mva * 1000.0, float(q_nom[s]), bank.p),
+            h_scan=h_scan, z_peak_ohm=z_pk, peaks=peaks, nearest_order=near, nearest_kind=kind,
+            margin_pct=margin, resonance_ok=ok, damping_sensitive=sensitive))
+    return BankScan(bank=bank, scenario=scenario, sc_mva=float(sc_mva), x_r=float(x_r), h=h,
+                    z_ohm=np.abs(zkk) * zb_k, z_pcc_ohm=np.abs(zpp) * zb_p, steps=tuple(steps))
+
+
+#: network -> {(grid, buses, models): (Z, dZ/dh)} of bank-off scans without other banks in service,
+#: shared by the re-checks of detuned variants (the network is the same, only the bank differs)
+_BANK_OFF: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, settings: ModelSettings, extra,
+                      pattern: YPattern) -> tuple[np.ndarray, np.ndarray]:
+    """Bank-off ``Z[:, cols, cols]`` and ``dZ/dh`` on the grid ``h`` [pu] (read-only arrays)."""
+    de = extra(h)
+    key = None
+    if de is None:
+        key = (h.size, h.tobytes(), tuple(int(c) for c in cols), settings)
+        hit = _BANK_OFF.get(arr, {}).get(key)
+        if hit is not None:
+            return hit
+    de_dh = None
+    if de is not None:
+        eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
+        de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
+    try:
+        # with dZ/dh: the same solve seeds the adaptive peak search (scan.step_peaks)
+        z0, dz0 = impedance_columns_dh(arr, h, cols, settings, de, rows=cols, pattern=pattern,
+                                       diag_extra_dh=de_dh)
+    except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
+        raise ModelError(f"network admittance is singular ({e})") from None
+    if key is not None:
+        z0.flags.writeable = False
+        dz0.flags.writeable = False
+        _BANK_OFF.setdefault(arr, {})[key] = (z0, dz0)
+    return z0, dz0
+
+
+#: find peaks on the adaptive grid of resonance.harmonics.grid (True) or the uniform grid only (False)
+_ADAPTIVE_PEAKS = True
+
+
+def _prominent(scan, row: int, hp: np.ndarray, zp: np.ndarray, min_rel: float = 0.02) -> np.ndarray:
+    """Peaks standing at least ``min_rel`` above the higher of the minima that bound them."""
+    h = np.asarray(scan.h, float)
+    z = np.abs(np.asarray(scan.z[row] if hasattr(scan, "z") else scan.z_pu[row]))
+    keep = np.ones(hp.size, bool)
+    for i, (a, b) in enumerate(zip(hp, zp)):
+        left = z[h < a]
+        right = z[h > a]
+        # minima between this peak and the neighbouring higher ground (or the range ends)
+        lo_l = left[::-1][: np.argmax(left[::-1] > b) or left.size].min() if left.size else b
+        lo_r = right[: np.argmax(right > b) or right.size].min() if right.size else b
+        keep[i] = b >= (1.0 + min_rel) * max(lo_l, lo_r)
+    return keep
+
+
+def _source_orders(case: Case) -> tuple[list[tuple[str, dict, int]], list[InputProblem]]:
+    """Resolved spectra of every harmonic source: (name, {order: pct}, pulse)."""
+    out, probs = [], []
+    for i, hs in enumerate(case.harmonic_source):
+        from resonance.standards.spectra import resolve_spectrum  # noqa: PLC0415
+
+        try:
+            sp_ = resolve_spectrum(hs.spectrum, file=case.source_file, field=f"harmonic_source[{i}].spectrum",
+                                   phase_deg=hs.phase_deg or None)
+        except InputError as e:
+            probs += e.problems
+            continue
+        out.append((hs.name, dict(zip((int(x) for x in sp_.h), (float(x) for x in sp_.pct))),
+                    int(sp_.pulse_number or 6)))
+    return out, probs
+
+
+def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
+    """Run the screening study of a case.
+
+    Parameters
+    ----------
+    case : Case
+        Validated case.
+    model : PlantModel, optional
+        Pre-built plant model (built from the case when None).
+    cross_check : bool
+        Run the IEC 60909 short-circuit cross-check (pandapower); without it
+        ``sc_mva_iec60909`` is empty (the detuning re-checks do not report it).
+
+    Returns
+    -------
+    StudyResult
+        Scans, steps and findings of every bank (nominal and weak supply).
+
+    Raises
+    ------
+    InputError
+        Inputs that are valid by schema but unusable (unknown spectrum names,
+        a network file that does not fit).
+    """
+    from resonance.model import netmodel  # noqa: PLC0415  (pandapower is imported only here)
+
+    sources, probs = _source_orders(case)
+    if probs:
+        raise InputError(probs)
+    if model is None:
+        model = netmodel.build_model(case)
+    arr = model.arrays
+    st = case.study
+    settings = ModelSettings(st.resistance_model, st.load_model)
+    banks = bank_models(case, arr, model.model_bus)
+    pcc_name = case.study.pcc_bus or model.supply_bus
+    pcc = model.model_bus[pcc_name]
+    background = dict(case.supply.background_pct) if case.supply else {}
+    orders = orders_of_concern(sources, background, st.h_max)
+    h = harmonic_grid(st.h_max, st.h_step)
+    pattern = YPattern.build(arr)
+    # likely input mistakes (case.case_hints) travel with the results
+    warnings_: list[str] = [f"input {hint.field}: {hint.problem}" for hint in case.hints]
+    # fundamental voltage of every step from a load flow with that step in service
+    vm: dict[tuple[str, str], np.ndarray] = {}
+    full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
+    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
+        if a is None:
+            continue
+        buses = {b.name: b.bus for b in banks}
+        for b in banks:
+            base_q = {o.name: full[o.name] for o in banks if o is not b} if st.other_banks == "full" else {}
+            v = np.ones(b.n_steps)
+            for s in range(b.n_steps):
+                q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
+                try:
+                    v[s] = model.bank_voltages(buses, {**base_q, b.name: q}, weak=(scenario == "weak"))[b.index]
+                except ModelError as e:
+                    warnings_.append(f"bank {b.name} step {s + 1} ({scenario}): {e}; nominal voltage assumed")
+            vm[(b.name, scenario)] = v
+    scans = []
+    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
+        if a is None:
+            continue
+        for b in banks:
+            others = [o for o in banks if o is not b]
+            scans.append(_scan_bank(a, b, others, st.other_banks, pcc, h, settings, orders, st.margin_pct,
+                                    vm[(b.name, scenario)], scenario, pattern, st.h_step))
+    # penetration, capacitor duty and distortion limits of every step
+    from resonance.assessment.assess import assess_bank, build_injection  # noqa: PLC0415
+
+    assessments = []
+    sc_pcc = float("nan")
+    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
+        if a is None:
+            continue
+        inj = build_injection(case, a, model.model_bus)
+        s_pcc = bus_short_circuit(a, pcc, settings)[0]
+        if scenario == "nominal":
+            sc_pcc = float(s_pcc)
+        for b in banks:
+            others = [o for o in banks if o is not b]
+            extra = None
+            if st.other_banks == "full" and others and inj.h.size:
+                extra = np.zeros((inj.h.size, a.n_bus), complex)
+                for ob in others:
+                    extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]
+            assessments.append(assess_bank(case, a, b, inj, vm[(b.name, scenario)], pcc, float(s_pcc), settings, scenario,
+                                           diag_extra=extra))
+    findings = []
+    for sc in scans:
+        for s in sc.steps:
+            if not s.resonance_ok:
+                findings.append({
+                    "bank": sc.bank.name, "step": s.step, "scenario": sc.scenario, "check": "resonance",
+                    "value": s.h_scan, "limit": st.margin_pct, "unit": "harmonic order (limit: % margin)",
+                    "source": "screening margin of the case ([study] margin_pct; common practice)", "cause": "bank",
+                    "message": (f"bank {sc.bank.name} step {s.step} ({sc.scenario} supply): resonance at "
+                                f"h = {s.h_scan:.2f} is {abs(s.margin_pct):.1f} % from the {s.nearest_kind} "
+                                f"order {s.nearest_order} (screening margin {st.margin_pct:g} %)"),
+                })
+            if s.damping_sensitive and s.h_scan is not None:
+                warnings_.append(f"bank {sc.bank.name} step {s.step} ({sc.scenario}): peak at h = {s.h_scan:.2f} "
+                                 "is lightly damped; harmonic voltages there depend strongly on the load model")
+        asm = next((x for x in assessments if x.bank == sc.bank.name and x.scenario == sc.scenario), None)
+        if asm is not None:
+            for sd in asm.steps:
+                findings.extend(sd.findings)
+        if sc.steps and sc.steps[0].h_scan is None:
+            warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
+    from resonance.design.detuning import detuned_bank_findings  # noqa: PLC0415 - the proposals' own tuning rule
+
+    findings.extend(detuned_bank_findings(case, sources, orders.characteristic, scans))
+    res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
+                       settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
+                       extras={"model": model, "sources": sources}, assessments=tuple(assessments),
+                       sc_mva_pcc=sc_pcc)
+    return with_cross_check(res, case, model) if cross_check else res
+
+
+def iec60909_cross_check(case: Case, model) -> dict:
+    """IEC 60909 short-circuit power at the bank buses and the PCC (memoised on the model).
+
+    Parameters
+    ----------
+    case : Case
+        Validated case.
+    model : PlantModel
+        Its plant model.
+
+    Returns
+    -------
+    dict
+        Bus name -> S_k'' [MVA] (:func:`resonance.model.netmodel.iec60909_sc_mva`,
+        pandapower's IEC 60909-0 module).
+
+    Raises
+    ------
+    Exception
+        Whatever pandapower raises when the cross-check cannot run;
+        :func:`with_cross_check` turns it into a warning.
+    """
+    key, value = iec60909_job(case, model)
+    model.cache.setdefault(key, value)
+    return dict(model.cache[key])
+
+
+def iec60909_job(case: Case, model) -> tuple:
+    """``(memo key, {bus: S_k'' [MVA]})`` of :func:`iec60909_cross_check`, for another process.
+
+    Reads the memo on ``model.cache`` when it is there; the process that owns the model
+    stores the pair with ``model.cache.setdefault(key, value)``.
+    """
+    from resonance.model import netmodel  # noqa: PLC0415
+
+    key = ("iec60909", tuple(sorted({b.bus for b in case.bank} | {case.study.pcc_bus or model.supply_bus})))
+    if key in model.cache:
+        return key, dict(model.cache[key])
+    return key, netmodel.iec60909_sc_mva(model, list(key[1]))
+
+
+def with_cross_check(res: StudyResult, case: Case, model) -> StudyResult:
+    """The study with its IEC 60909 figures [MVA] (:func:`iec60909_cross_check`), or with a
+    warning where the cross-check cannot run (a failed cross-check is reported, not fatal)."""
+    import dataclasses  # noqa: PLC0415
+
+    try:
+        sc_iec = iec60909_cross_check(case, model)
+    except Exception as e:  # noqa: BLE001 - pandapower's own errors
+        return dataclasses.replace(res, sc_mva_iec60909={}, warnings=res.warnings + (
+            f"IEC 60909 cross-check not available ({type(e).__name__})",))
+    return dataclasses.replace(res, sc_mva_iec60909=sc_iec)

@@ -1,0 +1,76 @@
+"""The one judge: whose a finding is, and whether a bank passes.
+
+Numeric core (plain data in, plain data out).  The assessment (:mod:`resonance.assessment.assess`) makes
+the findings; this module decides, for every consumer alike (the exit status, the detuning
+proposal, the report), which of them are the bank's.  Nothing else may decide "pass".
+
+A distortion finding (PCC voltage THD, an individual PCC harmonic voltage, TDD, an individual
+PCC harmonic current, a bus distortion) is the **bank's** when the quantity is within its
+limit with the bank off and beyond it with the step in, or beyond in both and the step makes
+it worse by more than the tolerance below; it is the **site's** when it is already beyond the
+limit with the bank off and the step does not make it worse.  Resonance, capacitor-duty and
+detuning-tuning findings are always the bank's.
+"""
+
+from __future__ import annotations
+
+__all__ = ["CAUSE_REL_TOL", "CAUSE_ABS_TOL_PCT", "BANK_CHECKS", "distortion_cause", "bank_findings",
+           "site_findings", "bank_passes"]
+
+#: A step "makes it worse" only when it raises the quantity by more than this fraction of its
+#: bank-off value [unitless] ...
+CAUSE_REL_TOL = 0.01
+#: ... plus this many percentage points [%] (rounding of the reported figures).  Project
+#: convention (a 1 % change is inside the accuracy of a screening model: common practice).
+CAUSE_ABS_TOL_PCT = 0.01
+
+#: checks whose findings are always the bank's (they exist only because of the bank)
+BANK_CHECKS = ("resonance", "duty_v_rms", "duty_v_peak", "duty_i_rms", "duty_kvar", "detuning_tuning")
+
+
+def distortion_cause(value_pct: float, value_off_pct: float, limit_pct: float) -> str:
+    """Whose a distortion excess is: ``"bank"`` or ``"site"``.
+
+    Parameters
+    ----------
+    value_pct : float
+        The quantity with the step in service (beyond ``limit_pct``) [%].
+    value_off_pct : float
+        The same quantity, same scenario, with the bank (all of its steps) out of service [%].
+    limit_pct : float
+        Its limit [%].
+
+    Returns
+    -------
+    str
+        ``"site"`` when ``value_off_pct > limit_pct`` and
+        ``value_pct <= value_off_pct * (1 + CAUSE_REL_TOL) + CAUSE_ABS_TOL_PCT``; else ``"bank"``
+        [unitless].
+
+    References
+    ----------
+    IEEE Std 519-2014, clause 5 (limits apply to the emission of the whole installation at the
+    PCC); the split into the bank's and the site's share is a project convention.
+    """
+    if value_off_pct > limit_pct and value_pct <= value_off_pct * (1.0 + CAUSE_REL_TOL) + CAUSE_ABS_TOL_PCT:
+        return "site"
+    return "bank"
+
+
+def _cause(f: dict) -> str:
+    return "bank" if f.get("check") in BANK_CHECKS else f.get("cause", "bank")
+
+
+def bank_findings(findings, bank: str | None = None) -> list[dict]:
+    """The findings that are the bank's (of one bank when ``bank`` is given) [unitless]."""
+    return [f for f in findings if _cause(f) == "bank" and (bank is None or f.get("bank") == bank)]
+
+
+def site_findings(findings) -> list[dict]:
+    """The findings that are the site's own distortion [unitless]."""
+    return [f for f in findings if _cause(f) == "site"]
+
+
+def bank_passes(findings, bank: str) -> bool:
+    """True when ``bank`` has no finding of its own in any step and scenario [unitless]."""
+    return not bank_findings(findings, bank)

@@ -1,0 +1,1 @@
+"""Design proposals: detuning, sizing, time in step, the recommended case file."""

@@ -1,0 +1,1 @@
+"""Harmonic scans and penetration: frequency grids, sparse engine, peaks, screening."""

@@ -1,0 +1,561 @@
+"""Frequency scans: impedance columns of Y(h)^-1 and every bank step by rank-one update.
+
+One solve of the step-free network per harmonic order serves every step of a
+bank: a step changes only its bus's diagonal by ``Y_s(h)``, so (Sherman-Morrison)
+
+    Z'_ij = Z_ij - Z_ik Y_s Z_kj / (1 + Y_s Z_kk).
+
+Peaks of the driving-point impedance are found on the grid and refined by
+re-evaluating the impedance on successively finer local grids.
+"""
+
+from __future__ import annotations
+
+import weakref
+from dataclasses import dataclass
+
+import numpy as np
+
+from resonance.model.admittance import YPattern
+from resonance.harmonics.engine import SparseEngine, sparse_columns
+from resonance.harmonics.grid import AdaptiveScan, adaptive_scan, peak_brackets, zoom_refine
+from resonance.model.network import NetworkArrays
+
+__all__ = [
+    "ModelSettings",
+    "harmonic_grid",
+    "impedance_columns",
+    "step_update",
+    "find_peaks",
+    "refine_peaks",
+    "DENSE_MAX_BUSES",
+    "impedance_columns_dh",
+    "sparse_engine",
+    "woodbury_update",
+    "driving_point_steps",
+    "step_peaks",
+    "StepPeaks",
+]
+
+#: networks up to this many buses use batched dense solves, larger ones sparse LU
+#: (crossover measured on this 2-core machine: docs/performance.md)
+DENSE_MAX_BUSES = 100
+
+
+@dataclass(frozen=True)
+class ModelSettings:
+    """Element-model settings for Y(h).
+
+    Attributes
+    ----------
+    r_model : str
+        Series-resistance frequency model (see :mod:`resonance.model.admittance`).
+    load_model : str
+        Linear-load damping model.
+    """
+
+    r_model: str = "constant"
+    load_model: str = "parallel_rl"
+
+
+def harmonic_grid(h_max: float, h_step: float, h_min: float = 1.0) -> np.ndarray:
+    """Uniform grid of harmonic orders from ``h_min`` to ``h_max`` inclusive.
+
+    Parameters
+    ----------
+    h_max, h_min : float
+        Range [unitless].
+    h_step : float
+        Resolution [unitless].
+
+    Returns
+    -------
+    ndarray
+        Orders [unitless].
+    """
+    n = int(round((h_max - h_min) / h_step)) + 1
+    return h_min + h_step * np.arange(n)
+
+
+def _nudge(h: np.ndarray) -> np.ndarray:
+    """Shift orders by a relative 1e-9 (used where a lossless network is exactly singular)."""
+    return h * (1.0 + 1e-9)
+
+
+#: engines built for a network, reused across calls (keyed by the arrays object itself)
+_ENGINES: "weakref.WeakKeyDictionary[NetworkArrays, dict]" = weakref.WeakKeyDictionary()
+
+
+def sparse_engine(arr: NetworkArrays, settings: ModelSettings = ModelSettings(),
+                  pattern: YPattern | None = None) -> SparseEngine:
+    """The sparse engine of a network (pattern, ordering, value map), built once and cached.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    settings : ModelSettings
+        Element models.
+    pattern : YPattern, optional
+        Precomputed pattern of ``arr``.
+
+    Returns
+    -------
+    SparseEngine
+        Engine for ``arr`` and ``settings`` [see :class:`resonance.harmonics.engine.SparseEngine`].
+    """
+    per_arr = _ENGINES.setdefault(arr, {})
+    eng = per_arr.get(settings)
+    if eng is None:
+        eng = SparseEngine.build(arr, settings.r_model, settings.load_model, pattern)
+        per_arr[settings] = eng
+    return eng
+
+
+def impedance_columns(
+    arr: NetworkArrays,
+    h: np.ndarray,
+    cols: np.ndarray,
+    settings: ModelSettings = ModelSettings(),
+    diag_extra: np.ndarray | None = None,
+    rows: np.ndarray | None = None,
+    pattern: YPattern | None = None,
+    *,
+    method: str = "auto",
+    workers: int | None = None,
+) -> np.ndarray:
+    """Columns of the bus impedance matrix ``Z(h) = Y(h)^-1``.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network [pu].
+    h : ndarray, shape (n_h,)
+        Harmonic orders [unitless].
+    cols : ndarray of int, shape (m,)
+        Buses whose columns are wanted (current injected there) [unitless].
+    settings : ModelSettings
+        Element models.
+    diag_extra : ndarray, shape (n_h, n), optional
+        Further admittance to ground per bus (banks in service) [pu].
+    rows : ndarray of int, optional
+        Keep only these rows (all when None) [unitless].
+    pattern : YPattern, optional
+        Precomputed sparsity pattern.
+    method : {"auto", "dense", "sparse"}
+        Solver; "auto" picks dense for ``n <= DENSE_MAX_BUSES`` [unitless].
+    workers : int, optional
+        Processes for the sparse path (default: the CPUs available) [unitless].
+
+    Returns
+    -------
+    ndarray, shape (n_h, len(rows) or n, m)
+        ``Z[:, rows, cols]`` [pu].
+
+    Notes
+    -----
+    ``Y(h) Z[:, cols] = E[:, cols]`` (unit injections).  Dense batched solves
+    (``numpy.linalg.solve`` over a stack of orders) for small networks; for
+    larger ones one sparse LU per order with the pattern, the fill-reducing
+    ordering and the value map computed once (:mod:`resonance.harmonics.engine`).
+    """
+    return _columns(arr, h, cols, settings, diag_extra, rows, pattern, method, workers, False, None)
+
+
+def impedance_columns_dh(
+    arr: NetworkArrays,
+    h: np.ndarray,
+    cols: np.ndarray,
+    settings: ModelSettings = ModelSettings(),
+    diag_extra: np.ndarray | None = None,
+    rows: np.ndarray | None = None,
+    pattern: YPattern | None = None,
+    *,
+    diag_extra_dh: np.ndarray | None = None,
+    method: str = "auto",
+    workers: int | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Impedance columns and their derivative with respect to the harmonic order.
+
+    Parameters
+    ----------
+    arr, h, cols, settings, diag_extra, rows, pattern, method, workers
+        As for :func:`impedance_columns`.
+    diag_extra_dh : ndarray, shape (n_h, n), optional
+        ``d(diag_extra)/dh`` [pu].
+
+    Returns
+    -------
+    (z, dz) : tuple of ndarray, each shape (n_h, len(rows) or n, m)
+        ``Z[:, rows, cols]`` [pu] and ``dZ/dh`` [pu].
+
+    Notes
+    -----
+    ``dZ/dh = -Z (dY/dh) Z`` (derivative of a matrix inverse); the rows come
+    from the transposed system ``Y^T W = E_rows``, so the same factorisation
+    serves both.
+
+    References
+    ----------
+    G. H. Golub, C. F. Van Loan, *Matrix Computations*, 4th ed., Johns Hopkins
+    2013, sec. 2.6 (perturbation of a matrix inverse).
+    """
+    return _columns(arr, h, cols, settings, diag_extra, rows, pattern, method, workers, True, diag_extra_dh)
+
+
+def _columns(arr, h, cols, settings, diag_extra, rows, pattern, method, workers, derivative, diag_extra_dh):
+    h = np.atleast_1d(np.asarray(h, float))
+    cols = np.asarray(cols, int)
+    n = arr.n_bus
+    rsel = np.arange(n) if rows is None else np.asarray(rows, int)
+    if method not in ("auto", "dense", "sparse"):
+        raise ValueError(f"unknown method {method!r}")
+    eng = sparse_engine(arr, settings, pattern)
+    if method == "dense" or (method == "auto" and n <= DENSE_MAX_BUSES):
+        z, dz = _dense_columns(eng, h, cols, diag_extra, rsel, derivative, diag_extra_dh)
+        return (z, dz) if derivative else z
+    return sparse_columns(eng, h, cols, rsel, diag_extra, workers=workers,
+                          derivative=derivative, diag_extra_dh=diag_extra_dh)
+
+
+def _dense_columns(eng: SparseEngine, h, cols, diag_extra, rsel, derivative, diag_extra_dh):
+    """Batched dense solves over chunks of orders (about 2e7 matrix entries per chunk).
+
+    The matrix is the engine's ordered ``P^T Y P`` scattered into a dense stack.
+    """
+    n = eng.n
+    out = np.empty((h.size, rsel.size, cols.size), complex)
+    dout = np.empty_like(out) if derivative else None
+    chunk = max(1, int(2e7 // max(n * n, 1)))
+    col_of = np.repeat(np.arange(n), np.diff(eng.indptr))
+    flat = eng.indices.astype(np.int64) * n + col_of  # row-major position in the ordered matrix
+    rhs = np.zeros((n, cols.size), complex)
+    rhs[eng.iperm[cols], np.arange(cols.size)] = 1.0
+    prow = eng.iperm[rsel]
+    e_rows = np.zeros((n, rsel.size), complex)
+    e_rows[prow, np.arange(rsel.size)] = 1.0
+
+    def dense(data):
+        y = np.zeros((data.shape[0], n * n), complex)
+        y[:, flat] = data
+        return y.reshape(data.shape[0], n, n)
+
+    for a in range(0, h.size, chunk):
+        hs = h[a:a + chunk]
+        de = None if diag_extra is None else diag_extra[a:a + chunk]
+        y = dense(eng.values(hs, de))
+        try:
+            x = np.linalg.solve(y, np.broadcast_to(rhs, (hs.size, n, cols.size)))
+        except np.linalg.LinAlgError:
+            # a lossless network is exactly singular at its own resonances
+            y = dense(eng.values(_nudge(hs), de))
+            x = np.linalg.solve(y, np.broadcast_to(rhs, (hs.size, n, cols.size)))
+        out[a:a + chunk] = x[:, prow, :]
+        if derivative:
+            w = np.linalg.solve(np.swapaxes(y, 1, 2), np.broadcast_to(e_rows, (hs.size, n, rsel.size)))
+            dy = dense(eng.values_dh(hs, None if diag_extra_dh is None else diag_extra_dh[a:a + chunk]))
+            dout[a:a + chunk] = -(np.swapaxes(w, 1, 2) @ (dy @ x))
+    return out, dout
+
+
+def step_update(z_cols: np.ndarray, k_row: int, k_col: int, y_s: np.ndarray) -> np.ndarray:
+    """Impedance columns after adding shunt admittance ``y_s`` at one bus (Sherman-Morrison).
+
+    Parameters
+    ----------
+    z_cols : ndarray, shape (n_h, r, m)
+        Step-free impedance rows x columns; must contain row and column of bus k [pu].
+    k_row, k_col : int
+        Position of bus k among the rows and among the columns [unitless].
+    y_s : ndarray, shape (n_h,) or (n_h, s)
+        Admittance added at bus k; with a trailing step axis, all steps at once [pu].
+
+    Returns
+    -------
+    ndarray, shape (n_h, r, m) or (n_h, s, r, m)
+        Updated impedances [pu].
+
+    Notes
+    -----
+    ``Z'_ij = Z_ij - Z_ik y Z_kj / (1 + y Z_kk)`` (exact for a rank-one change).
+
+    References
+    ----------
+    J. Sherman, W. J. Morrison, "Adjustment of an inverse matrix corresponding
+    to a change in one element of a given matrix", Ann. Math. Statist. 21 (1950).
+    """
+    zik = z_cols[:, :, k_col]
+    zkj = z_cols[:, k_row, :]
+    zkk = z_cols[:, k_row, k_col]
+    if y_s.ndim == 1:
+        g = y_s / (1.0 + y_s * zkk)
+        return z_cols - zik[:, :, None] * (g[:, None, None] * zkj[:, None, :])
+    g = y_s / (1.0 + y_s * zkk[:, None])  # (n_h, s)
+    return z_cols[:, None, :, :] - g[:, :, None, None] * zik[:, None, :, None] * zkj[:, None, None, :]
+
+
+def woodbury_update(z_cols: np.ndarray, k_rows: np.ndarray, k_cols: np.ndarray, y_add: np.ndarray) -> np.ndarray:
+    """Impedance columns after adding shunt admittances at several buses at once (Woodbury).
+
+    Parameters
+    ----------
+    z_cols : ndarray, shape (n_h, r, m)
+        Change-free impedance rows x columns; must contain the rows and the
+        columns of every changed bus [pu].
+    k_rows, k_cols : ndarray of int, shape (q,)
+        Positions of the changed buses among the rows and among the columns [unitless].
+    y_add : ndarray, shape (n_h, q)
+        Admittance added at each changed bus [pu].
+
+    Returns
+    -------
+    ndarray, shape (n_h, r, m)
+        Updated impedances [pu].
+
+    Notes
+    -----
+    With ``D = diag(y)`` and ``K`` the changed buses,
+    ``Z' = Z - Z[:, K] D (I + Z[K, K] D)^-1 Z[K, :]``, i.e.
+    ``Z' = Z - Z[:, K] (I + D Z[K, K])^-1 D Z[K, :]`` (exact for a rank-q change).
+
+    References
+    ----------
+    M. A. Woodbury, "Inverting modified matrices", Memorandum Report 42,
+    Statistical Research Group, Princeton University, 1950; W. W. Hager,
+    "Updating the inverse of a matrix", SIAM Review 31(2), 1989.
+    """
+    k_rows = np.asarray(k_rows, int)
+    k_cols = np.asarray(k_cols, int)
+    y = np.asarray(y_add, complex)
+    z_ik = z_cols[:, :, k_cols]  # (n_h, r, q)
+    z_kj = z_cols[:, k_rows, :]  # (n_h, q, m)
+    z_kk = z_cols[:, k_rows][:, :, k_cols]  # (n_h, q, q)
+    q = k_rows.size
+    m_ = np.eye(q)[None, :, :] + y[:, :, None] * z_kk  # I + D Z_KK
+    w = np.linalg.solve(m_, y[:, :, None] * z_kj)  # (I + D Z_KK)^-1 D Z_K:
+    return z_cols - z_ik @ w
+
+
+def find_peaks(h: np.ndarray, z_abs: np.ndarray, min_rel_prominence: float = 0.02) -> list[np.ndarray]:
+    """Grid indices of local maxima of ``|Z|`` along the last axis.
+
+    Parameters
+    ----------
+    h : ndarray, shape (n_h,)
+        Orders [unitless].
+    z_abs : ndarray, shape (..., n_h)
+        Impedance magnitude [any unit].
+    min_rel_prominence : float
+        A peak must stand this fraction above the higher of the two minima
+        that bound it (in log terms) [unitless].
+
+    Returns
+    -------
+    list of ndarray
+        For each leading index (flattened), the grid indices of its peaks.
+    """
+    from scipy.signal import find_peaks as _fp  # noqa: PLC0415
+
+    flat = np.log(np.maximum(z_abs.reshape(-1, z_abs.shape[-1]), 1e-300))
+    out = []
+    for row in flat:
+        idx, _ = _fp(row, prominence=np.log1p(min_rel_prominence))
+        out.append(idx.astype(int))
+    return out
+
+
+def refine_peaks(fun, h_peaks: np.ndarray, half_width: float, levels: int = 3, points: int = 21) -> tuple[np.ndarray, np.ndarray]:
+    """Refine peak orders by evaluating ``fun`` on successively finer local grids.
+
+    Parameters
+    ----------
+    fun : callable
+        ``fun(h, which) -> |Z|`` evaluated at orders ``h`` (shape (p,)) for
+        peaks ``which`` (indices into ``h_peaks``); vectorised [unitless].
+    h_peaks : ndarray, shape (p,)
+        Grid estimates [unitless].
+    half_width : float
+        Initial half-width of the search window, e.g. the grid step [unitless].
+    levels, points : int
+        Zoom levels and points per level; final resolution
+        ``2 half_width / (points - 1)^levels``.
+
+    Returns
+    -------
+    (h_ref, z_ref) : tuple of ndarray
+        Refined orders [unitless] and ``|Z|`` there.
+    """
+    h_c = np.asarray(h_peaks, float).copy()
+    z_c = np.zeros_like(h_c)
+    if h_c.size == 0:
+        return h_c, z_c
+    w = float(half_width)
+    off = np.linspace(-1.0, 1.0, points)
+    which = np.repeat(np.arange(h_c.size), points)
+    for _ in range(levels):
+        hh = (h_c[:, None] + w * off[None, :]).ravel()
+        zz = np.asarray(fun(hh, which)).reshape(h_c.size, points)
+        j = np.argmax(zz, axis=1)
+        h_c = h_c + w * off[j]
+        z_c = zz[np.arange(h_c.size), j]
+        w = w * 2.0 / (points - 1)
+    return h_c, z_c
+
+
+def _central_dh(fun, h: np.ndarray) -> np.ndarray:
+    """Central difference ``(f(h (1+e)) - f(h (1-e))) / (2 h e)``, ``e = 1e-6`` [unit per unitless]."""
+    eps = 1e-6 * h
+    fp = np.asarray(fun(h + eps), complex)
+    fm = np.asarray(fun(h - eps), complex)
+    return (fp - fm) / (2.0 * eps.reshape((-1,) + (1,) * (fp.ndim - 1)))
+
+
+def driving_point_steps(arr: NetworkArrays, h: np.ndarray, bus: int, step_admittance,
+                        settings: ModelSettings = ModelSettings(), extra=None,
+                        pattern: YPattern | None = None, workers: int | None = None,
+                        derivative: bool = False):
+    """Driving-point impedance at a bank bus with the bank off and with each step in.
+
+    Parameters
+    ----------
+    arr : NetworkArrays
+        Network without the studied bank [pu].
+    h : ndarray, shape (n_h,)
+        Orders [unitless].
+    bus : int
+        Bank bus [unitless].
+    step_admittance : callable
+        ``step_admittance(h) -> Y`` of shape (n_h, N), the bank admittance with
+        steps 1..N in service [pu]; if it has an attribute ``dh`` (a callable of
+        the same form giving ``dY/dh``), that replaces the central difference.
+    settings : ModelSettings
+        Element models.
+    extra : callable, optional
+        ``extra(h) -> diag_extra`` (n_h, n) or None: other shunts in service [pu].
+    pattern : YPattern, optional
+        Precomputed pattern.
+    workers : int, optional
+        Processes for the sparse path [unitless].
+    derivative : bool
+        Also return ``dZ/dh`` [unitless].
+
+    Returns
+    -------
+    ndarray, complex, shape (N + 1, n_h), or a tuple of two
+        Row 0 bank off, row s step s in service [pu] (and ``dZ/dh`` [pu]).
+
+    Notes
+    -----
+    One solve per order; the steps by Sherman-Morrison,
+    ``Z_s = Z / (1 + Y_s Z)`` with ``Z = Z_kk`` (see :func:`step_update`), and
+    ``dZ_s/dh = (Z' - Z^2 Y_s') / (1 + Y_s Z)^2``.  ``Y_s'`` is analytic where
+    ``step_admittance.dh`` exists, else a central difference (step ``1e-6 h``), as is
+    the derivative of ``extra``.
+    """
+    h = np.atleast_1d(np.asarray(h, float))
+    k = np.array([int(bus)])
+    de = None if extra is None else extra(h)
+    ys = np.asarray(step_admittance(h), complex).reshape(h.size, -1)
+    if not derivative:
+        z0 = impedance_columns(arr, h, k, settings, de, rows=k, pattern=pattern, workers=workers)[:, 0, 0]
+        zs = z0[:, None] / (1.0 + ys * z0[:, None])
+        return np.concatenate([z0[None, :], zs.T], axis=0)
+    de_dh = None if de is None else _central_dh(extra, h)
+    z0, dz0 = impedance_columns_dh(arr, h, k, settings, de, rows=k, pattern=pattern,
+                                   diag_extra_dh=de_dh, workers=workers)
+    return _with_steps(h, z0[:, 0, 0], dz0[:, 0, 0], step_admittance, ys)
+
+
+def _with_steps(h: np.ndarray, z0: np.ndarray, dz0: np.ndarray, step_admittance, ys=None):
+    """Bank-off ``Z_kk`` and ``dZ_kk/dh`` (shape (n_h,)) -> every step's, by Sherman-Morrison [pu]."""
+    if ys is None:
+        ys = np.asarray(step_admittance(h), complex).reshape(h.size, -1)
+    z0, dz0 = z0[:, None], dz0[:, None]
+    dfun = getattr(step_admittance, "dh", None)  # an analytic dY/dh where the caller has one
+    if dfun is not None:
+        dys = np.asarray(dfun(h), complex).reshape(ys.shape)
+    else:
+        dys = _central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
+    den = 1.0 + ys * z0
+    zs = z0 / den
+    dzs = (dz0 - z0**2 * dys) / den**2
+    return (np.concatenate([z0.T, zs.T], axis=0), np.concatenate([dz0.T, dzs.T], axis=0))
+
+
+@dataclass(frozen=True, eq=False)
+class StepPeaks:
+    """Peaks of the bank-bus impedance of every step, found on an adaptive grid.
+
+    Attributes
+    ----------
+    h_peak : tuple of ndarray
+        Per curve (row 0 bank off, row s step s): refined peak orders [unitless].
+    z_peak : tuple of ndarray
+        ``|Z|`` at those orders [pu].
+    scan : AdaptiveScan
+        The adaptive grid and the complex curves on it [pu].
+    """
+
+    h_peak: tuple
+    z_peak: tuple
+    scan: AdaptiveScan
+
+
+def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
+               settings: ModelSettings = ModelSettings(), extra=None, pattern: YPattern | None = None,
+               tol: float = 0.05, min_step: float | None = None, xtol: float = 1e-5,
+               workers: int | None = None, base: tuple | None = None) -> StepPeaks:
+    """Every local maximum of ``|Z|`` at a bank bus, for the bank off and each step.
+
+    Parameters
+    ----------
+    arr, bus, step_admittance, settings, extra, pattern, workers
+        As for :func:`driving_point_steps`.
+    h : ndarray, shape (n_h,)
+        Base grid, e.g. the study's uniform 0.01 grid [unitless].
+    tol : float
+        Refinement threshold on ``|ln(Z_{i+1}/Z_i)|`` (:func:`resonance.harmonics.grid.adaptive_scan`) [unitless].
+    min_step : float, optional
+        Narrowest interval (default: base step / 16) [unitless].
+    xtol : float
+        Final width of each peak's search bracket [unitless].
+    base : (ndarray, ndarray), optional
+        Bank-off ``Z_kk`` and ``dZ_kk/dh`` on ``h`` (shape (n_h,)), when the caller
+        has solved the base grid already (e.g. with :func:`impedance_columns_dh`) [pu].
+
+    Returns
+    -------
+    StepPeaks
+        Peaks of every curve and the adaptive grid.
+
+    Notes
+    -----
+    A peak is a local maximum of ``|Z(h)|``.  The grid is refined with the
+    analytic derivative ``dZ/dh`` (:func:`resonance.harmonics.grid.adaptive_scan`); each
+    interval where ``d|Z|/dh`` turns from positive to non-positive brackets a
+    maximum, and a batched sequential search inside the bracket
+    (:func:`resonance.harmonics.grid.zoom_refine`) converges to it.
+    """
+    h = np.atleast_1d(np.asarray(h, float))
+    if min_step is None:
+        min_step = float(np.min(np.diff(h))) / 16.0 if h.size > 1 else 1e-3
+
+    def fun(hh, derivative=True):
+        return driving_point_steps(arr, hh, bus, step_admittance, settings, extra, pattern, workers, derivative)
+
+    z_base = dz_base = None
+    if base is not None:
+        z_base, dz_base = _with_steps(h, np.asarray(base[0], complex), np.asarray(base[1], complex),
+                                      step_admittance)
+    sc = adaptive_scan(fun, h, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True)
+    curve, lo, hi = peak_brackets(sc)
+
+    def f(x):  # x: (bracket, sample) -> |Z| of each bracket's own curve
+        z = np.abs(fun(x.ravel(), False))
+        return z[np.repeat(curve, x.shape[1]), np.arange(x.size)].reshape(x.shape)
+
+    hp, zp = zoom_refine(f, lo, hi, xtol=xtol)
+    n_c = sc.z.shape[0]
+    hs = tuple(hp[curve == c] for c in range(n_c))
+    zs = tuple(zp[curve == c] for c in range(n_c))
+    return StepPeaks(h_peak=hs, z_peak=zs, scan=sc)

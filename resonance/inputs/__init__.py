@@ -1,0 +1,1 @@
+"""Case input: the case schema, reading and checking case and network files."""

@@ -1,0 +1,1 @@
+"""Network model: pandapower touch point, network arrays, load flow, admittances."""

@@ -1,0 +1,263 @@
+"""Figures of the submittal report: specs that draw into a page region or a stand-alone file.
+
+Edge layer (matplotlib Agg).  A :class:`_FigSpec` draws one figure into any
+rectangle of any figure, so the same code fills a region of a report page and a
+stand-alone PNG/SVG file.  :func:`file_jobs` lists the stand-alone files as
+:class:`FileJob` objects that can run in any process and in any order: each one
+starts from a fresh figure, so its files do not depend on what ran before.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from resonance.report import figures as rf
+from resonance.report.layout import INK, M_LEFT, M_TOP, PAGE_H, PAGE_W, TEXT_W, _Doc
+from resonance.report.tables import (DUTY_KEYS, _detuned_scan, _detuning, _get, _has_duty, _limits, _Limits, _num,
+                            _safe, _spectrum, _thd_bus, _thd_pcc, _v519)
+from resonance.assessment.study import BankScan, StudyResult
+
+__all__ = ["FileJob", "file_jobs", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE"]
+
+
+@dataclass(frozen=True)
+class _FigSpec:
+    name: str          # file stem
+    size: tuple        # stand-alone size (w, h) [in]
+    draw: Callable     # draw(fig, rect_in) with rect_in = (x, y_bottom, w, h) [in] inside fig
+    page_h: float      # height on the report page [in]
+    bank: str = ""      # bank the figure belongs to
+
+
+def _axes(fig: Figure, rect, pad=(0.72, 0.25, 0.5, 0.42)):
+    """Axes inside ``rect`` (x, y_bottom, w, h) [in] with padding (left, right, bottom, top) [in]."""
+    fw, fh = fig.get_size_inches()
+    x, y, w, h = rect
+    l, r, b, t = pad
+    return fig.add_axes(((x + l) / fw, (y + b) / fh, (w - l - r) / fw, (h - b - t) / fh))
+
+
+def _grid(fig: Figure, rect, nrow, ncol, pad=(0.62, 0.2, 0.45, 0.35)):
+    x, y, w, h = rect
+    out = []
+    for i in range(nrow):
+        for j in range(ncol):
+            out.append(_axes(fig, (x + j * w / ncol, y + (nrow - 1 - i) * h / nrow, w / ncol, h / nrow), pad))
+    return out
+
+
+LEGEND_PAD = (0.72, 1.75, 0.5, 0.42)
+STEP_SIZE = (7.4, 4.1)     # stand-alone per-step figure [in]
+STEP_PAGE_H = 4.75         # height of one per-step plot on a page [in]
+
+
+def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
+    steps = bank["steps"]
+    ed = data["settings"].get("ieee519_edition")
+    v_bus = _v519(b.bus_kv, data)
+    out = []
+    for where, ind, label, ylab in (
+            ("bus", v_bus.individual_pct if v_bus else None, f"bank bus {b.bus}", "V_h [% of nominal]"),
+            ("pcc", lim.pcc_ind, f"PCC {data.get('pcc_bus')}", "V_h [% of nominal]"),
+            ("i_pcc", None, f"current into the supply at the PCC {data.get('pcc_bus')}", "I_h [% of I_L]")):
+        spx = [_spectrum(x, where) for x in steps]
+        if not any(spx):
+            continue
+        if where == "i_pcc":
+            tdd = [_num(x.get("tdd_pct")) for x in steps]
+            worst = int(np.argmax([t if t is not None else -1.0 for t in tdd]))
+        else:
+            thd = [(_thd_bus(x) if where == "bus" else _thd_pcc(x)) for x in steps]
+            worst = int(np.argmax([t if t is not None else -1.0 for t in thd]))
+        hs = sorted({h for d in spx for h in d})
+        env = [max(d.get(h, 0.0) for d in spx) for h in hs]
+        vals = [spx[worst].get(h, 0.0) for h in hs]
+        if where == "i_pcc":
+            il = _spectrum(steps[worst], "i_lim")
+            limit = [il.get(h) for h in hs] if il else None
+            lab = f"IEEE 519-{ed} current limit per order"
+            crit = "highest TDD"
+        else:
+            limit, crit = ind, "highest THD"
+            lab = f"IEEE 519-{ed} individual limit" + (f" {ind:g} %" if ind is not None else "")
+        ref = " (reference only; IEEE 519 applies at the PCC)" if where == "bus" else ""
+        out.append((hs, vals, env, limit, lab, f"{label}: step {steps[worst]['step']} ({crit}){ref}", ylab))
+    return out
+
+
+def _fig_specs(res: StudyResult, data: dict) -> dict[str, list]:
+    """Figure specs per report section (the per-step plots are handled apart, see :func:`_step_pages`)."""
+    specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": []}
+    banks = {b["name"]: b for b in data["banks"]}
+    for sc in res.scans:
+        if sc.scenario != "nominal":
+            continue
+        b = sc.bank
+        s = _safe(b.name)
+        weak = res.scans_for(b.name, "weak")
+        specs["overlay"].append(_FigSpec(
+            f"fig_scan_{s}_all", (8.2, 4.0),
+            lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, sc,
+                                                   f"Bank {sc.bank.name}: all steps, nominal supply"), 4.0, b.name))
+        if weak is not None:
+            specs["overlay"].append(_FigSpec(
+                f"fig_scan_{s}_weak_all", (8.2, 4.0),
+                lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, w,
+                                                        f"Bank {w.bank.name}: all steps, weak supply"), 4.0, b.name))
+        det = _detuned_scan(res, b.name)
+        if det is not None:
+            specs["compare"].append(_FigSpec(
+                f"fig_compare_{s}_detuned", (7.4, 4.0),
+                lambda fig, r, sc=sc, d=det: rf.draw_scan_compare(_axes(fig, r), res, sc, d), 4.0))
+        bank = banks.get(b.name)
+        if bank is None:
+            continue
+        lim = _limits(res, data, bank)
+        steps = bank["steps"]
+        panels = _spectrum_panels(bank, b, data, lim)
+        if panels:
+            def draw_sp(fig, r, panels=panels):
+                for ax, p in zip(_grid(fig, r, len(panels), 1, (0.72, 0.25, 0.5, 0.35)), panels):
+                    rf.draw_spectrum(ax, *p)
+            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.6 * len(panels)), draw_sp,
+                                             2.6 * len(panels)))
+        if _has_duty(bank):
+            vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
+            nums = [x["step"] for x in steps]
+            specs["duty"].append(_FigSpec(
+                f"fig_duty_{s}", (7.4, 5.2),
+                lambda fig, r, v=vals, n=nums, lm=lim: rf.draw_duty(_grid(fig, r, 2, 2), n, v, lm.duty, lm.duty_name),
+                5.2))
+        rec, _c = _detuning(bank)
+        n_t = _num(_get(rec, "tuning_order")) if rec else None
+        p_pct = _num(_get(rec, "detuning_pct")) if rec else None
+        if rec and (n_t or p_pct):
+            p = p_pct / 100.0 if p_pct else 1.0 / n_t**2
+            n_t = n_t or 1.0 / math.sqrt(p)
+            q_r = np.cumsum([float(q) for q in (rec.get("steps_kvar") or b.stages_kvar)])
+            u_r = _num(rec.get("rated_kv")) or b.rated_kv
+            # X_s/X_C = U^2 Q_R / (S_sc U_R^2); h_p = 1/sqrt(p + X_s/X_C)  [derived, REFERENCES.md "Detuned banks"]
+            hp = 1.0 / np.sqrt(p + b.bus_kv**2 * q_r / 1000.0 / (sc.sc_mva * u_r**2))
+            dom = min(res.orders.injected) if res.orders.injected else None
+            specs["band"].append(_FigSpec(
+                f"fig_detuning_{s}", (8.2, 3.6),
+                lambda fig, r, n_t=n_t, p=p, hp=hp, k=np.arange(1, hp.size + 1), d=dom, nm=b.name:
+                rf.draw_detuning_band(_axes(fig, r, (0.72, 2.6, 0.5, 0.42)), n_t, p, hp, k, d,
+                                      f"Bank {nm}: recommended detuning"), 3.6))
+    return specs
+
+
+#: PNG writer options: zlib level 1 (level 6, the default, takes about 1.6 times as long to
+#: encode a report figure for a file about 8 % smaller: flat colour compresses well at any level)
+PNG_SAVE = {"compress_level": 1}
+#: steps per per-step file job: small enough to share the work between processes, large
+#: enough that the axes set-up (bands, ticks) is paid for a few files at a time
+STEP_CHUNK = 4
+
+
+def save_png_svg(fig: Figure, png: Path, svg: Path) -> None:
+    """Write ``fig`` as PNG (at :data:`resonance.report.figures.PNG_DPI`) and SVG, without dates.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        Figure to write.
+    png, svg : Path
+        Target files.
+    """
+    fig.savefig(png, dpi=rf.PNG_DPI, metadata={"Software": None}, pil_kwargs=PNG_SAVE)
+    fig.savefig(svg, metadata={"Date": None})
+
+
+@dataclass(frozen=True)
+class FileJob:
+    """Stand-alone figure files written by one call.
+
+    ``render(paths)`` draws and writes the files named ``names`` to ``paths``
+    (same order).  A job builds its own figure, so it may run in any process.
+    """
+
+    names: tuple
+    render: Callable
+
+
+def _spec_job(spec: _FigSpec) -> FileJob:
+    def render(paths):
+        fig = rf.new_figure(*spec.size)
+        spec.draw(fig, (0.0, 0.0) + tuple(spec.size))
+        save_png_svg(fig, *paths)
+    return FileJob((f"{spec.name}.png", f"{spec.name}.svg"), render)
+
+
+def _step_jobs(res: StudyResult, sc: BankScan, weak: BankScan | None) -> list[FileJob]:
+    """One PNG and SVG per step; each job re-points one figure at :data:`STEP_CHUNK` steps."""
+    stem = f"fig_scan_{_safe(sc.bank.name)}_step"
+    ks = [st.step for st in sc.steps]
+    out = []
+    for i in range(0, len(ks), STEP_CHUNK):
+        chunk = tuple(ks[i:i + STEP_CHUNK])
+
+        def render(paths, chunk=chunk):
+            fig = rf.new_figure(*STEP_SIZE)
+            plot = rf.StepScanPlot(_axes(fig, (0.0, 0.0) + STEP_SIZE), res, sc, weak)
+            for j, k in enumerate(chunk):
+                plot.show(k)
+                save_png_svg(fig, *paths[2 * j:2 * j + 2])
+
+        out.append(FileJob(tuple(n for k in chunk for n in (f"{stem}{k}.png", f"{stem}{k}.svg")), render))
+    return out
+
+
+def file_jobs(res: StudyResult, specs: dict[str, list]) -> list[FileJob]:
+    """Every stand-alone figure file of the report, in report order.
+
+    Parameters
+    ----------
+    res : StudyResult
+        Study result.
+    specs : dict
+        Figure specs per section from :func:`_fig_specs`.
+
+    Returns
+    -------
+    list of FileJob
+        Per bank its overlay scans and per-step scans, then the compared scans,
+        spectra, duty and detuning figures.
+    """
+    jobs = []
+    for sc in res.scans:
+        if sc.scenario != "nominal":
+            continue
+        jobs += [_spec_job(s) for s in specs["overlay"] if s.bank == sc.bank.name]
+        jobs += _step_jobs(res, sc, res.scans_for(sc.bank.name, "weak"))
+    for sec in ("compare", "spectra", "duty", "band"):
+        jobs += [_spec_job(s) for s in specs[sec]]
+    return jobs
+
+
+def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None) -> None:
+    """Two per-step plots a page: one page figure, re-pointed for every pair of steps."""
+    fig = Figure(figsize=(PAGE_W, PAGE_H))
+    fig.text(M_LEFT / PAGE_W, 1 - M_TOP / PAGE_H, f"Bank {sc.bank.name}: one plot per step"
+             + (" (dashed: weak supply)" if weak is not None else ""), fontsize=9.5, weight="bold", color=INK,
+             va="top")
+    top = PAGE_H - M_TOP - 0.3
+    rects = [(M_LEFT - 0.1, top - (i + 1) * STEP_PAGE_H, TEXT_W + 0.2, STEP_PAGE_H - 0.1) for i in range(2)]
+    plots = [rf.StepScanPlot(_axes(fig, r), res, sc, weak) for r in rects]
+    n = len(sc.steps)
+
+    def pair(k):
+        def update():
+            plots[0].show(k)
+            plots[1].ax.set_visible(k + 1 <= n)
+            if k + 1 <= n:
+                plots[1].show(k + 1)
+        return update
+
+    doc.shared_pages(fig, [pair(k) for k in range(1, n + 1, 2)])

@@ -1,0 +1,526 @@
+"""Tables of the submittal report and the defensive readers of the results dictionary behind them.
+
+Edge layer, no matplotlib.  :func:`report_tables` turns the study result and the
+results dictionary of :func:`resonance.report.results_json.to_dict` into :class:`Table` objects:
+raw rows for the CSV files, formatted cells for the PDF.  Keys of later study stages
+(penetration, capacitor duty, detuning) are read defensively (see the module notes of
+:mod:`resonance.report.document`); the underscore helpers here are shared by the other
+``report_*`` modules.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import textwrap
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+from resonance.names import file_stem
+from resonance.outputs import csv_text_cell
+from resonance.assessment.study import BankScan, StudyResult
+
+__all__ = ["Table", "Column", "report_tables", "DUTY_KEYS", "DUTY_LABEL"]
+
+
+# ---------------------------------------------------------------------------------------------
+# defensive readers of the results dictionary
+
+def _get(d: Any, *keys: str):
+    """First present, non-None value among ``keys`` of mapping ``d`` (dotted keys go one level down)."""
+    if not isinstance(d, dict):
+        return None
+    for k in keys:
+        if "." in k:
+            a, b = k.split(".", 1)
+            v = d.get(a)
+            v = v.get(b) if isinstance(v, dict) else None
+        else:
+            v = d.get(k)
+        if v is not None:
+            return v
+    return None
+
+
+def _thd_bus(step: dict):
+    return _num(_get(step, "thd_v_pct", "thd_v_bus_pct"))
+
+
+def _thd_pcc(step: dict):
+    return _num(_get(step, "thd_v_pcc_pct", "pcc_thd_v_pct", "pcc.thd_v_pct"))
+
+
+#: duty quantity -> per-step key [% of rating]
+DUTY_KEYS = {"v_rms": "cap_v_rms_pct", "v_peak": "cap_v_peak_pct", "i_rms": "cap_i_rms_pct", "kvar": "cap_kvar_pct"}
+DUTY_LABEL = {"v_rms": "V rms", "v_peak": "V peak", "i_rms": "I rms", "kvar": "Q"}
+
+
+def _num(x):
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return None
+    return v if math.isfinite(v) else None
+
+
+#: per-order quantity -> keys accepted in a ``harmonics`` entry (first present wins)
+_ORDER_KEYS = {
+    "bus": ("v_bank_pct", "v_bus_pct", "v_pct", "v_h_pct"),   # voltage at the bank bus [% of nominal]
+    "pcc": ("v_pcc_pct", "pcc_v_pct"),                        # voltage at the PCC [% of nominal]
+    "cap": ("v_cap_pct",),                                    # voltage across the capacitor [% of rated]
+    "i_pcc": ("i_supply_pct_of_il", "i_pcc_pct_of_il"),       # current into the supply [% of I_L]
+    "i_lim": ("i_limit_pct_of_il",),                          # IEEE 519 current limit [% of I_L]
+}
+_DICT_KEYS = {"bus": ("v_h_pct", "v_bus_h_pct"), "pcc": ("v_pcc_h_pct", "pcc_v_h_pct")}
+
+
+def _order_rows(step: dict) -> list[dict]:
+    for lk in ("harmonics", "per_order"):
+        rows = step.get(lk) if isinstance(step, dict) else None
+        if isinstance(rows, list) and rows and isinstance(rows[0], dict):
+            return rows
+    return []
+
+
+def _spectrum(step: dict, where: str) -> dict[int, float]:
+    """Per-order value of one step (see :data:`_ORDER_KEYS` for ``where``); {} when absent."""
+    out = {}
+    for r in _order_rows(step):
+        h, v = _num(r.get("h")), _num(_get(r, *_ORDER_KEYS[where]))
+        if h is not None and v is not None and h > 1.5:
+            out[int(round(h))] = v
+    if out:
+        return out
+    m = _get(step, *_DICT_KEYS.get(where, ()))
+    if isinstance(m, dict):
+        for h, v in m.items():
+            hh, vv = _num(h), _num(v)
+            if hh is not None and vv is not None and hh > 1.5:
+                out[int(round(hh))] = vv
+    return out
+
+
+def _detuning(bank: dict) -> tuple[dict | None, list[dict]]:
+    d = bank.get("detuning") if isinstance(bank, dict) else None
+    if not isinstance(d, dict):
+        return None, []
+    rec = d.get("recommended") if isinstance(d.get("recommended"), dict) else None
+    cands = [c for c in (d.get("candidates") or []) if isinstance(c, dict)]
+    return rec, cands
+
+
+def _detuned_scan(res: StudyResult, name: str) -> BankScan | None:
+    """A detuned candidate's nominal scan for bank ``name`` among the study extras, if any."""
+    def hits(v):
+        if isinstance(v, BankScan):
+            yield v
+        elif isinstance(v, dict):
+            for w in v.values():
+                if isinstance(w, BankScan):
+                    yield w
+        elif isinstance(v, (list, tuple)):
+            for w in v:
+                if isinstance(w, BankScan):
+                    yield w
+
+    for v in (res.extras or {}).values():
+        for s in hits(v):
+            if s.bank.name == name and s.bank.p > 0 and s.scenario == "nominal":
+                return s
+    return None
+
+
+def _pcc_kv(res: StudyResult, data: dict) -> float | None:
+    model = res.extras.get("model") if res.extras else None
+    try:
+        return float(model.arrays.bus_kv[model.model_bus[data["pcc_bus"]]])
+    except Exception:  # noqa: BLE001 - no model: fall back on the case
+        sup = res.case.supply
+        return float(sup.kv) if sup is not None and sup.bus == data.get("pcc_bus") else None
+
+
+def _duty_limit_set(data: dict):
+    from resonance.standards.duty import duty_limits  # noqa: PLC0415
+    try:
+        return duty_limits(data["settings"]["duty_limits"])
+    except Exception:  # noqa: BLE001 - an unknown set leaves the limit columns without a limit
+        return None
+
+
+def _v519(v_kv: float | None, data: dict):
+    if v_kv is None:
+        return None
+    from resonance.standards.limits import ieee519_voltage_limits  # noqa: PLC0415
+    try:
+        return ieee519_voltage_limits(v_kv, str(data["settings"].get("ieee519_edition", "2014")))
+    except Exception:  # noqa: BLE001 - unknown edition: no limit shown
+        return None
+
+
+@dataclass(frozen=True)
+class _Limits:
+    """Limits a bank's steps are compared with, as the results give them (or looked up)."""
+
+    duty: dict            # quantity -> [% of rating]
+    duty_name: str
+    pcc_ind: float | None  # [% of nominal]
+    pcc_thd: float | None  # [% of nominal]
+    pcc_src: str
+    tdd: float | None      # [% of I_L]
+    i_src: str
+
+
+def _limits(res: StudyResult, data: dict, bank: dict, scen: str = "nominal") -> _Limits:
+    """Limits of a bank in one supply scenario.
+
+    The current limits depend on I_sc/I_L and so on the supply: for the weak
+    supply they are taken only from ``weak_supply.limits`` (none shown otherwise).
+    """
+    lim = bank.get("limits") if isinstance(bank.get("limits"), dict) else {}
+    if scen != "nominal":
+        wl = (bank.get("weak_supply") or {}).get("limits")
+        lim = {**{k: v for k, v in lim.items() if k != "pcc_i_limits"}, **(wl if isinstance(wl, dict) else {})}
+    dl = lim.get("duty_limits") if isinstance(lim.get("duty_limits"), dict) else None
+    if dl:
+        duty = {q: _num(dl.get(f"{q}_pct")) for q in DUTY_KEYS}
+        duty = {q: v for q, v in duty.items() if v is not None}
+        name = str(dl.get("name") or data["settings"].get("duty_limits"))
+    else:
+        d = _duty_limit_set(data)
+        duty = ({"v_rms": 100 * d.v_rms, "v_peak": 100 * d.v_peak, "i_rms": 100 * d.i_rms, "kvar": 100 * d.q}
+                if d else {})
+        name = d.name if d else str(data["settings"].get("duty_limits"))
+    pv = lim.get("pcc_v_limits") if isinstance(lim.get("pcc_v_limits"), dict) else None
+    if pv:
+        ind, thd, src = _num(pv.get("individual_pct")), _num(pv.get("thd_pct")), str(pv.get("source") or "")
+    else:
+        v = _v519(_pcc_kv(res, data), data)
+        ind, thd, src = (v.individual_pct, v.thd_pct, v.source) if v else (None, None, "")
+    pi = lim.get("pcc_i_limits") if isinstance(lim.get("pcc_i_limits"), dict) else {}
+    return _Limits(duty, name, ind, thd, src, _num(pi.get("tdd_pct")), str(pi.get("source") or ""))
+
+
+def _has_penetration(bank: dict) -> bool:
+    return any(_thd_bus(s) is not None or _thd_pcc(s) is not None for s in bank["steps"])
+
+
+def _has_duty(bank: dict) -> bool:
+    return any(_num(s.get(k)) is not None for s in bank["steps"] for k in DUTY_KEYS.values())
+
+
+def _safe(name: str) -> str:
+    return file_stem(name)
+
+
+# ---------------------------------------------------------------------------------------------
+# tables
+
+def _f(nd: int) -> Callable[[Any], str]:
+    def fmt(v):
+        x = _num(v)
+        return "-" if x is None else f"{x:.{nd}f}"
+    return fmt
+
+
+def _s(v) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    if isinstance(v, float):
+        return f"{v:g}"
+    if isinstance(v, (list, tuple)):
+        return ", ".join(_s(x) for x in v)
+    return str(v)
+
+
+@dataclass(frozen=True)
+class Column:
+    """One table column: label, unit, formatter of the raw value and alignment."""
+
+    label: str
+    unit: str = ""
+    fmt: Callable[[Any], str] = _s
+    align: str = "right"
+    wrap: int = 0  # wrap the cell text at this many characters (0: never)
+
+
+@dataclass(frozen=True)
+class Table:
+    """A report table: raw rows for the CSV, formatted cells for the PDF.
+
+    ``bad`` holds (row, column) cells drawn in red (a value beyond its limit).
+    """
+
+    name: str
+    title: str
+    columns: tuple
+    rows: tuple
+    note: str = ""
+    bad: frozenset = field(default_factory=frozenset)
+
+    def csv(self) -> str:
+        """CSV text: header ``label [unit]``, raw values (empty for None)."""
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow([csv_text_cell(c.label.replace("\n", " ") + (f" [{c.unit}]" if c.unit else ""))
+                    for c in self.columns])
+        for r in self.rows:
+            w.writerow(["" if v is None else csv_text_cell(_s(v) if isinstance(v, (list, tuple, bool)) else v)
+                        for v in r])
+        return buf.getvalue()
+
+    def cells(self) -> list[list[str]]:
+        """Formatted cell text."""
+        out = []
+        for r in self.rows:
+            row = []
+            for c, v in zip(self.columns, r):
+                t = c.fmt(v)
+                if c.wrap and len(t) > c.wrap:
+                    t = "\n".join(textwrap.wrap(t, c.wrap))
+                row.append(t)
+            out.append(row)
+        return out
+
+
+def _fails(s: dict, lim: _Limits) -> list[str]:
+    """Short codes of the checks a step fails: res, duty, V (PCC voltage), I (PCC current)."""
+    out = []
+    if s.get("resonance_ok") is False:
+        out.append("res")
+    duty_over = any(_num(s.get(k)) is not None and q in lim.duty and _num(s.get(k)) > lim.duty[q]
+                    for q, k in DUTY_KEYS.items())
+    if s.get("duty_ok") is False or duty_over:
+        out.append("duty")
+    thd = _thd_pcc(s)
+    if s.get("pcc_voltage_ok") is False or (thd is not None and lim.pcc_thd is not None and thd > lim.pcc_thd):
+        out.append("V")
+    tdd = _num(s.get("tdd_pct"))
+    if s.get("pcc_current_ok") is False or (tdd is not None and lim.tdd is not None and tdd > lim.tdd):
+        out.append("I")
+    return out
+
+
+def _lim_head(label: str, v) -> str:
+    return label + (f"\nlim {v:g}" if v is not None else "")
+
+
+def _step_rows(steps: list[dict], lim: _Limits, site_only: frozenset = frozenset()):
+    cols = [Column("step", "-", _s), Column("kvar\nnameplate", "kvar", _f(0)), Column("kvar\ndelivered", "kvar", _f(1)),
+            Column("h_est", "-", _f(2)), Column("h_scan", "-", _f(2)), Column("nearest\norder", "-", _s),
+            Column("margin", "%", _f(1)), Column("THD\nbank bus", "%", _f(2)),
+            Column(_lim_head("THD\nPCC", lim.pcc_thd), "%", _f(2)), Column(_lim_head("TDD\nPCC", lim.tdd), "%", _f(1))]
+    for q in DUTY_KEYS:
+        cols.append(Column(_lim_head(DUTY_LABEL[q], lim.duty.get(q)), "%", _f(1)))
+    cols.append(Column("result", "", _s, "left"))
+    rows, bad = [], set()
+    kind_abbr = {"injected": "inj", "background": "bg", "characteristic": "char"}
+    for i, s in enumerate(steps):
+        near = s.get("nearest_order")
+        near_t = "-" if near is None else f"{near} {kind_abbr.get(s.get('nearest_kind'), '')}".strip()
+        tdd = _num(s.get("tdd_pct"))
+        row = [s.get("step"), s.get("kvar_nameplate"), s.get("kvar_delivered"), s.get("h_estimate"),
+               s.get("h_scan"), near_t, s.get("margin_pct"), _thd_bus(s), _thd_pcc(s), tdd]
+        if s.get("resonance_ok") is False:
+            bad |= {(i, 4), (i, 6)}
+        if lim.pcc_thd is not None and _thd_pcc(s) is not None and _thd_pcc(s) > lim.pcc_thd:
+            bad.add((i, 8))
+        if lim.tdd is not None and tdd is not None and tdd > lim.tdd:
+            bad.add((i, 9))
+        for j, (q, k) in enumerate(DUTY_KEYS.items()):
+            v = _num(s.get(k))
+            row.append(v)
+            if v is not None and q in lim.duty and v > lim.duty[q]:
+                bad.add((i, 10 + j))
+        f = _fails(s, lim)
+        if f and s.get("step") in site_only:  # the one judge: only the site's own distortion here
+            row.append("pass (site " + ",".join(f) + ")")
+        else:
+            row.append("pass" if not f else "FAIL " + ",".join(f))
+            if f:
+                bad.add((i, len(cols) - 1))
+        rows.append(row)
+    return tuple(cols), tuple(tuple(r) for r in rows), frozenset(bad)
+
+
+def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits, findings=()) -> Table:
+    mine = [f for f in findings if f.get("bank") == bank["name"] and f.get("scenario") in (scen, "all")]
+    bank_steps = {f.get("step") for f in mine if f.get("cause", "bank") == "bank"}
+    site_only = frozenset(f.get("step") for f in mine if f.get("cause") == "site") - bank_steps
+    cols, rows, bad = _step_rows(steps, lim, site_only)
+    suffix = "" if scen == "nominal" else "_weak"
+    return Table(f"table_summary_{_safe(bank['name'])}{suffix}.csv",
+                 f"Bank {bank['name']}: every step, {scen} supply", cols, rows,
+                 "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
+                 "char characteristic). THD in % of nominal voltage, TDD in % of I_L, duty in % of the capacitor "
+                 f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes: res resonance, duty capacitor duty, "
+                 "V PCC voltage distortion, I PCC current distortion; 'pass (site ...)': beyond a limit already with "
+                 "the bank off and not made worse by it (the site's own emission).", bad)
+
+
+def _input_tables(res: StudyResult, data: dict) -> list[Table]:
+    c = res.case
+    t = []
+    sup = c.supply
+    if sup is not None:
+        bg = ", ".join(f"{h}: {v:g}" for h, v in sorted(sup.background_pct.items())) or "none"
+        t.append(Table("table_input_supply.csv", "Supply (utility at the point of common coupling)",
+                       (Column("bus", "", _s, "left"), Column("voltage", "kV"), Column("S_sc", "MVA"),
+                        Column("X/R", "-"), Column("S_sc weak", "MVA"), Column("X/R weak", "-"),
+                        Column("background V_h\norder: %", "% of nominal", _s, "left", 34)),
+                       ((sup.bus, sup.kv, sup.sc_mva, sup.x_r, sup.sc_mva_min, sup.x_r_min, bg),)))
+    t.append(Table("table_input_transformers.csv", "Transformers",
+                   (Column("name", "", _s, "left"), Column("HV bus", "", _s, "left"), Column("LV bus", "", _s, "left"),
+                    Column("rating", "kVA"), Column("HV", "kV"), Column("LV", "kV"), Column("Z", "%"),
+                    Column("X/R", "-")),
+                   tuple((x.name, x.hv_bus, x.lv_bus, x.kva, x.hv_kv, x.lv_kv, x.z_pct, x.x_r) for x in c.transformer)))
+    t.append(Table("table_input_cables.csv", "Cables and lines",
+                   (Column("name", "", _s, "left"), Column("from bus", "", _s, "left"),
+                    Column("to bus", "", _s, "left"),
+                    Column("length", "m"), Column("R", "ohm/km"), Column("X", "ohm/km"), Column("C", "nF/km"),
+                    Column("in\nparallel", "-")),
+                   tuple((x.name, x.from_bus, x.to_bus, x.length_m, x.r_ohm_per_km, x.x_ohm_per_km, x.c_nf_per_km,
+                          x.parallel) for x in c.cable)))
+    t.append(Table("table_input_loads.csv", "Linear loads",
+                   (Column("name", "", _s, "left", 30), Column("bus", "", _s, "left"), Column("P", "kW"),
+                    Column("power factor", "-"), Column("Q (from P, pf)", "kvar", _f(1))),
+                   tuple((x.name, x.bus, x.kw, x.pf, x.kw * math.tan(math.acos(x.pf))) for x in c.load)))
+    spec = {name: sp for name, sp, _p in (res.extras.get("sources") or [])}
+    pulses = {name: p for name, _sp, p in (res.extras.get("sources") or [])}
+    rows = []
+    for x in c.harmonic_source:
+        kind = x.spectrum if isinstance(x.spectrum, str) else "table in case"
+        sp = spec.get(x.name) or (x.spectrum if isinstance(x.spectrum, dict) else {})
+        rows.append((x.name, x.bus, x.kva, kind, pulses.get(x.name),
+                     ", ".join(f"{h}: {v:g}" for h, v in sorted(sp.items()))))
+    t.append(Table("table_input_harmonic_sources.csv", "Harmonic sources",
+                   (Column("name", "", _s, "left", 22), Column("bus", "", _s, "left"), Column("rating", "kVA"),
+                    Column("spectrum", "", _s, "left", 22), Column("pulses", "-"),
+                    Column("I_h, order: %", "% of fundamental", _s, "left", 40)), tuple(rows)))
+    t.append(Table("table_input_banks.csv", "Capacitor banks",
+                   (Column("name", "", _s, "left"), Column("bus", "", _s, "left"), Column("rated", "kV"),
+                    Column("stages", "kvar", _s, "left", 30), Column("total", "kvar"),
+                    Column("detuning p", "%"), Column("reactor X/R", "-")),
+                   tuple((b.name, b.bus, b.rated_kv, list(b.steps_kvar), sum(b.steps_kvar), b.detuning_pct,
+                          b.reactor_q if b.detuning_pct else None) for b in c.bank)))
+    return t
+
+
+_REC_WORDS = {"tuning_order": "tuning order n [-]", "detuning_pct": "detuning p = X_L/X_C [%]",
+              "rated_kv": "capacitor rated voltage [kV]", "steps_kvar": "stages at rated voltage [kvar]"}
+
+
+def _detuning_tables(bank: dict) -> list[Table]:
+    rec, cands = _detuning(bank)
+    out = []
+    if rec:
+        out.append(Table(f"table_detuning_recommended_{_safe(bank['name'])}.csv",
+                         f"Bank {bank['name']}: recommended detuned bank",
+                         (Column("quantity", "", _s, "left"), Column("value", "", _s, "left", 60)),
+                         tuple((_REC_WORDS.get(k, k.replace("_", " ")), _fmt_any(v)) for k, v in rec.items()
+                               if not isinstance(v, dict))))
+    if cands:
+        def stages(v):
+            if isinstance(v, list) and v:
+                return f"{len(v)} x {v[0]:g}" if len(set(v)) == 1 else ", ".join(f"{x:g}" for x in v)
+            return _fmt_any(v)
+
+        def yes_no(v):
+            return "yes" if v else "no"
+
+        cols = (Column("n", "", _fmt_any, "right"), Column("p", "%", _fmt_any, "right"),
+                Column("f tuning", "Hz", _fmt_any, "right"), Column("capacitor", "kV", _fmt_any, "right"),
+                Column("stages", "kvar", stages, "right", 16), Column("qualifies", "", yes_no, "left"),
+                Column("why", "", _s, "left", 70))
+        keys = ("tuning_order", "detuning_pct", "f_tuning_hz", "rated_kv", "steps_kvar", "qualified", "why")
+        out.append(Table(f"table_detuning_candidates_{_safe(bank['name'])}.csv",
+                         f"Bank {bank['name']}: detuning candidates", cols,
+                         tuple(tuple(c.get(k) for k in keys) for c in cands)))
+    return out
+
+
+def _fmt_any(v) -> str:
+    if isinstance(v, float):
+        return f"{v:.4g}"
+    if isinstance(v, (list, tuple)):
+        vals = [_fmt_any(x) for x in v]
+        if len(set(vals)) == 1 and len(vals) > 2:
+            return f"{len(vals)} x {vals[0]}"
+        return ", ".join(vals)
+    return _s(v)
+
+
+def _spectrum_tables(bank: dict, lim: _Limits, scen: str = "nominal") -> list[Table]:
+    """Per-order tables of a bank: one CSV in long form; PDF tables order x step per location."""
+    steps = bank["steps"] if scen == "nominal" else (bank.get("weak_supply") or {}).get("steps", [])
+    rows_long = [(s.get("step"), r) for s in steps for r in _order_rows(s)]
+    out = []
+    safe = _safe(bank["name"]) + ("" if scen == "nominal" else "_weak")
+    if rows_long:
+        keys = []
+        for _k, r in rows_long:
+            keys += [k for k in r if k not in keys and k != "h" and not isinstance(r[k], (dict, list))]
+        cols = (Column("step", "-"), Column("h", "-")) + tuple(Column(k, "", _s) for k in keys)
+        out.append(Table(f"table_harmonics_{safe}.csv", f"Bank {bank['name']}: per-order results, {scen} supply",
+                         cols, tuple((k, r.get("h"), *[r.get(x) for x in keys]) for k, r in rows_long)))
+    for where, what, unit in (("bus", f"harmonic voltage at bus {bank['bus']}", "% of nominal"),
+                              ("pcc", "harmonic voltage at the PCC", "% of nominal"),
+                              ("i_pcc", "harmonic current into the supply at the PCC", "% of I_L")):
+        per = [_spectrum(s, where) for s in steps]
+        orders = sorted({h for d in per for h in d})
+        if not orders:
+            continue
+        cols = [Column("order h", "-", _s)] + [Column(f"step {s['step']}", unit.split()[0], _f(2)) for s in steps]
+        lims = None
+        if where == "pcc" and lim.pcc_ind is not None:
+            lims = {h: lim.pcc_ind for h in orders}
+        elif where == "i_pcc":
+            lims = {}
+            for s in steps:
+                for h, v in _spectrum(s, "i_lim").items():
+                    lims.setdefault(h, v)
+        if lims:
+            cols.append(Column("limit", unit.split()[0], _f(2)))
+        rows, bad = [], set()
+        for i, h in enumerate(orders):
+            row = [h] + [d.get(h) for d in per]
+            if lims:
+                row.append(lims.get(h))
+                for j, d in enumerate(per):
+                    if d.get(h) is not None and lims.get(h) is not None and d[h] > lims[h]:
+                        bad.add((i, 1 + j))
+            rows.append(tuple(row))
+        out.append(Table(f"table_spectrum_{where}_{safe}.csv", f"Bank {bank['name']}: {what}, {scen} supply "
+                         f"[{unit}]", tuple(cols), tuple(rows), bad=frozenset(bad)))
+    return out
+
+
+def report_tables(res: StudyResult, data: dict) -> list[Table]:
+    """Every table of the report (summary, inputs, spectra, detuning).
+
+    Parameters
+    ----------
+    res : StudyResult
+        Study result.
+    data : dict
+        Results dictionary from :func:`resonance.report.results_json.to_dict`.
+
+    Returns
+    -------
+    list of Table
+        Tables in report order.
+    """
+    out = []
+    for b in data["banks"]:
+        lim = _limits(res, data, b)
+        out.append(_summary_table(b, b["steps"], "nominal", lim, data.get("findings", ())))
+        if b.get("weak_supply"):
+            out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", _limits(res, data, b, "weak"),
+                                      data.get("findings", ())))
+    out += _input_tables(res, data)
+    for b in data["banks"]:
+        out += _spectrum_tables(b, _limits(res, data, b))
+        out += _detuning_tables(b)
+    return out

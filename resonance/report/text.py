@@ -1,0 +1,245 @@
+"""Words of the submittal report generated from the results: verdicts, methods, assumptions.
+
+Edge layer, no matplotlib.
+"""
+
+from __future__ import annotations
+
+from resonance.report import figures as rf
+from resonance.report.tables import (DUTY_KEYS, DUTY_LABEL, _detuning, _duty_limit_set, _fmt_any, _has_duty,
+                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc, _v519)
+from resonance.assessment.study import StudyResult
+
+__all__ = ["NOT_EVALUATED"]
+
+NOT_EVALUATED = "not evaluated in this version"
+
+
+def _steps_list(ks: list[int]) -> str:
+    ks = [str(k) for k in ks]
+    if len(ks) <= 1:
+        return "".join(ks)
+    return ", ".join(ks[:-1]) + " and " + ks[-1]
+
+
+def _res_sentence(steps: list[dict], margin: float, scen: str) -> str:
+    bad = [s for s in steps if s.get("resonance_ok") is False]
+    with_h = [s for s in steps if s.get("h_scan") is not None and s.get("margin_pct") is not None]
+    if not with_h:
+        return f"Resonance, {scen} supply: no step shows a resonance near an order of concern in the scan range."
+    worst = min(with_h, key=lambda s: abs(s["margin_pct"]))
+    side = "above" if worst["margin_pct"] > 0 else "below"
+    where = (f"step {worst['step']} (h = {worst['h_scan']:.2f}, {abs(worst['margin_pct']):.1f} % {side} the "
+             f"{worst.get('nearest_kind') or ''} {rf.ordinal(worst['nearest_order'])})")
+    if bad:
+        word = "step" if len(bad) == 1 else "steps"
+        return (f"Resonance, {scen} supply: {len(bad)} of {len(steps)} steps resonate inside the +-{margin:g} % "
+                f"screening band of an order of concern ({word} {_steps_list([s['step'] for s in bad])}); "
+                f"the closest is {where}.")
+    return (f"Resonance, {scen} supply: no step resonates inside the +-{margin:g} % screening band; "
+            f"the closest is {where}.")
+
+
+_CHECK_WORDS = {"resonance": "resonance", "pcc_thd_v": "PCC voltage THD", "pcc_v_individual": "PCC individual "
+                "harmonic voltage", "pcc_tdd": "PCC TDD", "pcc_i_individual": "PCC individual harmonic current"}
+
+
+def _check_word(c: str) -> str:
+    if c.startswith("duty_"):
+        return f"capacitor duty ({DUTY_LABEL.get(c[5:], c[5:])})"
+    return _CHECK_WORDS.get(c, c.replace("_", " "))
+
+
+def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
+    margin = data["settings"]["margin_pct"]
+    kind = (f"a detuned bank (p = {bank['detuning_pct']:g} %, tuning order {bank['tuning_order']:.2f})"
+            if bank.get("detuning_pct") else "a plain (undetuned) bank")
+    n = len(bank["steps"])
+    out = [f"Bank {bank['name']} at bus {bank['bus']} ({bank['bus_kv']:g} kV) is {kind} of {n} steps, "
+           f"{sum(bank['stages_kvar']):g} kvar at {bank['rated_kv']:g} kV; short-circuit power at the bus "
+           f"{bank['sc_mva']:.2f} MVA."]
+    out.append(_res_sentence(bank["steps"], margin, "nominal"))
+    if bank.get("weak_supply"):
+        out.append(_res_sentence(bank["weak_supply"]["steps"], margin, "weak"))
+    steps = bank["steps"]
+    if _has_penetration(bank):
+        parts = []
+        off = bank.get("bank_off") if isinstance(bank.get("bank_off"), dict) else {}
+        tb = [(s["step"], _thd_bus(s)) for s in steps if _thd_bus(s) is not None]
+        if tb:
+            k, v = max(tb, key=lambda x: x[1])
+            o = _num(off.get("thd_v_pct"))
+            parts.append(f"the highest voltage THD at the bank bus is {v:.2f} % (step {k})"
+                         + (f", against {o:.2f} % with the bank off" if o is not None else ""))
+        tp = [(s["step"], _thd_pcc(s)) for s in steps if _thd_pcc(s) is not None]
+        if tp:
+            k, v = max(tp, key=lambda x: x[1])
+            lt = (f" against the IEEE 519 limit of {lim.pcc_thd:g} %" + (" - exceeded" if v > lim.pcc_thd else
+                                                                           " - within it")) if lim.pcc_thd else ""
+            parts.append(f"at the PCC {v:.2f} % (step {k}){lt}")
+        td = [(s["step"], _num(s.get("tdd_pct"))) for s in steps if _num(s.get("tdd_pct")) is not None]
+        if td:
+            k, v = max(td, key=lambda x: x[1])
+            lt = (f" against {lim.tdd:g} %" + (" - exceeded" if v > lim.tdd else " - within it")) if lim.tdd else ""
+            parts.append(f"the highest TDD at the PCC is {v:.1f} % of I_L (step {k}){lt}")
+        out.append("Harmonic penetration, nominal supply: " + "; ".join(parts) + ".")
+    else:
+        out.append(f"Harmonic penetration (THD at the bank bus and the PCC): {NOT_EVALUATED}.")
+    if _has_duty(bank):
+        fails = []
+        for s in steps:
+            over = [DUTY_LABEL[q] for q, k in DUTY_KEYS.items()
+                    if _num(s.get(k)) is not None and q in lim.duty and _num(s.get(k)) > lim.duty[q]]
+            if over or s.get("duty_ok") is False:
+                fails.append((s["step"], over))
+        worst = max(((s["step"], q, _num(s.get(k)) - lim.duty[q]) for s in steps for q, k in DUTY_KEYS.items()
+                     if _num(s.get(k)) is not None and q in lim.duty), key=lambda x: x[2], default=None)
+        if fails:
+            detail = "; ".join(f"step {k}: {', '.join(o) if o else 'duty check failed'}" for k, o in fails)
+            out.append(f"Capacitor duty, nominal supply: beyond the {lim.duty_name} limits on {len(fails)} of {n} "
+                       f"steps ({detail}).")
+        elif worst is not None:
+            out.append(f"Capacitor duty, nominal supply: within the {lim.duty_name} limits on every step; the "
+                       f"smallest margin is {-worst[2]:.1f} points ({DUTY_LABEL[worst[1]]}, step {worst[0]}).")
+    else:
+        out.append(f"Capacitor duty against the {lim.duty_name} limits: {NOT_EVALUATED}.")
+    rec, _c = _detuning(bank)
+    if rec:
+        bits = []
+        if _num(rec.get("detuning_pct")) is not None:
+            bits.append(f"p = {_num(rec['detuning_pct']):g} %")
+        if _num(rec.get("tuning_order")) is not None:
+            bits.append(f"tuning order {_num(rec['tuning_order']):.2f}")
+        if _num(rec.get("rated_kv")) is not None:
+            bits.append(f"capacitors rated {_num(rec['rated_kv']):g} kV")
+        if rec.get("steps_kvar"):
+            bits.append(f"steps {_fmt_any(rec['steps_kvar'])} kvar")
+        out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
+    elif not bank.get("detuning_pct"):
+        out.append(f"Detuning proposal: {NOT_EVALUATED}.")
+    mine = [f for f in data.get("findings", []) if f.get("bank") == bank["name"]]
+    finds = [f for f in mine if f.get("cause", "bank") == "bank"]
+    site = [f for f in mine if f.get("cause") == "site"]
+    if site:
+        out.append(f"Site condition: {len(site)} distortion figure(s) at the PCC are already beyond their limit "
+                   "with the bank off and the bank does not make them worse; they are the site's own emission, "
+                   "listed with their bank-off values, and do not decide the bank's verdict.")
+    if finds:
+        by: dict[str, dict[str, set]] = {}
+        for f in finds:
+            by.setdefault(str(f.get("scenario", "nominal")), {}).setdefault(_check_word(str(f.get("check"))),
+                                                                            set()).add(f.get("step"))
+        parts = []
+        for scen in sorted(by, key=lambda x: (x != "nominal", x)):
+            items = ", ".join(f"{w} (step{'s' if len(k) > 1 else ''} "
+                              f"{_steps_list(sorted(x for x in k if x is not None))})"
+                              for w, k in sorted(by[scen].items()))
+            parts.append(f"{scen} supply - {items}")
+        out.append(f"Verdict: the bank as specified does not pass the screening; {len(finds)} finding(s): "
+                   + "; ".join(parts) + ".")
+    else:
+        out.append("Verdict: the bank as specified passes every screening check evaluated in this version.")
+    return out
+
+
+_R_MODEL = {
+    "constant": "series resistance constant with frequency (no skin effect; common practice for screening)",
+    "sqrt_h": "series resistance rising as sqrt(h) (skin-effect approximation; common practice)",
+    "breuer": "series resistance R(1 + 0.1 h^1.5)/1.1 (Breuer et al., IEEE Trans. PAS; from memory)",
+}
+_L_MODEL = {
+    "parallel_rl": "linear loads as parallel R-L: R = V^2/P, X = h V^2/Q (common practice)",
+    "series_rl": "linear loads as series R-L drawing P and Q at the fundamental",
+    "cigre_c4": "linear loads by the CIGRE 36.05 model: R = V^2/P, X_s = 0.073 h R, X_p = h R/(6.7 Q/P - 0.74) "
+                "(coefficients from memory)",
+    "none": "linear loads ignored (no load damping; conservative peaks)",
+}
+
+
+def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
+    st = data["settings"]
+    v_pcc = _pcc_kv(res, data)
+    v519 = _v519(v_pcc, data)
+    dl = _duty_limit_set(data)
+    m = [
+        "Supply: Thevenin source at the supply bus, X = V^2/S_sc split by the X/R ratio, reactance proportional "
+        "to h." + (" A weak-supply scenario repeats the scan with the minimum short-circuit power."
+                   if data["supply"].get("sc_mva_min") else ""),
+        "Transformers: X = (Z%/100) V^2/S_T, proportional to h; cables and lines: series R + jX per km with the "
+        "shunt capacitance (pi section).",
+        f"Resistance model ({st.get('resistance_model')}): "
+        f"{_R_MODEL.get(st.get('resistance_model'), st.get('resistance_model'))}.",
+        f"Load model ({st.get('load_model')}): {_L_MODEL.get(st.get('load_model'), st.get('load_model'))}.",
+        "Capacitors: constant capacitance from the nameplate kvar at the rated voltage (Q = Q_R (U/U_R)^2); detuned "
+        "steps with a series reactor p = X_L/X_C of the given X/R. Delivered kvar uses the load-flow bus voltage "
+        "with the step in service (Newton-Raphson on the bus admittance matrix pandapower builds, checked "
+        "against pandapower's own load flow).",
+        f"Frequency scan: driving-point impedance |Z(h)| at the bank bus for every step, h = 1 to {st.get('h_max'):g} "
+        f"in steps of {st.get('h_step'):g}, peaks refined locally; h_est = sqrt(S_sc/Q_C) is the hand check "
+        "(IEEE Std 1036). Other banks: " + ("in service at full size." if st.get("other_banks") == "full"
+                                            else "out of service."),
+        f"Screening: a resonance within +-{st.get('margin_pct'):g} % of an injected, background or characteristic "
+        "order (k p +- 1) is a finding (common practice).",
+        "Short-circuit power at each bank bus is cross-checked with IEC 60909-0:2016 through pandapower.",
+        f"Voltage distortion limits: IEEE Std 519-{st.get('ieee519_edition')}, applied at the PCC "
+        f"(bus {data.get('pcc_bus')}" + (f", {v_pcc:g} kV" if v_pcc else "") + ")"
+        + (f": individual {v519.individual_pct:g} %, THD {v519.thd_pct:g} % ({v519.source})." if v519 else "."),
+        "Capacitor duty limits: " + (f"{dl.citation} - rms voltage {dl.v_rms:g}, crest voltage {dl.v_peak:g}, rms "
+                                     f"current {dl.i_rms:g}, reactive power {dl.q:g} pu. {dl.note}." if dl else
+                                     str(st.get("duty_limits"))),
+        *_current_limit_lines(data),
+        "Summation of several sources: " + ("arithmetic sum of magnitudes (worst case)." if st.get("summation") ==
+                                            "arithmetic" else "IEC 61000-3-6 summation law, exponents 1 (h < 5), "
+                                            "1.4 (5-10), 2 (h > 10) (from memory)."),
+    ]
+    mem = []
+    if dl:
+        for q, src in (("rms voltage", dl.v_rms_source), ("crest voltage", dl.v_peak_source),
+                       ("rms current", dl.i_rms_source), ("reactive power", dl.q_source)):
+            if "memory" in src:
+                mem.append(f"Capacitor {q} limit of {dl.name}: {src}.")
+    if v519 and "memory" in v519.source:
+        mem.append(f"IEEE 519 voltage limits at {v_pcc:g} kV: {v519.source}.")
+    if st.get("summation") != "arithmetic":
+        mem.append("IEC 61000-3-6 summation exponents (from memory).")
+    if st.get("resistance_model") == "breuer":
+        mem.append("Breuer resistance law 1 + 0.1 h^1.5 (from memory).")
+    if st.get("load_model") == "cigre_c4":
+        mem.append("CIGRE 36.05 load model coefficients 0.073, 6.7 and 0.74 (from memory).")
+    for b in data["banks"]:
+        if _detuning(b)[0]:
+            mem.append(f"Capacitance tolerance {rf.CAP_TOLERANCE[0] * 100:+.0f}/{rf.CAP_TOLERANCE[1] * 100:+.0f} % "
+                       "used for the detuning band (from memory; editions differ).")
+            break
+    for spec in _builtin_notes(res):
+        mem.append(spec)
+    mem.append(f"The +-{st.get('margin_pct'):g} % screening band around the orders of concern is common practice, "
+               "not a limit of a standard.")
+    return m, mem
+
+
+def _current_limit_lines(data: dict) -> list[str]:
+    out = []
+    for b in data["banks"]:
+        pi = (b.get("limits") or {}).get("pcc_i_limits")
+        if not isinstance(pi, dict):
+            continue
+        bits = [f"Current distortion limits (bank {b['name']}, nominal supply): IEEE Std 519 TDD "
+                f"{_s(pi.get('tdd_pct'))} % of I_L"]
+        if pi.get("isc_over_il") is not None:
+            bits.append(f"I_sc/I_L = {_fmt_any(pi.get('isc_over_il'))} (row {_s(pi.get('row'))})")
+        if pi.get("i_l_a") is not None:
+            bits.append(f"I_L = {_fmt_any(pi.get('i_l_a'))} A ({_s(pi.get('i_l_basis'))})")
+        out.append(", ".join(bits) + (f". Source: {pi['source']}." if pi.get("source") else "."))
+    return out
+
+
+def _builtin_notes(res: StudyResult) -> list[str]:
+    from resonance.standards.spectra import BUILTIN_SPECTRA  # noqa: PLC0415
+    out = []
+    for name in sorted({hs.spectrum for hs in res.case.harmonic_source if isinstance(hs.spectrum, str)}):
+        sp = BUILTIN_SPECTRA.get(name)
+        note = getattr(sp, "note", "") if sp is not None else ""
+        if note and "memory" in note:
+            out.append(f"Built-in spectrum '{name}': {note}")
+    return out

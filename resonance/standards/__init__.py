@@ -1,0 +1,1 @@
+"""Standards: published limits, capacitor duty rules, harmonic source spectra."""
