@@ -15,6 +15,7 @@ import tomllib
 import pytest
 
 from resonance.cli import main
+from resonance.assessment.findings import Finding
 from resonance.assessment.verdict import CAUSE_ABS_TOL_PCT, CAUSE_REL_TOL, bank_passes, distortion_cause
 
 from .conftest import CASES
@@ -37,9 +38,17 @@ def test_distortion_cause_follows_its_definition():
 
 
 def test_resonance_and_duty_findings_are_always_the_bank_s():
-    fs = [{"bank": "B", "check": "resonance", "cause": "site"}, {"bank": "B", "check": "duty_v_peak"}]
-    assert not bank_passes(fs, "B")
-    assert bank_passes([{"bank": "B", "check": "pcc_tdd", "cause": "site"}], "B")
+    def f(check, cause="bank"):
+        return Finding(check=check, bank="B", step=1, scenario="nominal", value=1.0, limit=0.5, unit="%",
+                       source="test", message="m", cause=cause)
+
+    assert not bank_passes([f("resonance", "site"), f("duty_v_peak")], "B")
+    assert not bank_passes([f("duty_v_peak")], "B")
+    assert bank_passes([f("pcc_tdd", "site")], "B")
+    assert not bank_passes([f("pcc_tdd", "bank")], "B")
+    assert bank_passes([f("pcc_tdd", "bank")], "other bank")
+    with pytest.raises(ValueError):
+        f("no such check")
 
 
 def test_cold_store_site_tdd_is_the_site_s_and_the_detuned_bank_passes(tmp_path):

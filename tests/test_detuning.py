@@ -13,19 +13,10 @@ import pytest
 
 from resonance.model import netmodel
 from resonance.inputs.case import load_case, parse_case
-from resonance.design.detuning import (
-    DetuningSettings,
-    _bank_status,
-    capacitor_rating_kv,
-    detuned_step,
-    detuning_settings,
-    nameplate_kvar,
-    parallel_band,
-    propose_detuning,
-    rearrange_stages,
-    stage_share_max,
-    tuning_band,
-)
+from resonance.assessment.tuning import DetuningSettings, detuning_settings, parallel_band, tuning_band
+from resonance.design.detuned_step import (capacitor_rating_kv, detuned_step, nameplate_kvar, rearrange_stages,
+                                           stage_share_max)
+from resonance.design.detuning import _bank_status, propose_detuning
 from resonance.errors import InputError
 from resonance.harmonics.screening import h_estimate
 from resonance.assessment.study import run_study
@@ -236,7 +227,7 @@ def test_significant_third_never_gets_order_above_three(where):
 
 def test_demo_plain_bank_gets_qualifying_proposal_that_passes_when_pasted(demo, tmp_path):
     case, model, result, prop = demo
-    assert any(f["bank"] == "PFC-1" and f["check"] == "resonance" for f in result.findings)  # plain bank fails
+    assert any(f.bank == "PFC-1" and f.check == "resonance" for f in result.findings)  # plain bank fails
     e = prop["PFC-1"]
     rec = e["recommended"]
     assert rec is not None and e["status"] == "proposed"
@@ -253,7 +244,7 @@ def test_demo_plain_bank_gets_qualifying_proposal_that_passes_when_pasted(demo, 
     pasted = load_case(path)
     assert pasted.bank[0].detuning_pct == rec["detuning_pct"]
     res2 = run_study(pasted, model=model)
-    bad = [f for f in res2.findings if f["bank"] == "PFC-1" and (f["check"] == "resonance" or f["check"].startswith("duty"))]
+    bad = [f for f in res2.findings if f.bank == "PFC-1" and (f.check == "resonance" or f.check.startswith("duty"))]
     assert bad == []
     # derived from Q_net = Q_CR (U/U_CR)^2/(1-p): each step still delivers the plain bank's 100 kvar per stage
     sc = res2.scans_for("PFC-1", "nominal")
@@ -293,7 +284,7 @@ def test_demo_candidates_carry_ratings_and_tolerance(demo):
 def test_demo_rearrangement_none_when_full_bank_fails(demo):
     _, _, result, prop = demo
     ra = prop["PFC-1"]["rearrangement"]
-    full_fails = any(f["bank"] == "PFC-1" and f["check"] == "resonance" and f["step"] == 8 for f in result.findings)
+    full_fails = any(f.bank == "PFC-1" and f.check == "resonance" and f.step == 8 for f in result.findings)
     # derived: every arrangement of the same total shares the full-bank state
     assert full_fails  # demo: step 8 is 9.9 % from the 7th (study finding)
     assert ra is not None and ra["exists"] is False and "full bank" in ra["reason"]
@@ -337,7 +328,7 @@ steps_kvar = [100.0, 100.0, 100.0, 100.0, 100.0]
 
 def test_rearrangement_found_and_confirmed():
     case, model, res = _study(tomllib.loads(REARRANGE))
-    assert any(f["check"] == "resonance" for f in res.findings)
+    assert any(f.check == "resonance" for f in res.findings)
     assert any(s.resonance_ok for sc in res.scans for s in sc.steps)  # fails only on some steps
     ra = propose_detuning(case, model, res)["B1"]["rearrangement"]
     assert ra["exists"] and ra["confirmed"]
@@ -347,7 +338,7 @@ def test_rearrangement_found_and_confirmed():
     # confirmed by the full study: every state clear of the orders of concern in both scenarios
     variant = case.model_copy(update={"bank": [case.bank[0].model_copy(update={"steps_kvar": list(steps)})]})
     res2 = run_study(variant, model=model)
-    assert not [f for f in res2.findings if f["check"] == "resonance"]
+    assert not [f for f in res2.findings if f.check == "resonance"]
 
 
 # ----------------------------------------------------------------------------- helpers and settings
@@ -364,9 +355,9 @@ def test_bank_off_pcc_reference_is_the_limit_of_a_tiny_bank():
         assert f["tdd_pct"] == pytest.approx(off["tdd_pct"], rel=1e-3)
         assert f["thd_v_pcc_pct"] == pytest.approx(off["thd_v_pcc_pct"], rel=1e-3)
         for fd in asm.steps[0].findings:  # each distortion finding's bank-off value is its own limit case
-            if "value_bank_off" in fd:
-                assert fd["value"] == pytest.approx(fd["value_bank_off"], rel=1e-3, abs=1e-3)
-                assert fd["cause"] == "site"
+            if fd.value_bank_off is not None:
+                assert fd.value == pytest.approx(fd.value_bank_off, rel=1e-3, abs=1e-3)
+                assert fd.cause == "site"
     status = _bank_status(res, case, model, "PFC-1")
     assert status["pcc_ok"]  # an excess that the bank does not worsen does not block it
 

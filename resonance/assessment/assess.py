@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from resonance.assessment.findings import Finding
 from resonance.assessment.verdict import distortion_cause
 from resonance.inputs.case import Case
 from resonance.standards.duty import capacitor_duty, duty_limits
@@ -269,44 +270,43 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
                               ("i_rms", duty.i_rms_pct, lim.i_rms), ("kvar", duty.kvar_pct, lim.q)):
             val, limp = float(vals[s]), float(limv) * 100.0
             if val > limp:  # each quantity beyond its limit is a finding of its own
-                finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": f"duty_{g}",
-                              "value": round(val, 2), "limit": round(limp, 2), "unit": "% of rating",
-                              "source": lim.citation, "cause": "bank",
-                              "message": f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
-                                         f"{lim.name} limit {limp:.0f} %"})
+                finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check=f"duty_{g}",
+                                     value=val, limit=limp, unit="% of rating", source=lim.citation, cause="bank",
+                                     message=f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
+                                             f"{lim.name} limit {limp:.0f} %"))
         if thd_p > vlim.thd_pct:
-            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_thd_v",
-                          "value": round(thd_p, 3), "limit": vlim.thd_pct, "unit": "% of nominal voltage",
-                          "source": vlim.source, "value_bank_off": round(thd_p_off, 3),
-                          "cause": distortion_cause(thd_p, thd_p_off, vlim.thd_pct),
-                          "message": f"{tag}: voltage THD at the PCC {thd_p:.2f} % exceeds the IEEE 519 limit "
-                                     f"{vlim.thd_pct:g} %"})
+            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_thd_v",
+                                 value=thd_p, limit=vlim.thd_pct, unit="% of nominal voltage",
+                                 source=vlim.source, value_bank_off=thd_p_off,
+                                 cause=distortion_cause(thd_p, thd_p_off, vlim.thd_pct),
+                                 message=f"{tag}: voltage THD at the PCC {thd_p:.2f} % exceeds the IEEE 519 limit "
+                                         f"{vlim.thd_pct:g} %"))
         if worst_ind > vlim.individual_pct:
             jw = int(np.argmax(vp))
             hw = int(h[jw])
             off_w = 100.0 * float(vp_off[jw])
-            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_v_individual",
-                          "value": round(worst_ind, 3), "limit": vlim.individual_pct, "order": hw,
-                          "unit": "% of nominal voltage", "source": vlim.source, "value_bank_off": round(off_w, 3),
-                          "cause": distortion_cause(worst_ind, off_w, vlim.individual_pct),
-                          "message": f"{tag}: harmonic {hw} voltage at the PCC {worst_ind:.2f} % exceeds the "
-                                     f"IEEE 519 individual limit {vlim.individual_pct:g} %"})
+            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_v_individual",
+                                 value=worst_ind, limit=vlim.individual_pct, order=hw,
+                                 unit="% of nominal voltage", source=vlim.source, value_bank_off=off_w,
+                                 cause=distortion_cause(worst_ind, off_w, vlim.individual_pct),
+                                 message=f"{tag}: harmonic {hw} voltage at the PCC {worst_ind:.2f} % exceeds the "
+                                         f"IEEE 519 individual limit {vlim.individual_pct:g} %"))
         if tdd > clim.tdd_pct:
-            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_tdd",
-                          "value": round(tdd, 3), "limit": clim.tdd_pct, "unit": "% of I_L", "source": clim.source,
-                          "value_bank_off": round(tdd_off, 3), "cause": distortion_cause(tdd, tdd_off, clim.tdd_pct),
-                          "message": f"{tag}: TDD at the PCC {tdd:.2f} % exceeds the IEEE 519 limit {clim.tdd_pct:g} % "
-                                     f"(Isc/IL = {ratio:.0f})"})
+            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_tdd",
+                                 value=tdd, limit=clim.tdd_pct, unit="% of I_L", source=clim.source,
+                                 value_bank_off=tdd_off, cause=distortion_cause(tdd, tdd_off, clim.tdd_pct),
+                                 message=f"{tag}: TDD at the PCC {tdd:.2f} % exceeds the IEEE 519 limit "
+                                         f"{clim.tdd_pct:g} % (Isc/IL = {ratio:.0f})"))
         if worst_i < 0:
             j = int(np.argmin(np.where(clim.limited, clim.individual_pct - ind_pct, np.inf)))
-            finds.append({"bank": bank.name, "step": s + 1, "scenario": scenario, "check": "pcc_i_individual",
-                          "value": round(float(ind_pct[j]), 3), "limit": float(clim.individual_pct[j]),
-                          "order": int(h[j]), "unit": "% of I_L", "source": clim.source,
-                          "value_bank_off": round(float(ind_off_pct[j]), 3),
-                          "cause": distortion_cause(float(ind_pct[j]), float(ind_off_pct[j]),
-                                                    float(clim.individual_pct[j])),
-                          "message": f"{tag}: harmonic {int(h[j])} current at the PCC {ind_pct[j]:.2f} % of I_L "
-                                     f"exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"})
+            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_i_individual",
+                                 value=float(ind_pct[j]), limit=float(clim.individual_pct[j]),
+                                 order=int(h[j]), unit="% of I_L", source=clim.source,
+                                 value_bank_off=float(ind_off_pct[j]),
+                                 cause=distortion_cause(float(ind_pct[j]), float(ind_off_pct[j]),
+                                                        float(clim.individual_pct[j])),
+                                 message=f"{tag}: harmonic {int(h[j])} current at the PCC {ind_pct[j]:.2f} % of "
+                                         f"I_L exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"))
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
     off = {"thd_v_pct": round(100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))), 4),
            "thd_v_pcc_pct": round(thd_p_off, 4), "tdd_pct": round(tdd_off, 4)}

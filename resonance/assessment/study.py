@@ -14,6 +14,7 @@ import numpy as np
 from resonance.model.admittance import YPattern, bank_step_admittance, bank_step_admittance_dh
 from resonance.inputs.case import Case
 from resonance.errors import InputError, InputProblem, ModelError
+from resonance.assessment.findings import Finding
 from resonance.model.network import NetworkArrays
 from resonance.harmonics.scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, impedance_columns_dh,
                    refine_peaks)
@@ -513,14 +514,15 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
     for sc in scans:
         for s in sc.steps:
             if not s.resonance_ok:
-                findings.append({
-                    "bank": sc.bank.name, "step": s.step, "scenario": sc.scenario, "check": "resonance",
-                    "value": s.h_scan, "limit": st.margin_pct, "unit": "harmonic order (limit: % margin)",
-                    "source": "screening margin of the case ([study] margin_pct; common practice)", "cause": "bank",
-                    "message": (f"bank {sc.bank.name} step {s.step} ({sc.scenario} supply): resonance at "
-                                f"h = {s.h_scan:.2f} is {abs(s.margin_pct):.1f} % from the {s.nearest_kind} "
-                                f"order {s.nearest_order} (screening margin {st.margin_pct:g} %)"),
-                })
+                findings.append(Finding(
+                    bank=sc.bank.name, step=s.step, scenario=sc.scenario, check="resonance",
+                    value=s.h_scan, limit=st.margin_pct, unit="harmonic order (limit: % margin)",
+                    source="screening margin of the case ([study] margin_pct; common practice)", cause="bank",
+                    order=s.nearest_order,
+                    message=(f"bank {sc.bank.name} step {s.step} ({sc.scenario} supply): resonance at "
+                             f"h = {s.h_scan:.2f} is {abs(s.margin_pct):.1f} % from the {s.nearest_kind} "
+                             f"order {s.nearest_order} (screening margin {st.margin_pct:g} %)"),
+                ))
             if s.damping_sensitive and s.h_scan is not None:
                 warnings_.append(f"bank {sc.bank.name} step {s.step} ({sc.scenario}): peak at h = {s.h_scan:.2f} "
                                  "is lightly damped; harmonic voltages there depend strongly on the load model")
@@ -530,7 +532,7 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
                 findings.extend(sd.findings)
         if sc.steps and sc.steps[0].h_scan is None:
             warnings_.append(f"bank {sc.bank.name} ({sc.scenario}): no resonance below h_max = {st.h_max:g} on step 1")
-    from resonance.design.detuning import detuned_bank_findings  # noqa: PLC0415 - the proposals' own tuning rule
+    from resonance.assessment.tuning import detuned_bank_findings  # noqa: PLC0415 - the proposals' own tuning rule
 
     findings.extend(detuned_bank_findings(case, sources, orders.characteristic, scans))
     res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,

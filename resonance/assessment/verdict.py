@@ -57,16 +57,17 @@ def distortion_cause(value_pct: float, value_off_pct: float, limit_pct: float) -
     return "bank"
 
 
-def _cause(f: dict) -> str:
-    return "bank" if f.get("check") in BANK_CHECKS else f.get("cause", "bank")
+def _cause(f) -> str:
+    return "bank" if f.check in BANK_CHECKS else f.cause
 
 
-def bank_findings(findings, bank: str | None = None) -> list[dict]:
-    """The findings that are the bank's (of one bank when ``bank`` is given) [unitless]."""
-    return [f for f in findings if _cause(f) == "bank" and (bank is None or f.get("bank") == bank)]
+def bank_findings(findings, bank: str | None = None) -> list:
+    """The :class:`~resonance.assessment.findings.Finding` objects that are the bank's (of one
+    bank when ``bank`` is given) [unitless]."""
+    return [f for f in findings if _cause(f) == "bank" and (bank is None or f.bank == bank)]
 
 
-def site_findings(findings) -> list[dict]:
+def site_findings(findings) -> list:
     """The findings that are the site's own distortion [unitless]."""
     return [f for f in findings if _cause(f) == "site"]
 

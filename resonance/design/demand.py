@@ -94,7 +94,7 @@ def time_in_step(case, res) -> dict:
                                   min_time_between_ops_min=dm.min_time_between_ops_min)
     r = simulate_controller(data.p_kw, data.q_kvar, data.dt_h, list(stages), settings)
     table = time_in_step_table(r, list(sc.bank.stages_kvar))
-    bad_steps = {f["step"] for f in bank_findings(res.findings, name) if f["scenario"] in ("nominal", "all")}
+    bad_steps = {f.step for f in bank_findings(res.findings, name) if f.scenario in ("nominal", "all")}
     frac = table["fraction"]
     p = np.asarray(data.p_kw, float)
     q_net = np.asarray(r.q_net_kvar, float)  # drawn from the supply after compensation

@@ -8,10 +8,11 @@ pass.  Where a plain bank fails only on some steps it also looks for another
 split of the same total kvar into stages whose every switching state stays
 clear of the harmonic orders of concern.
 
-The rating arithmetic (:func:`detuned_step`, :func:`nameplate_kvar`,
-:func:`tuning_band`, :func:`parallel_band`, :func:`rearrange_stages`) is pure;
-:func:`propose_detuning` additionally calls :func:`resonance.assessment.study.run_study`
-for the re-check.  No files, no printing.
+The rating arithmetic lives in :mod:`resonance.design.detuned_step`, the settings and the
+tuning rule in :mod:`resonance.assessment.tuning` (the judge applies the same rule to a detuned
+bank the user wrote).  :func:`propose_detuning` re-checks every candidate with the one study
+(:func:`resonance.assessment.study.run_study`); its verdict is the assessment's
+(:mod:`resonance.assessment.verdict`).  No files, no printing.
 
 References
 ----------
@@ -25,522 +26,17 @@ banks" (p, n, U_C, Q_net, tolerances, linearity current).
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, fields
+from dataclasses import asdict
 
 import numpy as np
 
+from resonance.assessment.tuning import (SETTING_SOURCES, DetuningSettings, detuning_settings, parallel_band, tolerance_corners,
+                                         significant_orders, tuning_band, tuning_reasons)
+from resonance.design.detuned_step import (DetunedStep, capacitor_rating_kv, detuned_step, nameplate_kvar,
+                                           next_ratings, rearrange_stages, stage_share_max)
 from resonance.errors import InputError, ModelError
 
-__all__ = [
-    "run_variant",
-    "DetuningSettings",
-    "DetunedStep",
-    "detuning_settings",
-    "detuned_step",
-    "nameplate_kvar",
-    "capacitor_rating_kv",
-    "tuning_band",
-    "parallel_band",
-    "significant_orders",
-    "stage_share_max",
-    "rearrange_stages",
-    "propose_detuning",
-]
-
-# ----------------------------------------------------------------------------- settings
-
-#: Where each default comes from (reported with the settings).
-SETTING_SOURCES = {
-    "tuning_orders": "common practice: p = 4.34, 5.17, 5.67, 6.93, 8.16, 13.7 %; REFERENCES.md lists "
-                     "5.67 % -> 4.20, 7 % -> 3.78, 14 % -> 2.67 [derived]",
-    "search": "project choice: 'list' tries tuning_orders; 'continuous' adds the highest order that meets "
-              "both margins",
-    "order_margin_pct": "common practice: tune below about 90 % of the lowest significant harmonic "
-                        "(REFERENCES.md: 'or below 90 % of the dominant harmonic' [published])",
-    "band_margin_pct": "project choice (common practice): the tolerance/ageing band of the tuning order "
-                       "must stay this far below a significant harmonic",
-    "significant_background_pct": "project choice: background voltage at or above this [% of nominal] "
-                                  "makes an order significant",
-    "significant_injection_pct": "project choice: a source current at or above this [% of the source's "
-                                 "fundamental] makes an order significant",
-    "cap_tolerance_pct": "REFERENCES.md: capacitance -5/+10 % for units [memory; editions differ]",
-    "reactor_tolerance_pct": "common practice, from memory: detuning reactors +-3 % inductance",
-    "standard_cap_kv": "common practice, from memory: low-voltage capacitor ratings offered by makers",
-    "mv_cap_step_kv": "common practice, from memory: above 1 kV units are made to order; the bank rating "
-                      "is rounded up to this step",
-    "cap_voltage_margin_pct": "project choice: rated voltage at least U/(1-p) (1 + margin); the re-check's "
-                              "duty limits then decide",
-    "max_rating_steps": "project choice: how many higher ratings are tried when duty fails",
-    "reactor_loss_w_per_kvar": "optional, from the reactor maker: losses per kvar of stage net output",
-    "linearity_factor": "REFERENCES.md: linearity current K x I_N [published, manufacturer practice]; "
-                        "K = 1.8 common practice, from memory",
-    "rearrange_unit_kvar": "project choice: unit for re-arranged stage sizes (auto: 1-2-2.5-5 value "
-                           "<= total / (4 N))",
-    "recheck": "project choice: 'all' re-checks every candidate that passes the pre-screen, "
-               "'first' stops at the first that qualifies",
-}
-
-
-@dataclass(frozen=True)
-class DetuningSettings:
-    """Settings of the detuning proposal (a ``[detuning]`` table in the case).
-
-    Attributes
-    ----------
-    tuning_orders : tuple of float
-        Series tuning orders tried [unitless].
-    search : str
-        "list" or "continuous" [unitless].
-    order_margin_pct : float
-        Nominal tuning at least this far below the lowest significant harmonic [%].
-    band_margin_pct : float
-        Tolerance band of the tuning (and the parallel resonances) at least this
-        far from every significant harmonic [%].
-    significant_background_pct : float
-        Background voltage threshold for a significant order [% of nominal].
-    significant_injection_pct : float
-        Source current threshold for a significant order [% of fundamental].
-    cap_tolerance_pct, reactor_tolerance_pct : tuple of float
-        (low, high) capacitance and inductance deviation [%].
-    standard_cap_kv : tuple of float
-        Capacitor rated voltages that can be bought [kV].
-    mv_cap_step_kv : float
-        Rounding step of made-to-order ratings above the list [kV].
-    cap_voltage_margin_pct : float
-        Margin on the fundamental capacitor voltage when picking the rating [%].
-    max_rating_steps : int
-        Higher ratings tried when the re-check fails on duty [unitless].
-    reactor_loss_w_per_kvar : float or None
-        Reactor losses per kvar of stage net output [W/kvar].
-    linearity_factor : float
-        Linearity current over rated current, K [unitless].
-    rearrange_unit_kvar : float or None
-        Stage-size unit of re-arrangements (None: automatic) [kvar].
-    recheck : str
-        "all" or "first" [unitless].
-    """
-
-    tuning_orders: tuple = (4.8, 4.4, 4.2, 3.8, 3.5, 2.7)
-    search: str = "list"
-    order_margin_pct: float = 10.0
-    band_margin_pct: float = 5.0
-    significant_background_pct: float = 0.5
-    significant_injection_pct: float = 2.0
-    cap_tolerance_pct: tuple = (-5.0, 10.0)
-    reactor_tolerance_pct: tuple = (-3.0, 3.0)
-    standard_cap_kv: tuple = (0.23, 0.24, 0.4, 0.415, 0.44, 0.48, 0.525, 0.6, 0.69, 0.8, 1.0)
-    mv_cap_step_kv: float = 0.1
-    cap_voltage_margin_pct: float = 0.0
-    max_rating_steps: int = 2
-    reactor_loss_w_per_kvar: float | None = None
-    linearity_factor: float = 1.8
-    rearrange_unit_kvar: float | None = None
-    recheck: str = "all"
-
-
-def _get(obj, key: str):
-    if obj is None:
-        return None
-    if isinstance(obj, dict):
-        return obj.get(key)
-    return getattr(obj, key, None)
-
-
-def detuning_settings(case) -> DetuningSettings:
-    """Settings from the case's optional ``detuning`` table (defaults where absent).
-
-    Parameters
-    ----------
-    case : Case
-        Validated case; ``case.detuning`` may be missing, None, a dict or a model.
-
-    Returns
-    -------
-    DetuningSettings
-
-    Raises
-    ------
-    InputError
-        A value out of range, naming ``detuning.<key>``.
-    """
-    raw = getattr(case, "detuning", None)
-    file = getattr(case, "source_file", "") or "<case>"
-    d = DetuningSettings()
-    vals = {}
-    for f in fields(DetuningSettings):
-        v = _get(raw, f.name)
-        vals[f.name] = getattr(d, f.name) if v is None else v
-
-    def bad(key: str, problem: str):
-        raise InputError.single(file, f"detuning.{key}", problem)
-
-    try:
-        orders = tuple(float(x) for x in vals["tuning_orders"])
-    except (TypeError, ValueError):
-        bad("tuning_orders", "must be a list of numbers")
-    if not orders or any(not (1.2 <= n <= 20.0) for n in orders):
-        bad("tuning_orders", f"every order must be between 1.2 and 20 (p below 70 %); got {list(orders)}")
-    vals["tuning_orders"] = orders
-    if vals["search"] not in ("list", "continuous"):
-        bad("search", f"must be 'list' or 'continuous'; got {vals['search']!r}")
-    if vals["recheck"] not in ("all", "first"):
-        bad("recheck", f"must be 'all' or 'first'; got {vals['recheck']!r}")
-    for key, lo, hi in (("order_margin_pct", 0.0, 50.0), ("band_margin_pct", 0.0, 50.0),
-                        ("significant_background_pct", 0.0, 30.0), ("significant_injection_pct", 0.0, 200.0),
-                        ("cap_voltage_margin_pct", 0.0, 50.0), ("linearity_factor", 1.0, 5.0),
-                        ("mv_cap_step_kv", 1e-3, 10.0)):
-        v = vals[key]
-        if not isinstance(v, (int, float)) or not (lo <= float(v) <= hi):
-            bad(key, f"must be a number from {lo:g} to {hi:g}; got {v!r}")
-        vals[key] = float(v)
-    for key in ("cap_tolerance_pct", "reactor_tolerance_pct"):
-        v = vals[key]
-        try:
-            lo, hi = (float(x) for x in v)
-        except (TypeError, ValueError):
-            bad(key, "must be [low, high] in percent")
-        if not (-50.0 < lo <= 0.0 <= hi < 100.0):
-            bad(key, f"must be [low <= 0, high >= 0] percent; got {list(v)}")
-        vals[key] = (lo, hi)
-    try:
-        kv = tuple(sorted(float(x) for x in vals["standard_cap_kv"]))
-    except (TypeError, ValueError):
-        bad("standard_cap_kv", "must be a list of voltages in kV")
-    if not kv or kv[0] <= 0:
-        bad("standard_cap_kv", "must hold positive voltages in kV")
-    vals["standard_cap_kv"] = kv
-    for key in ("reactor_loss_w_per_kvar", "rearrange_unit_kvar"):
-        v = vals[key]
-        if v is not None and (not isinstance(v, (int, float)) or not v > 0):
-            bad(key, f"must be a positive number; got {v!r}")
-    ms = vals["max_rating_steps"]
-    if not isinstance(ms, int) or not 0 <= ms <= 5:
-        bad("max_rating_steps", f"must be an integer from 0 to 5; got {ms!r}")
-    return DetuningSettings(**vals)
-
-
-# ----------------------------------------------------------------------------- pure rating arithmetic
-
-@dataclass(frozen=True, eq=False)
-class DetunedStep:
-    """Ratings of detuned stages (per phase, wye equivalent).
-
-    Attributes
-    ----------
-    x_c_ohm : ndarray
-        Capacitor reactance at the fundamental ``U_CR^2 / Q_CR`` [ohm].
-    x_l_ohm : ndarray
-        Reactor reactance ``p X_C`` [ohm].
-    l_mh : ndarray
-        Reactor inductance [mH].
-    n : float
-        Series tuning order ``1/sqrt(p)`` [unitless].
-    f_tuning_hz : float
-        Series tuning frequency [Hz].
-    u_c1_kv : float
-        Fundamental capacitor voltage at the bus voltage, ``U/(1-p)`` [kV].
-    q_net_kvar : ndarray
-        Net output of each stage at the bus voltage [kvar].
-    """
-
-    x_c_ohm: np.ndarray
-    x_l_ohm: np.ndarray
-    l_mh: np.ndarray
-    n: float
-    f_tuning_hz: float
-    u_c1_kv: float
-    q_net_kvar: np.ndarray
-
-
-def detuned_step(q_cap_kvar, u_cap_kv: float, p: float, f_hz: float, u_bus_kv: float) -> DetunedStep:
-    """Reactor and capacitor figures of detuned stages.
-
-    Parameters
-    ----------
-    q_cap_kvar : float or array_like
-        Capacitor nameplate of each stage at ``u_cap_kv`` [kvar].
-    u_cap_kv : float
-        Capacitor rated voltage, line to line [kV].
-    p : float
-        Detuning factor ``X_L / X_C`` [unitless], 0 < p < 1.
-    f_hz : float
-        Fundamental frequency [Hz].
-    u_bus_kv : float
-        Bus voltage, line to line [kV].
-
-    Returns
-    -------
-    DetunedStep
-
-    Notes
-    -----
-    ``X_C = U_CR^2 / Q_CR`` (wye equivalent per phase), ``X_L = p X_C``,
-    ``L = X_L / (2 pi f)``, ``n = 1/sqrt(p)``, ``U_C = U / (1 - p)``,
-    ``Q_net = Q_CR (U/U_CR)^2 / (1 - p)``.
-
-    References
-    ----------
-    REFERENCES.md "Detuned (series reactor) banks" [published]; IEEE Std 1531-2020
-    (series L-C branch).
-    """
-    q = np.atleast_1d(np.asarray(q_cap_kvar, float))
-    if not (0.0 < p < 1.0):
-        raise ValueError(f"detuning factor p = {p} must be between 0 and 1")
-    x_c = 1000.0 * u_cap_kv**2 / q
-    x_l = p * x_c
-    n = 1.0 / math.sqrt(p)
-    return DetunedStep(x_c_ohm=x_c, x_l_ohm=x_l, l_mh=1000.0 * x_l / (2.0 * math.pi * f_hz), n=n,
-                       f_tuning_hz=n * f_hz, u_c1_kv=u_bus_kv / (1.0 - p),
-                       q_net_kvar=q * (u_bus_kv / u_cap_kv) ** 2 / (1.0 - p))
-
-
-def nameplate_kvar(q_net_kvar, u_cap_kv: float, u_bus_kv: float, p: float) -> np.ndarray:
-    """Capacitor nameplate that delivers a given net output at the bus.
-
-    Parameters
-    ----------
-    q_net_kvar : float or array_like
-        Wanted net output of the detuned stage at ``u_bus_kv`` [kvar].
-    u_cap_kv : float
-        Capacitor rated voltage [kV].
-    u_bus_kv : float
-        Bus voltage [kV].
-    p : float
-        Detuning factor [unitless].
-
-    Returns
-    -------
-    ndarray
-        ``Q_CR = Q_net (U_CR/U)^2 (1 - p)`` [kvar].
-
-    References
-    ----------
-    REFERENCES.md "Detuned (series reactor) banks", inverse of
-    ``Q_net = Q_CR (U/U_CR)^2 / (1 - p)`` [published].
-    """
-    return np.asarray(q_net_kvar, float) * (u_cap_kv / u_bus_kv) ** 2 * (1.0 - p)
-
-
-def capacitor_rating_kv(u_need_kv: float, standard_kv, mv_step_kv: float = 0.1) -> float:
-    """Lowest rated voltage that can be bought at or above a need.
-
-    Parameters
-    ----------
-    u_need_kv : float
-        Needed capacitor voltage [kV].
-    standard_kv : sequence of float
-        Ratings on offer [kV].
-    mv_step_kv : float
-        Above the list (medium voltage, made to order): round up to this step [kV].
-
-    Returns
-    -------
-    float
-        The lowest listed rating at or above the need; above the list, the need
-        rounded up to a multiple of ``mv_step_kv`` [kV].
-
-    Notes
-    -----
-    Common practice (from memory): low-voltage units come in standard ratings,
-    medium-voltage banks are assembled from units made to order.
-    """
-    tol = 1e-9
-    for kv in sorted(standard_kv):
-        if kv >= u_need_kv - tol:
-            return float(kv)
-    return float(round(math.ceil(u_need_kv / mv_step_kv - tol) * mv_step_kv, 6))
-
-
-def _next_ratings(kv0: float, standard_kv, mv_step_kv: float, count: int) -> list[float]:
-    out = [kv0]
-    while len(out) <= count:
-        out.append(capacitor_rating_kv(out[-1] * (1.0 + 1e-6) + 1e-9, standard_kv, mv_step_kv))
-    return out
-
-
-def _corners(cap_tol_pct, reactor_tol_pct):
-    dc = np.array([cap_tol_pct[0], cap_tol_pct[1]], float)[:, None] / 100.0
-    dl = np.array([reactor_tol_pct[0], reactor_tol_pct[1]], float)[None, :] / 100.0
-    return (1.0 + dc), (1.0 + dl)
-
-
-def tuning_band(n: float, cap_tol_pct=(-5.0, 10.0), reactor_tol_pct=(-3.0, 3.0)) -> tuple[float, float]:
-    """Range of the series tuning order over capacitor and reactor tolerances.
-
-    Parameters
-    ----------
-    n : float
-        Nominal tuning order [unitless].
-    cap_tol_pct, reactor_tol_pct : (float, float)
-        Low and high deviation of capacitance and inductance [%].
-
-    Returns
-    -------
-    (n_min, n_max) : (float, float)
-        [unitless].
-
-    Notes
-    -----
-    ``n' = n / sqrt((1 + dC)(1 + dL))`` (derived from ``n = 1/sqrt(p)`` and
-    ``omega_r = 1/sqrt(L C)``); loss of capacitance with age raises it.
-    """
-    kc, kl = _corners(cap_tol_pct, reactor_tol_pct)
-    nn = n / np.sqrt(kc * kl)
-    return float(nn.min()), float(nn.max())
-
-
-def parallel_band(p: float, q_cap_kvar, s_sc_kva: float, cap_tol_pct=(-5.0, 10.0),
-                  reactor_tol_pct=(-3.0, 3.0)) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Parallel resonance order of each detuned step with the source, over tolerances.
-
-    Parameters
-    ----------
-    p : float
-        Nominal detuning factor [unitless].
-    q_cap_kvar : array_like
-        Capacitor reactive power in service of each step at the bus voltage
-        (capacitor alone, ``U^2 / X_C``) [kvar].
-    s_sc_kva : float
-        Short-circuit power at the bank bus [kVA].
-    cap_tol_pct, reactor_tol_pct : (float, float)
-        Tolerances [%].
-
-    Returns
-    -------
-    (h_min, h_max, h_nominal) : ndarrays, shape like ``q_cap_kvar``
-        [unitless].
-
-    Notes
-    -----
-    ``h_p = 1 / sqrt(p' + X_s / X_C')`` with ``X_s / X_C = Q_C / S_sc``,
-    ``p' = p (1 + dC)(1 + dL)`` and ``X_s/X_C' = (X_s/X_C)(1 + dC)`` (derived,
-    REFERENCES.md "Detuned (series reactor) banks").
-    """
-    q = np.atleast_1d(np.asarray(q_cap_kvar, float))
-    kc, kl = _corners(cap_tol_pct, reactor_tol_pct)
-    ratio = q / s_sc_kva
-    hp = 1.0 / np.sqrt(p * (kc * kl)[..., None] + ratio[None, None, :] * kc[..., None])
-    nominal = 1.0 / np.sqrt(p + ratio)
-    return hp.min(axis=(0, 1)), hp.max(axis=(0, 1)), nominal
-
-
-def significant_orders(sources, background_pct: dict, settings: DetuningSettings,
-                       fallback=()) -> tuple[int, ...]:
-    """Harmonic orders large enough to matter for the choice of tuning.
-
-    Parameters
-    ----------
-    sources : list of (name, {order: pct}, pulse)
-        Resolved source spectra [% of each source's fundamental current].
-    background_pct : dict
-        Background voltage per order [% of nominal].
-    settings : DetuningSettings
-        Thresholds.
-    fallback : sequence of int
-        Orders used when nothing reaches a threshold (e.g. the characteristic
-        orders of the study) [unitless].
-
-    Returns
-    -------
-    tuple of int
-        Significant orders, rising [unitless].
-    """
-    out = {int(h) for h, pct in (background_pct or {}).items() if pct >= settings.significant_background_pct and pct > 0}
-    for _, spec, _ in sources:
-        out |= {int(h) for h, pct in spec.items() if pct >= settings.significant_injection_pct and pct > 0}
-    if not out:
-        out = {int(h) for h in fallback}
-    return tuple(sorted(out))
-
-
-def stage_share_max(stage_kvar, step_values: np.ndarray) -> np.ndarray:
-    """Largest share of a step quantity that each stage carries.
-
-    Parameters
-    ----------
-    stage_kvar : array_like, shape (N,)
-        Stage sizes (all stages of one detuning factor) [kvar].
-    step_values : ndarray, shape (N,) or (N, m)
-        A current of the whole bank at steps 1..N [A].
-
-    Returns
-    -------
-    ndarray, shape (N,) or (N, m)
-        For stage k the maximum over steps s >= k of ``value_s Q_k / sum_{j<=s} Q_j`` [A].
-
-    Notes
-    -----
-    Stages with equal p are parallel branches of equal shape, so they share the
-    bank current in proportion to their capacitance (derived).
-    """
-    q = np.asarray(stage_kvar, float)
-    v = np.asarray(step_values, float)
-    cum = np.cumsum(q)
-    share = np.where(np.arange(q.size)[:, None] <= np.arange(q.size)[None, :], q[:, None] / cum[None, :], 0.0)
-    if v.ndim == 1:
-        return np.max(share * v[None, :], axis=1)
-    return np.max(share[:, :, None] * v[None, :, :], axis=1)
-
-
-def rearrange_stages(allowed: np.ndarray, n_max: int) -> tuple[int, ...] | None:
-    """Split ``U`` units into at most ``n_max`` stages whose cumulative states are all allowed.
-
-    Parameters
-    ----------
-    allowed : ndarray of bool, shape (U,)
-        ``allowed[c - 1]``: the state with ``c`` units in service is acceptable [unitless].
-    n_max : int
-        Most stages [unitless].
-
-    Returns
-    -------
-    tuple of int or None
-        Stage sizes in units (first switched first); None when no split exists.
-
-    Notes
-    -----
-    Lexicographic choice: the largest stage as small as possible (fine
-    control), then the smallest stage as large as possible (no token stages),
-    then as many stages as allowed.  Solved by a reachability table over
-    (stages used, units in service) for each trial pair of stage bounds.
-    """
-    a = np.asarray(allowed, bool)
-    u = int(a.size)
-    if u == 0 or not a[-1] or n_max < 1:
-        return None
-    ok = np.concatenate([[True], a])  # state 0 (bank off) is always reachable
-
-    def table(lo: int, hi: int) -> np.ndarray:
-        # reach[k, c]: c units in service after exactly k stages of lo..hi units, every state allowed
-        reach = np.zeros((n_max + 1, u + 1), bool)
-        reach[0, 0] = True
-        for k in range(1, n_max + 1):
-            prev = reach[k - 1]
-            cur = np.zeros(u + 1, bool)
-            for step in range(lo, hi + 1):
-                cur[step:] |= prev[: u + 1 - step]
-            reach[k] = cur & ok
-        return reach
-
-    for hi in range(1, u + 1):
-        if not table(1, hi)[:, u].any():
-            continue
-        for lo in range(hi, 0, -1):
-            reach = table(lo, hi)
-            ks = np.nonzero(reach[:, u])[0]
-            if ks.size == 0:
-                continue
-            k = int(ks.max())
-            sizes, c = [], u
-            for kk in range(k, 0, -1):  # walk back through reachable states
-                for step in range(hi, lo - 1, -1):
-                    if c - step >= 0 and reach[kk - 1, c - step]:
-                        sizes.append(step)
-                        c -= step
-                        break
-            return tuple(reversed(sizes))
-    return None  # pragma: no cover - hi = u always reaches u in one stage
-
+__all__ = ["run_variant", "propose_detuning"]
 
 # ----------------------------------------------------------------------------- evaluation of a study result
 
@@ -556,11 +52,11 @@ def _bank_status(result, case, model, bank_name: str) -> dict:
     from resonance.assessment.verdict import bank_findings  # noqa: PLC0415
 
     own = bank_findings(result.findings, bank_name)
-    out = {"scenarios": {}, "problems": [f["message"] for f in own],
-           "resonance_ok": not any(f["check"] == "resonance" for f in own),
-           "duty_ok": not any(str(f["check"]).startswith("duty_") for f in own),
-           "pcc_ok": not any(str(f["check"]).startswith("pcc_") for f in own),
-           "tuning_ok": not any(f["check"] == "detuning_tuning" for f in own)}
+    out = {"scenarios": {}, "problems": [f.message for f in own],
+           "resonance_ok": not any(f.check == "resonance" for f in own),
+           "duty_ok": not any(f.check.startswith("duty_") for f in own),
+           "pcc_ok": not any(f.check.startswith("pcc_") for f in own),
+           "tuning_ok": not any(f.check == "detuning_tuning" for f in own)}
     for sc in result.scans:
         if sc.bank.name != bank_name:
             continue
@@ -568,8 +64,8 @@ def _bank_status(result, case, model, bank_name: str) -> dict:
         rows = []
         for s, sd in zip(sc.steps, asm.steps):
             f = sd.fields
-            worse = [x["check"] for x in own if x["scenario"] == sc.scenario and x["step"] == s.step
-                     and str(x["check"]).startswith("pcc_")]
+            worse = [x.check for x in own if x.scenario == sc.scenario and x.step == s.step
+                     and x.check.startswith("pcc_")]
             m = f["duty_margins_pct"]
             rows.append({
                 "step": s.step, "h_scan": None if s.h_scan is None else round(s.h_scan, 3),
@@ -699,96 +195,6 @@ def _reactor_figures(status: dict, q_np: np.ndarray, ratings, p: float, u_kv: fl
     return out
 
 
-def tuning_reasons(n: float, h_low, st: "DetuningSettings") -> list[str]:
-    """Why a series tuning order is unsafe against the lowest significant harmonic (empty: it is safe).
-
-    One rule for the proposals' pre-screen and for a detuned bank the user gives.
-
-    Parameters
-    ----------
-    n : float
-        Nominal tuning order ``1/sqrt(p)`` [unitless].
-    h_low : int or None
-        Lowest significant harmonic order present (None: nothing to tune below) [unitless].
-    st : DetuningSettings
-        ``order_margin_pct`` (nominal tuning at least this far below ``h_low``) [%],
-        ``band_margin_pct`` (the tolerance band's top at least this far below) [%],
-        ``cap_tolerance_pct``, ``reactor_tolerance_pct`` [%].
-
-    Returns
-    -------
-    list of str
-        Plain-language reasons [unitless].
-
-    Notes
-    -----
-    Fails when ``n > h_low (1 - order_margin/100)`` or, tuned below that, when the top of
-    :func:`tuning_band` exceeds ``h_low (1 - band_margin/100)``.
-
-    References
-    ----------
-    IEEE Std 1531-2020 (tuning below the lowest harmonic, tolerances); the margins are
-    common practice (REFERENCES.md "Detuned (series reactor) banks").
-    """
-    why: list[str] = []
-    if h_low is None:
-        return why
-    n_hi = tuning_band(n, st.cap_tolerance_pct, st.reactor_tolerance_pct)[1]
-    lim = h_low * (1.0 - st.order_margin_pct / 100.0)
-    if n > lim + 1e-9:
-        why.append(f"tuning order {n:.2f} is not {st.order_margin_pct:g} % below the lowest significant "
-                   f"harmonic {h_low} (at most {lim:.2f})")
-    lim_b = h_low * (1.0 - st.band_margin_pct / 100.0)
-    if n <= lim + 1e-9 and n_hi > lim_b:
-        why.append(f"with tolerances the tuning reaches {n_hi:.2f}, within {st.band_margin_pct:g} % of the "
-                   f"significant harmonic {h_low}")
-    return why
-
-
-def detuned_bank_findings(case, sources, characteristic, scans) -> list[dict]:
-    """Findings for a detuned bank given in the case whose tuning is unsafe (same rule as a proposal).
-
-    Parameters
-    ----------
-    case : Case
-        Validated case (``[detuning]`` settings, background voltages).
-    sources : list of (name, {order: pct}, pulse)
-        Resolved source spectra [%].
-    characteristic : sequence of int
-        Characteristic orders of the study (fallback for the significant orders) [unitless].
-    scans : sequence of BankScan
-        The study's scans (the nominal one of each bank is used).
-
-    Returns
-    -------
-    list of dict
-        One ``detuning_tuning`` finding per step of each failing bank (cause ``"bank"``).
-
-    References
-    ----------
-    See :func:`tuning_reasons`.
-    """
-    st = detuning_settings(case)
-    background = dict(case.supply.background_pct) if case.supply else {}
-    sig = significant_orders(sources, background, st, fallback=characteristic)
-    out = []
-    for sc in scans:
-        bm = sc.bank
-        if sc.scenario != "nominal" or bm.p <= 0:
-            continue
-        n = 1.0 / math.sqrt(bm.p)
-        why = tuning_reasons(n, sig[0] if sig else None, st)
-        if not why:
-            continue
-        for s in sc.steps:
-            out.append({"bank": bm.name, "step": s.step, "scenario": "all", "check": "detuning_tuning",
-                        "value": _r(n, 4), "limit": _r(sig[0] * (1.0 - st.order_margin_pct / 100.0), 4),
-                        "unit": "harmonic order", "cause": "bank",
-                        "source": "IEEE Std 1531-2020; margins common practice ([detuning] settings)",
-                        "message": f"bank {bm.name} step {s.step}: detuned p = {100 * bm.p:g} % is unsafe: "
-                                   + "; ".join(why)})
-    return out
-
 
 def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarray, sig: tuple,
                st: DetuningSettings):
@@ -846,7 +252,7 @@ def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarr
 def _ratings(kv0: float, u_kv: float, st: DetuningSettings) -> list[float]:
     """Capacitor ratings a candidate is re-checked at, lowest first [kV]."""
     out = []
-    for kv in _next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, st.max_rating_steps):
+    for kv in next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, st.max_rating_steps):
         if kv / u_kv > 1.6:  # the case schema's sanity range for rated_kv
             break
         out.append(kv)
@@ -1000,7 +406,7 @@ def _trial_orders(st: DetuningSettings, sig: tuple) -> list[float]:
     """Tuning orders to try, in the order they are tried [unitless]."""
     orders = list(st.tuning_orders)
     if st.search == "continuous" and sig:
-        kc, kl = _corners(st.cap_tolerance_pct, st.reactor_tolerance_pct)
+        kc, kl = tolerance_corners(st.cap_tolerance_pct, st.reactor_tolerance_pct)
         n_star = min(sig[0] * (1.0 - st.order_margin_pct / 100.0),
                      sig[0] * (1.0 - st.band_margin_pct / 100.0) * math.sqrt(float(np.min(kc * kl))))
         p_star = math.ceil(10000.0 / n_star**2) / 100.0  # rounded up: the order stays at or below n*

@@ -125,7 +125,9 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
     model = res.extras.get("model")
     # every finding says whose it is: "bank" (the bank causes or worsens it) or "site" (already
     # beyond the limit with the bank off, and the bank does not make it worse)
-    findings = [{**f, "cause": "bank" if f in bank_findings([f]) else "site"} for f in res.findings]
+    own = bank_findings(res.findings)
+    mine = {id(f) for f in own}
+    findings = [{**f.to_dict(), "cause": "bank" if id(f) in mine else "site"} for f in res.findings]
     out = {
         "tool": {"name": "resonance", "version": __version__},
         "caution": CAUTION,
@@ -153,8 +155,8 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         "findings": findings,
         "warnings": list(res.warnings),
         # the bank's verdict (the exit status) and the site's own distortion apart from it
-        "passed": not bank_findings(findings),
-        "site_passed": not site_findings(findings),
+        "passed": not own,
+        "site_passed": not site_findings(res.findings),
     }
     out.update(extra.get("top", {}))
     return clean(out)
