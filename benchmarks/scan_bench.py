@@ -180,7 +180,7 @@ def plant_timings() -> dict:
     print(f"demo plant: full check with plots and report {t_full:.2f} s (best of 2), exit {runs[0][1]}, "
           f"{len(runs[0][2])} files; target < 8 s")
     # the report alone for a 12-step bank with 3 sources
-    from resonance.inputs.case import load_case
+    from resonance.inputs.case_load import load_case
     from resonance.cli import _attach_detuned_scans
     from resonance.design.detuning import propose_detuning
     from resonance.outputs import OutputDir

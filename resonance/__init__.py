@@ -14,7 +14,7 @@ __all__ = ["__version__", "load_case", "run_study", "InputError", "ResonanceErro
 
 def __getattr__(name):  # lazy re-exports keep `resonance --help` fast
     if name == "load_case":
-        from resonance.inputs.case import load_case
+        from resonance.inputs.case_load import load_case
 
         return load_case
     if name == "run_study":

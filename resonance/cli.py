@@ -160,7 +160,7 @@ def _input_files(case, case_path: Path) -> list[Path]:
 
 
 def _check(args) -> int:
-    from resonance.inputs.case import load_case  # noqa: PLC0415
+    from resonance.inputs.case_load import load_case# noqa: PLC0415
     from resonance.assessment.study import run_study  # noqa: PLC0415
     from resonance.report.results_json import to_dict, CAUTION  # noqa: PLC0415
     from resonance.outputs import OutputDir  # noqa: PLC0415
@@ -168,7 +168,9 @@ def _check(args) -> int:
     case_path = Path(args.case)
     case = load_case(case_path)
     _STATE["case"] = str(case_path)
-    for hint in case.hints:  # likely mistakes in a valid case: reported, not fatal
+    from resonance.inputs.case_checks import case_hints  # noqa: PLC0415
+
+    for hint in case_hints(case):  # likely mistakes in a valid case: reported, not fatal
         _say(f"warning: {hint}", sys.stderr)
     out = OutputDir(args.out, protect=_input_files(case, case_path))
     _STATE["out"] = out

@@ -95,6 +95,7 @@ def test_copy_of_demo_runs_from_another_folder(tmp_path):
     # the input-file list resolves relative names against the case's own folder
     for n in ("demo_plant.toml", "demo_plant_intervals.csv"):
         shutil.copy(CASES / n, tmp_path / n)
-    case = cli._input_files(__import__("resonance.inputs.case", fromlist=["load_case"]).load_case(tmp_path / "demo_plant.toml"),
-                            tmp_path / "demo_plant.toml")
+    from resonance.inputs.case_load import load_case
+
+    case = cli._input_files(load_case(tmp_path / "demo_plant.toml"), tmp_path / "demo_plant.toml")
     assert [p.name for p in case] == ["demo_plant.toml", "demo_plant_intervals.csv"]

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from resonance.model import netmodel
-from resonance.inputs.case import load_case, parse_case
+from resonance.inputs.case_load import load_case, parse_case
 from resonance.assessment.tuning import DetuningSettings, detuning_settings, parallel_band, tuning_band
 from resonance.design.detuned_step import (capacitor_rating_kv, detuned_step, nameplate_kvar, rearrange_stages,
                                            stage_share_max)

@@ -216,7 +216,7 @@ def _assert_non_increasing(hs):
 @_settings(ci=5)
 @given(radial_plants())
 def test_valid_radial_plants_run_and_keep_invariants(doc):
-    from resonance.inputs.case import parse_case
+    from resonance.inputs.case_load import parse_case
     from resonance.model.netmodel import build_model
     from resonance.harmonics.scan import ModelSettings, impedance_columns, step_update
     from resonance.assessment.study import bank_models
@@ -246,7 +246,7 @@ def test_valid_radial_plants_run_and_keep_invariants(doc):
     # the arrays load flow the study uses equals pandapower's runpp with every bank at full output
     # (Reference: pandapower runpp, Newton-Raphson)
     from resonance.errors import ModelError
-    from resonance.model.netmodel import LoadFlow, load_flow_session
+    from resonance.model.pp_loadflow import LoadFlow, load_flow_session
 
     buses = {b.name: b.bus for b in case.bank}
     full = {bm.name: float(bm.q_cap_nominal_kvar()[-1] / (1.0 - bm.p))

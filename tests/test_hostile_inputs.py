@@ -14,7 +14,8 @@ from pathlib import Path
 
 import pytest
 
-from resonance.inputs.case import DEMAND_MIN_KVA, STAGE_MIN_KVAR, load_case
+from resonance.inputs.case_checks import DEMAND_MIN_KVA, STAGE_MIN_KVAR
+from resonance.inputs.case_load import load_case
 from resonance.cli import main
 from resonance.errors import InputError
 

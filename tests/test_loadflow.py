@@ -10,10 +10,11 @@ import pytest
 import scipy.sparse as sp
 
 from resonance.model import loadflow
-from resonance.inputs.case import load_case
+from resonance.inputs.case_load import load_case
 from resonance.errors import ModelError
 from resonance.model.loadflow import PowerFlowCase, newton_raphson, solve_with_shunts
-from resonance.model.netmodel import LoadFlow, build_model, load_flow_session
+from resonance.model.pp_loadflow import LoadFlow, load_flow_session
+from resonance.model.netmodel import build_model
 
 from .conftest import CASES
 

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from resonance.model.admittance import dense_y
-from resonance.inputs.case import load_case
+from resonance.inputs.case_load import load_case
 from resonance.model.netmodel import build_model, iec60909_sc_mva, net_to_arrays
 from resonance.assessment.study import run_study
 

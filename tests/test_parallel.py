@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from resonance.inputs.case import load_case
+from resonance.inputs.case_load import load_case
 from resonance.assessment.study import run_study
 
 ROOT = Path(__file__).resolve().parents[1]

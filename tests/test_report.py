@@ -43,7 +43,7 @@ def _safe(name: str) -> str:
 
 
 def _study(case_path: Path):
-    from resonance.inputs.case import load_case
+    from resonance.inputs.case_load import load_case
     from resonance.report.results_json import to_dict
     from resonance.assessment.study import run_study
 
@@ -200,7 +200,7 @@ def test_detuning_section_fills_from_results(demo, tmp_path):
 def test_detuned_candidate_scan_beside_the_plain_bank(demo, tmp_path):
     import dataclasses
 
-    from resonance.inputs.case import load_case
+    from resonance.inputs.case_load import load_case
     from resonance.assessment.study import run_study
 
     res, data = demo

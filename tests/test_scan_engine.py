@@ -22,7 +22,7 @@ import scipy.sparse.linalg as spla
 
 from resonance.harmonics import engine as engine_mod
 from resonance.model.admittance import YPattern, bank_step_admittance
-from resonance.inputs.case import load_case
+from resonance.inputs.case_load import load_case
 from resonance.harmonics.engine import SparseEngine, sparse_columns
 from resonance.harmonics.grid import grid_peaks
 from resonance.model.netmodel import build_model, net_to_arrays

@@ -8,7 +8,7 @@ import math
 import numpy as np
 import pytest
 
-from resonance.inputs.case import load_case
+from resonance.inputs.case_load import load_case
 from resonance.assessment.study import run_study
 
 from .conftest import write_case

@@ -14,7 +14,9 @@ import tomllib
 
 import pytest
 
-from resonance.inputs.case import parse_case, sc_kva_estimate
+from resonance.inputs.case_load import parse_case
+from resonance.inputs.case_checks import case_hints
+from resonance.inputs.case_checks import sc_kva_estimate
 from resonance.cli import main
 
 from .conftest import SMALL_CASE
@@ -214,7 +216,7 @@ def test_garbage_files_exit_2(tmp_path, capsys):
 # ---------------------------------------------------------------------------------------- hints
 
 def _hints(text):
-    return [str(h) for h in parse_case(tomllib.loads(text), "case.toml").hints]
+    return [str(h) for h in case_hints(parse_case(tomllib.loads(text), "case.toml"))]
 
 
 HINTS = [

@@ -13,6 +13,7 @@ import numpy as np
 
 from resonance.model.admittance import YPattern, bank_step_admittance, bank_step_admittance_dh
 from resonance.inputs.case import Case
+from resonance.inputs.case_checks import case_hints
 from resonance.errors import InputError, InputProblem, ModelError
 from resonance.assessment.findings import Finding
 from resonance.model.network import NetworkArrays
@@ -446,6 +447,7 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
         a network file that does not fit).
     """
     from resonance.model import netmodel  # noqa: PLC0415  (pandapower is imported only here)
+    from resonance.model.pp_loadflow import bank_voltages  # noqa: PLC0415
 
     sources, probs = _source_orders(case)
     if probs:
@@ -462,8 +464,8 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
     orders = orders_of_concern(sources, background, st.h_max)
     h = harmonic_grid(st.h_max, st.h_step)
     pattern = YPattern.build(arr)
-    # likely input mistakes (case.case_hints) travel with the results
-    warnings_: list[str] = [f"input {hint.field}: {hint.problem}" for hint in case.hints]
+    # likely input mistakes (case_checks.case_hints) travel with the results
+    warnings_: list[str] = [f"input {hint.field}: {hint.problem}" for hint in case_hints(case)]
     # fundamental voltage of every step from a load flow with that step in service
     vm: dict[tuple[str, str], np.ndarray] = {}
     full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
@@ -477,7 +479,7 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
             for s in range(b.n_steps):
                 q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
                 try:
-                    v[s] = model.bank_voltages(buses, {**base_q, b.name: q}, weak=(scenario == "weak"))[b.index]
+                    v[s] = bank_voltages(model, buses, {**base_q, b.name: q}, weak=(scenario == "weak"))[b.index]
                 except ModelError as e:
                     warnings_.append(f"bank {b.name} step {s + 1} ({scenario}): {e}; nominal voltage assumed")
             vm[(b.name, scenario)] = v

@@ -94,7 +94,8 @@ def _r(x, nd: int = 4):
 
 
 def _variant(case, bank, **update):
-    from resonance.inputs.case import Bank, check_case  # noqa: PLC0415
+    from resonance.inputs.case import Bank# noqa: PLC0415
+    from resonance.inputs.case_checks import check_case# noqa: PLC0415
 
     data = bank.model_dump()
     data.update(update)

@@ -7,7 +7,7 @@ admittance matrix change.  :mod:`resonance.model.netmodel` therefore asks pandap
 for one load flow per session, takes its bus admittance matrix, power
 injections and bus types, and re-solves here for each step.  Each session first
 re-solves pandapower's own case and compares the voltages before it trusts this
-solver (see :class:`resonance.model.netmodel.LoadFlow`).
+solver (see :class:`resonance.model.pp_loadflow.LoadFlow`).
 
 Nothing here imports pandapower; the inputs are a sparse matrix and arrays.
 """
