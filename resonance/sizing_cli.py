@@ -24,10 +24,10 @@ import numpy as np
 
 from resonance.errors import InputError
 from resonance.outputs import OutputDir
-from resonance.design.sizing import (STAGE_LAYOUTS, STANDARD_STAGES_KVAR, BillingRule, ControllerResult, ControllerSettings,
-                     monthly_cost,
-                     output_factor, power_factor, required_kvar_series, simulate_controller, size_bank,
-                     time_in_step_table)
+from resonance.design.sizing import (STAGE_LAYOUTS, STANDARD_STAGES_KVAR, output_factor, power_factor,
+                                     required_kvar_series, size_bank)
+from resonance.design.controller import (BillingRule, ControllerResult, ControllerSettings, monthly_cost,
+                                         simulate_controller, time_in_step_table)
 from resonance.inputs.sizing_io import IntervalData, bank_block_toml, read_intervals
 
 __all__ = ["add_parser", "run"]

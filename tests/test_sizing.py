@@ -20,21 +20,10 @@ from hypothesis import strategies as st
 
 from resonance.inputs.case import Bank
 from resonance.errors import InputError
-from resonance.design.sizing import (
-    BillingRule,
-    ControllerSettings,
-    bank_output_kvar,
-    kvar_required,
-    monthly_cost,
-    nameplate_kvar_for_net,
-    output_factor,
-    pf_multiplier,
-    power_factor,
-    required_kvar_series,
-    simulate_controller,
-    size_bank,
-    time_in_step_table,
-)
+from resonance.design.controller import (BillingRule, ControllerSettings, monthly_cost, simulate_controller,
+                                         time_in_step_table)
+from resonance.design.sizing import (bank_output_kvar, kvar_required, nameplate_kvar_for_net, output_factor,
+                                     pf_multiplier, power_factor, required_kvar_series, size_bank)
 from resonance.sizing_cli import add_parser, run
 from resonance.inputs.sizing_io import MAX_REPORTED_PROBLEMS, bank_block_toml, read_intervals
 
