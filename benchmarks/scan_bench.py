@@ -180,28 +180,21 @@ def plant_timings() -> dict:
     print(f"demo plant: full check with plots and report {t_full:.2f} s (best of 2), exit {runs[0][1]}, "
           f"{len(runs[0][2])} files; target < 8 s")
     # the report alone for a 12-step bank with 3 sources
-    from resonance.inputs.case_load import load_case
-    from resonance.cli import _attach_detuned_scans
-    from resonance.design.detuning import propose_detuning
     from resonance.outputs import OutputDir
+    from resonance.pipeline import run_check
     from resonance.report.document import write_report
-    from resonance.report.results_json import to_dict
-    from resonance.assessment.study import run_study
 
     with tempfile.TemporaryDirectory() as tmp:
         p = Path(tmp) / "twelve_steps.toml"
         p.write_text(TWELVE_STEP_CASE, encoding="utf-8")
-        case = load_case(p)
-        res = run_study(case)
-        det = propose_detuning(case, res.extras["model"], res)
-        _attach_detuned_scans(case, res, det)
-        data = to_dict(res, "0" * 64, extra={("bank", n): {"detuning": d} for n, d in det.items()})
+        result = run_check(p)
+        _ = result.data  # the results.json view is made once, before the report is timed
         times = []
         for k in range(2):
             od = OutputDir(Path(tmp) / f"out{k}", protect=[p])
             t = time.perf_counter()
             c = time.process_time()
-            write_report(res, data, od)
+            write_report(result, od)
             times.append((time.perf_counter() - t, time.process_time() - c))
             n_files = len(od.commit())
     t_rep, c_rep = min(times)

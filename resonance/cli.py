@@ -11,6 +11,7 @@ Everything printed has control characters escaped (a title cannot drive the term
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import hashlib
 import json
 import os
@@ -160,72 +161,74 @@ def _input_files(case, case_path: Path) -> list[Path]:
 
 
 def _check(args) -> int:
-    from resonance.inputs.case_load import load_case# noqa: PLC0415
-    from resonance.assessment.study import run_study  # noqa: PLC0415
-    from resonance.report.results_json import to_dict, CAUTION  # noqa: PLC0415
+    """``resonance check``: argv -> :func:`resonance.pipeline.run_check` -> writers -> exit code."""
+    from resonance.inputs.case_checks import case_hints  # noqa: PLC0415
+    from resonance.inputs.case_load import load_case  # noqa: PLC0415
     from resonance.outputs import OutputDir  # noqa: PLC0415
+    from resonance.pipeline import run_check  # noqa: PLC0415
 
     case_path = Path(args.case)
     case = load_case(case_path)
     _STATE["case"] = str(case_path)
-    from resonance.inputs.case_checks import case_hints  # noqa: PLC0415
-
     for hint in case_hints(case):  # likely mistakes in a valid case: reported, not fatal
         _say(f"warning: {hint}", sys.stderr)
     out = OutputDir(args.out, protect=_input_files(case, case_path))
     _STATE["out"] = out
-    _workers()  # a bad RESONANCE_WORKERS is named here; the sparse engine reads it itself
+    workers = _workers()  # a bad RESONANCE_WORKERS is named here
     try:
-        from resonance.model import netmodel  # noqa: PLC0415
-        from resonance.design.detuning import propose_detuning  # noqa: PLC0415
-        from resonance.design.demand import time_in_step  # noqa: PLC0415
-        from resonance.assessment.study import with_cross_check  # noqa: PLC0415
-        from resonance.report.scan_tables import write_scan_tables  # noqa: PLC0415
-
-        model = netmodel.build_model(case)
-        res = run_study(case, model=model, cross_check=False)
-        tis = time_in_step(case, res)
-        write_scan_tables(res, out)
-        res = with_cross_check(res, case, model)
-        det = propose_detuning(case, model, res)
-        _attach_detuned_scans(case, res, det)
-        sha = hashlib.sha256(case_path.read_bytes()).hexdigest()
-        extra = {("bank", name): {"detuning": d} for name, d in det.items()}
-        for name, t in tis.items():
-            extra.setdefault(("bank", name), {})["time_in_step"] = t
-            steps = {k: {"time_fraction": round(f, 5), "hours_in_step": round(hh, 3)}
-                     for k, (f, hh) in enumerate(zip(t["fraction"], t["hours"])) if k > 0}
-            extra[(name, "nominal")] = steps
-        data = to_dict(res, sha, extra=extra)
-        out.write_text("results.json", json.dumps(data, indent=2, sort_keys=False) + "\n")
-        rec_text = _recommended_case(case_path, out, det)
-        if not args.no_plots:
-            from resonance.report.plots import scan_figure  # noqa: PLC0415
-            import matplotlib.pyplot as plt  # noqa: PLC0415
-
-            for sc in res.scans:
-                if sc.scenario != "nominal":
-                    continue
-                weak = res.scans_for(sc.bank.name, "weak")
-                fig = scan_figure(res, sc)
-                safe = _safe(sc.bank.name)
-                fig.savefig(out.file(f"scan_{safe}.png"))
-                fig.savefig(out.file(f"scan_{safe}.svg"))
-                plt.close(fig)
-                if weak is not None:
-                    fig = scan_figure(res, weak)
-                    fig.savefig(out.file(f"scan_{safe}_weak.png"))
-                    plt.close(fig)
-        if not (args.no_plots or args.no_report):
-            from resonance.report.document import write_report  # noqa: PLC0415
-
-            write_report(res, data, out)
+        result = run_check(case, workers=workers)
+        result = dataclasses.replace(result, case_sha256=hashlib.sha256(case_path.read_bytes()).hexdigest())
+        data = result.data
+        _write_outputs(args, case_path, out, result)
+        rec_text = _recommended_case(case_path, out, result.proposals)
         written = out.commit()
     except BaseException:
         out.discard()
         raise
     finally:
         _STATE["out"] = None
+    _tell(args, data, out, written, rec_text)
+    return EXIT_OK if result.passed else EXIT_FINDING
+
+
+def _write_outputs(args, case_path: Path, out, result) -> None:
+    """Stage results.json, the scan tables, the scan plots and the report (no verdict here)."""
+    from resonance.report.scan_tables import write_scan_tables  # noqa: PLC0415
+
+    out.write_text("results.json", json.dumps(result.data, indent=2, sort_keys=False) + "\n")
+    write_scan_tables(result.study, out)
+    if args.no_plots:
+        return
+    import matplotlib  # noqa: PLC0415
+
+    matplotlib.use("Agg")  # the one place a backend is chosen: files, no screen (the edge)
+    import matplotlib.pyplot as plt  # noqa: PLC0415
+    from resonance.report.plots import scan_figure  # noqa: PLC0415
+
+    res = result.study
+    for sc in res.scans:
+        if sc.scenario != "nominal":
+            continue
+        weak = res.scans_for(sc.bank.name, "weak")
+        fig = scan_figure(res, sc)
+        safe = _safe(sc.bank.name)
+        fig.savefig(out.file(f"scan_{safe}.png"))
+        fig.savefig(out.file(f"scan_{safe}.svg"))
+        plt.close(fig)
+        if weak is not None:
+            fig = scan_figure(res, weak)
+            fig.savefig(out.file(f"scan_{safe}_weak.png"))
+            plt.close(fig)
+    if not args.no_report:
+        from resonance.report.document import write_report  # noqa: PLC0415
+
+        write_report(result, out)
+
+
+def _tell(args, data: dict, out, written, rec_text) -> None:
+    """The terminal summary: findings (the bank's and the site's), proposals, files."""
+    from resonance.report.results_json import CAUTION  # noqa: PLC0415
+
     if not args.quiet:
         _say(_summary(data))
         _say("")
@@ -259,7 +262,6 @@ def _check(args) -> int:
     if not args.quiet:
         _say(f"\nwrote {len(written)} files to {out.path.resolve()}: " + ", ".join(p.name for p in written))
         _say(f"\n{CAUTION}")
-    return EXIT_OK if data["passed"] else EXIT_FINDING
 
 
 def _recommended_case(case_path: Path, out, det: dict) -> str | None:
@@ -291,24 +293,6 @@ def _workers() -> int | None:
         _say(f"warning: RESONANCE_WORKERS={env!r} is not a whole number >= 1; the default is used",
              sys.stderr)
     return None
-
-
-def _attach_detuned_scans(case, res, det: dict) -> None:
-    """Scan of each recommended detuned design, for the report's side-by-side plot."""
-    from resonance.design.detuning import run_variant  # noqa: PLC0415
-
-    for name, d in det.items():
-        rec = (d or {}).get("recommended")
-        if not rec:
-            continue
-        banks = [b.model_copy(update={"detuning_pct": rec["detuning_pct"], "rated_kv": rec["rated_kv"],
-                                      "steps_kvar": list(rec["steps_kvar"]),
-                                      "reactor_q": rec.get("reactor_q", b.reactor_q)}) if b.name == name else b
-                 for b in case.bank]
-        variant = case.model_copy(update={"bank": banks})
-        sc = run_variant(variant, res.extras["model"]).scans_for(name)
-        if sc is not None:
-            res.extras[f"detuned_scan_{name}"] = sc
 
 
 def _safe(name: str) -> str:

@@ -7,6 +7,7 @@ compared with ``results.json`` of the same run, never with numbers copied from o
 from __future__ import annotations
 
 import copy
+import dataclasses
 import csv
 import hashlib
 import inspect
@@ -43,18 +44,27 @@ def _safe(name: str) -> str:
 
 
 def _study(case_path: Path):
+    """A check result with the study stage only (no proposals), and its results.json data."""
     from resonance.inputs.case_load import load_case
-    from resonance.report.results_json import to_dict
     from resonance.assessment.study import run_study
+    from resonance.pipeline import CheckResult
 
-    res = run_study(load_case(case_path))
-    return res, to_dict(res, hashlib.sha256(case_path.read_bytes()).hexdigest())
+    case = load_case(case_path)
+    res = CheckResult(case=case, study=run_study(case), case_sha256=hashlib.sha256(case_path.read_bytes()).hexdigest())
+    return res, res.data
+
+
+def _with_data(res, data):
+    """The same result with a results.json view edited by the test (stages left out or added)."""
+    r = dataclasses.replace(res)
+    r.__dict__["data"] = data  # the cached view of the result
+    return r
 
 
 def _report(res, data, out_dir: Path, date: str | None = None) -> list[str]:
     out = OutputDir(out_dir)
     try:
-        names = write_report(res, data, out, date=date)
+        names = write_report(res if data is res.data else _with_data(res, data), out, date=date)
         out.write_text("results.json", json.dumps(data, indent=2) + "\n")
         out.commit()
     except BaseException:
@@ -208,7 +218,7 @@ def test_detuned_candidate_scan_beside_the_plain_bank(demo, tmp_path):
     b0 = case.bank[0]
     detuned_case = case.model_copy(update={"bank": [b0.model_copy(update={"detuning_pct": 7.0})]})
     cand = run_study(detuned_case).scans_for(b0.name, "nominal")
-    res2 = dataclasses.replace(res, extras={**res.extras, "detuned_scans": {b0.name: cand}})
+    res2 = dataclasses.replace(res, detuned_scans={b0.name: cand})
     names = _report(res2, data, tmp_path)
     assert f"fig_compare_{_safe(b0.name)}_detuned.png" in names
     flat = _squash(_pdf_text(tmp_path / "report.pdf"))
@@ -304,7 +314,7 @@ def test_twelve_step_bank_every_step_drawn(tmp_path):
     case = write_case(tmp_path, TWELVE_STEPS)
     res, data = _study(case)
     out = OutputDir(tmp_path / "w2")
-    names = write_report(res, data, out, date="2001-02-03")
+    names = write_report(res, out, date="2001-02-03")
     out.commit()
     assert sum(n.startswith("fig_scan_B12_step") for n in names) == 2 * 12
     flat = _squash(_pdf_text(tmp_path / "w2" / "report.pdf"))

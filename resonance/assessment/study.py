@@ -163,9 +163,36 @@ class BankScan:
     steps: tuple
 
 
+@dataclass(frozen=True)
+class SupplyFigures:
+    """The supply and PCC figures of the plant model that the results report.
+
+    Attributes
+    ----------
+    bus : str
+        Supply (external grid) bus [unitless].
+    sc_mva, x_r : float
+        Supply short-circuit power [MVA] and X/R [unitless] (nominal scenario).
+    sc_mva_min : float or None
+        Weak-supply short-circuit power [MVA].
+    pcc_kv : float
+        Nominal voltage of the PCC bus [kV].
+    """
+
+    bus: str
+    sc_mva: float
+    x_r: float
+    sc_mva_min: float | None
+    pcc_kv: float
+
+
 @dataclass(frozen=True, eq=False)
 class StudyResult:
-    """Everything the study found; the edge writes it out."""
+    """Everything the study stage found (typed, unrounded); the edge writes it out.
+
+    ``sources`` are the resolved source spectra ``(name, {order: pct}, pulses)`` [%];
+    ``supply`` the model's supply and PCC figures.  The result holds no pandapower model.
+    """
 
     case: Case
     orders: HarmonicOrders
@@ -175,9 +202,10 @@ class StudyResult:
     settings: ModelSettings
     findings: tuple
     warnings: tuple = field(default_factory=tuple)
-    extras: dict = field(default_factory=dict)
     assessments: tuple = field(default_factory=tuple)
     sc_mva_pcc: float = float("nan")
+    sources: tuple = field(default_factory=tuple)
+    supply: SupplyFigures | None = None
 
     def assessment_for(self, bank: str, scenario: str = "nominal"):
         """Penetration and duty of one bank in one scenario (None if absent)."""
@@ -539,8 +567,10 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
     findings.extend(detuned_bank_findings(case, sources, orders.characteristic, scans))
     res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
-                       extras={"model": model, "sources": sources}, assessments=tuple(assessments),
-                       sc_mva_pcc=sc_pcc)
+                       assessments=tuple(assessments), sc_mva_pcc=sc_pcc, sources=tuple(sources),
+                       supply=SupplyFigures(bus=model.supply_bus, sc_mva=float(model.sc_mva_supply),
+                                            x_r=float(model.x_r_supply), sc_mva_min=model.sc_mva_supply_min,
+                                            pcc_kv=float(arr.bus_kv[pcc])))
     return with_cross_check(res, case, model) if cross_check else res
 
 

@@ -71,7 +71,7 @@ def time_in_step(case, res) -> dict:
     dm = getattr(case, "demand", None)
     if dm is None:
         return {}
-    from resonance.design.controller import ControllerSettings, simulate_controller, time_in_step_table# noqa: PLC0415
+    from resonance.design.controller import ControllerSettings, simulate_controller, time_in_step_table  # noqa: PLC0415
     from resonance.inputs.sizing_io import read_intervals  # noqa: PLC0415
 
     name = dm.bank or case.bank[0].name

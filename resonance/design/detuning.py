@@ -36,7 +36,7 @@ from resonance.design.detuned_step import (DetunedStep, capacitor_rating_kv, det
                                            next_ratings, rearrange_stages, stage_share_max)
 from resonance.errors import InputError, ModelError
 
-__all__ = ["run_variant", "propose_detuning"]
+__all__ = ["run_variant", "propose_detuning", "recommended_case", "recommended_scans"]
 
 # ----------------------------------------------------------------------------- evaluation of a study result
 
@@ -427,9 +427,9 @@ def propose_detuning(case, model, result) -> dict:
     ----------
     case : Case
         The case as given.
-    model : PlantModel or None
+    model : PlantModel
         The plant model used for ``result`` (re-used for every re-check; the
-        model does not depend on the banks).  None: taken from ``result``.
+        model does not depend on the banks).
     result : StudyResult
         The study of ``case`` as given.
 
@@ -462,9 +462,7 @@ def propose_detuning(case, model, result) -> dict:
     IEEE Std 18-2002; IEEE Std 519-2014.
     """
     st = detuning_settings(case)
-    if model is None:
-        model = result.extras.get("model")
-    sources = result.extras.get("sources", [])
+    sources = list(result.sources)
     background = dict(case.supply.background_pct) if case.supply else {}
     sig = significant_orders(sources, background, st, fallback=result.orders.characteristic)
     settings_out = {k: (list(v) if isinstance(v, tuple) else v) for k, v in asdict(st).items()}
@@ -523,4 +521,32 @@ def propose_detuning(case, model, result) -> dict:
             entry["rearrangement"] = _rearrangement(case, model, result, bank, bm, scans, st, clock)
         entry["re_checks"] = len(clock)  # studies run for this bank (no wall-clock time: equal runs stay equal)
         out[bank.name] = entry
+    return out
+
+
+def recommended_case(case, name: str, rec: dict):
+    """The case with bank ``name`` replaced by its recommended design ``rec`` (a proposal's
+    ``recommended`` entry: ``detuning_pct`` [%], ``rated_kv`` [kV], ``steps_kvar`` [kvar],
+    ``reactor_q`` [unitless]); the other banks and every setting unchanged."""
+    banks = [b.model_copy(update={"detuning_pct": rec["detuning_pct"], "rated_kv": rec["rated_kv"],
+                                  "steps_kvar": list(rec["steps_kvar"]),
+                                  "reactor_q": rec.get("reactor_q", b.reactor_q)}) if b.name == name else b
+             for b in case.bank]
+    return case.model_copy(update={"bank": banks})
+
+
+def recommended_scans(case, model, proposals: dict) -> dict:
+    """Bank name -> nominal :class:`~resonance.assessment.study.BankScan` of its recommended design.
+
+    The scan comes from the re-check that accepted the design (:func:`run_variant`, memoised), so
+    the side-by-side plot shows the very study the proposal was judged on.
+    """
+    out = {}
+    for name, d in proposals.items():
+        rec = (d or {}).get("recommended")
+        if not rec:
+            continue
+        sc = run_variant(recommended_case(case, name, rec), model).scans_for(name)
+        if sc is not None:
+            out[name] = sc
     return out

@@ -23,6 +23,7 @@ second core is used through a process pool (:func:`sparse_columns`).
 
 from __future__ import annotations
 
+import contextvars
 import math
 import os
 from concurrent.futures import ProcessPoolExecutor
@@ -35,7 +36,7 @@ import scipy.sparse.linalg as spla
 from resonance.model.admittance import YPattern, load_admittance, resistance_factor
 from resonance.model.network import NetworkArrays
 
-__all__ = ["SparseEngine", "sparse_columns", "RESIDUAL_RTOL", "default_workers"]
+__all__ = ["SparseEngine", "sparse_columns", "RESIDUAL_RTOL", "default_workers", "CHECK_WORKERS"]
 
 #: relative residual ``|Y x - b| / |b|`` above which a point is solved again with full pivoting
 RESIDUAL_RTOL = 1e-9
@@ -51,13 +52,22 @@ _CHUNK = 16
 _POOL_MIN_WORK_S = 6.0
 
 
+#: the ``workers`` value of the running check (:func:`resonance.pipeline.run_check` sets it for
+#: the duration of one check; None: ``RESONANCE_WORKERS`` or the CPU count decides)
+CHECK_WORKERS: "contextvars.ContextVar[int | None]" = contextvars.ContextVar("resonance_check_workers",
+                                                                            default=None)
+
+
 def default_workers() -> int:
     """Number of processes for the pool [unitless].
 
-    ``RESONANCE_WORKERS`` when it holds a whole number >= 1 (the one setting for the
-    command line and the Python API; 1 keeps everything in this process), else the
-    CPUs this process may run on.
+    The ``workers`` of the running :func:`resonance.pipeline.run_check` when given, else
+    ``RESONANCE_WORKERS`` when it holds a whole number >= 1 (the command line sets nothing
+    else; 1 keeps everything in this process), else the CPUs this process may run on.
     """
+    given = CHECK_WORKERS.get()
+    if given is not None:
+        return max(1, int(given))
     env = os.environ.get("RESONANCE_WORKERS", "").strip()
     if env.isdigit() and int(env) >= 1:
         return int(env)

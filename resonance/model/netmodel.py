@@ -210,17 +210,21 @@ def _check_net_tables(net, label: str) -> None:
         raise InputError(probs)
 
 
-def _from_network_file(case: Case):
+def _from_network_file(case: Case, net=None):
+    """The case's network (read from its file, or ``net``: a copy owned here) and its lookups."""
     from resonance.inputs.safeload import read_pandapower_json  # noqa: PLC0415
 
-    assert case.network is not None
     file = case.source_file
-    path = Path(case.network.pandapower_json)
-    if not path.is_absolute():
-        path = Path(case.base_dir) / path
-    # a new net on every read (nothing shared), so it is changed here without a copy
-    label = f"{file}: network.pandapower_json -> {case.network.pandapower_json}"
-    net = read_pandapower_json(path, file_label=label)
+    if net is None:
+        assert case.network is not None
+        path = Path(case.network.pandapower_json)
+        if not path.is_absolute():
+            path = Path(case.base_dir) / path
+        # a new net on every read (nothing shared), so it is changed here without a copy
+        label = f"{file}: network.pandapower_json -> {case.network.pandapower_json}"
+        net = read_pandapower_json(path, file_label=label)
+    else:
+        label = f"{file}: the pandapower net given to run_check"
     _check_net_tables(net, label)
     probs: list[InputProblem] = []
     # bus names: the pandapower name when unique, else '#<index>'; both are accepted
@@ -454,13 +458,17 @@ def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool =
     return arr, pp2m
 
 
-def build_model(case: Case) -> PlantModel:
+def build_model(case: Case, net=None) -> PlantModel:
     """Build the plant model of a case.
 
     Parameters
     ----------
     case : Case
         Validated case.
+    net : pandapowerNet, optional
+        A live pandapower net standing for the case's ``[network]`` file (the Python API);
+        it is deep-copied and never modified.  The case's buses, banks and sources name its
+        buses as a network file's would.
 
     Returns
     -------
@@ -472,7 +480,9 @@ def build_model(case: Case) -> PlantModel:
     InputError
         A network file that cannot be used, or buses the case names that it lacks.
     """
-    if case.network is not None:
+    if net is not None:
+        net, bus_pp, supply_bus, sc, xr, sc_min, xr_min = _from_network_file(case, copy.deepcopy(net))
+    elif case.network is not None:
         net, bus_pp, supply_bus, sc, xr, sc_min, xr_min = _from_network_file(case)
     else:
         net, bus_pp, supply_bus, sc, xr, sc_min, xr_min = _build_from_tables(case)

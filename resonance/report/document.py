@@ -30,9 +30,9 @@ per bank (``banks[]``):
     only from ``weak_supply.limits``), ``bank_off.thd_v_pct``,
     ``detuning.recommended`` {tuning_order, detuning_pct, rated_kv, steps_kvar, ...},
     ``detuning.candidates[]`` (any scalar keys; shown as a table).
-study extras (``res.extras``):
-    a detuned candidate's :class:`~resonance.assessment.study.BankScan` (found by type
-    anywhere one level deep, matched on the bank name) for the side-by-side scan.
+the check's ``detuned_scans``:
+    the recommended design's :class:`~resonance.assessment.study.BankScan` per bank, for the
+    side-by-side scan.
 """
 
 from __future__ import annotations
@@ -42,7 +42,6 @@ import textwrap
 
 import matplotlib
 
-matplotlib.use("Agg")
 from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 
 from resonance import __version__  # noqa: E402
@@ -73,16 +72,15 @@ REFERENCES = (
 )
 
 
-def write_report(res: StudyResult, data: dict, out, *, date: str | None = None) -> list[str]:
+def write_report(result, out, *, date: str | None = None) -> list[str]:
     """Stage the PDF report, every figure (PNG and SVG) and every table (CSV).
 
     Parameters
     ----------
-    res : StudyResult
-        Study result from :func:`resonance.assessment.study.run_study`.
-    data : dict
-        Results dictionary from :func:`resonance.report.results_json.to_dict` (the content of
-        ``results.json``); keys of later stages are optional.
+    result : CheckResult
+        The check's typed result (:func:`resonance.pipeline.run_check`); the report reads
+        nothing else (no pandapower model, no recomputation): its study, its ``data`` (the
+        results.json layout) and the scans of the recommended designs.
     out : OutputDir
         Output directory; files are staged with ``out.file(name)``.
     date : str, optional
@@ -102,7 +100,8 @@ def write_report(res: StudyResult, data: dict, out, *, date: str | None = None) 
     gained nothing measurable, see ``docs/performance.md``).
     """
     with matplotlib.rc_context(rf.RC):
-        return _write(res, data, out, date or _dt.date.today().isoformat())
+        return _write(result.study, result.data, dict(result.detuned_scans), out,
+                      date or _dt.date.today().isoformat())
 
 
 def _cover(doc: _Doc, data: dict, date: str) -> float:
@@ -115,7 +114,7 @@ def _cover(doc: _Doc, data: dict, date: str) -> float:
         doc.text(M_LEFT, doc.y, line, fontsize=19, weight="bold")
         doc.y += 0.38
     doc.y += 0.25
-    n_find = len(data.get("findings", []))
+    n_find = sum(1 for f in data.get("findings", []) if f.get("cause") != "site")
     doc.kv([("Case file", str(data["case"].get("file") or "-")),
             ("SHA-256", str(data["case"].get("sha256") or "-")),
             ("Tool", f"{data['tool']['name']} {data['tool']['version']}"),
@@ -193,9 +192,9 @@ def _first_h(specs: list) -> float:
     return specs[0].page_h + 0.5 if specs else 0.0
 
 
-def _write(res: StudyResult, data: dict, out, date: str) -> list[str]:
+def _write(res: StudyResult, data: dict, detuned: dict, out, date: str) -> list[str]:
     tables = report_tables(res, data)
-    specs = _fig_specs(res, data)
+    specs = _fig_specs(res, data, detuned)
     jobs = file_jobs(res, specs)
     pdf_path = out.file("report.pdf")
     paths = [tuple(out.file(n) for n in job.names) for job in jobs]

@@ -10,9 +10,7 @@ from __future__ import annotations
 
 import math
 
-import matplotlib
 
-matplotlib.use("Agg")
 import numpy as np  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.ticker import FuncFormatter, LogLocator, MultipleLocator, NullFormatter, NullLocator  # noqa: E402

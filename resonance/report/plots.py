@@ -1,10 +1,8 @@
-"""Scan plots (matplotlib, Agg backend).  Edge layer: the numeric core never imports this."""
+"""Scan plots (matplotlib; the command line picks the file backend).  Edge layer: the numeric core never imports this."""
 
 from __future__ import annotations
 
-import matplotlib
 
-matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 

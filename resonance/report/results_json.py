@@ -122,7 +122,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
                                                     res.assessment_for(b.name, "weak"))}
         entry.update(extra.get(("bank", b.name), {}))
         banks.append(entry)
-    model = res.extras.get("model")
+    sup = res.supply
     # every finding says whose it is: "bank" (the bank causes or worsens it) or "site" (already
     # beyond the limit with the bank off, and the bank does not make it worse)
     own = bank_findings(res.findings)
@@ -141,10 +141,10 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "summation": case.study.summation,
         },
         "supply": {
-            "bus": model.supply_bus if model else None,
-            "sc_mva": model.sc_mva_supply if model else None,
-            "x_r": model.x_r_supply if model else None,
-            "sc_mva_min": model.sc_mva_supply_min if model else None,
+            "bus": sup.bus if sup else None,
+            "sc_mva": sup.sc_mva if sup else None,
+            "x_r": sup.x_r if sup else None,
+            "sc_mva_min": sup.sc_mva_min if sup else None,
             "sc_mva_iec60909_at_pcc": _r(res.sc_mva_iec60909.get(res.pcc_bus), 4),
         },
         "pcc_bus": res.pcc_bus,

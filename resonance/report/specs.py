@@ -19,7 +19,7 @@ from matplotlib.figure import Figure
 
 from resonance.report import figures as rf
 from resonance.report.layout import INK, M_LEFT, M_TOP, PAGE_H, PAGE_W, TEXT_W, _Doc
-from resonance.report.tables import (DUTY_KEYS, _detuned_scan, _detuning, _get, _has_duty, _limits, _Limits, _num,
+from resonance.report.tables import (DUTY_KEYS, _detuning, _get, _has_duty, _limits, _Limits, _num,
                             _safe, _spectrum, _thd_bus, _thd_pcc, _v519)
 from resonance.assessment.study import BankScan, StudyResult
 
@@ -91,7 +91,7 @@ def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
     return out
 
 
-def _fig_specs(res: StudyResult, data: dict) -> dict[str, list]:
+def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dict[str, list]:
     """Figure specs per report section (the per-step plots are handled apart, see :func:`_step_pages`)."""
     specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": []}
     banks = {b["name"]: b for b in data["banks"]}
@@ -110,7 +110,7 @@ def _fig_specs(res: StudyResult, data: dict) -> dict[str, list]:
                 f"fig_scan_{s}_weak_all", (8.2, 4.0),
                 lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, w,
                                                         f"Bank {w.bank.name}: all steps, weak supply"), 4.0, b.name))
-        det = _detuned_scan(res, b.name)
+        det = (detuned or {}).get(b.name)
         if det is not None:
             specs["compare"].append(_FigSpec(
                 f"fig_compare_{s}_detuned", (7.4, 4.0),

@@ -19,7 +19,7 @@ from typing import Any, Callable
 
 from resonance.names import file_stem
 from resonance.outputs import csv_text_cell
-from resonance.assessment.study import BankScan, StudyResult
+from resonance.assessment.study import StudyResult
 
 __all__ = ["Table", "Column", "report_tables", "DUTY_KEYS", "DUTY_LABEL"]
 
@@ -110,34 +110,9 @@ def _detuning(bank: dict) -> tuple[dict | None, list[dict]]:
     return rec, cands
 
 
-def _detuned_scan(res: StudyResult, name: str) -> BankScan | None:
-    """A detuned candidate's nominal scan for bank ``name`` among the study extras, if any."""
-    def hits(v):
-        if isinstance(v, BankScan):
-            yield v
-        elif isinstance(v, dict):
-            for w in v.values():
-                if isinstance(w, BankScan):
-                    yield w
-        elif isinstance(v, (list, tuple)):
-            for w in v:
-                if isinstance(w, BankScan):
-                    yield w
-
-    for v in (res.extras or {}).values():
-        for s in hits(v):
-            if s.bank.name == name and s.bank.p > 0 and s.scenario == "nominal":
-                return s
-    return None
-
-
 def _pcc_kv(res: StudyResult, data: dict) -> float | None:
-    model = res.extras.get("model") if res.extras else None
-    try:
-        return float(model.arrays.bus_kv[model.model_bus[data["pcc_bus"]]])
-    except Exception:  # noqa: BLE001 - no model: fall back on the case
-        sup = res.case.supply
-        return float(sup.kv) if sup is not None and sup.bus == data.get("pcc_bus") else None
+    """Nominal voltage of the PCC bus [kV] (the study's supply figures)."""
+    return float(res.supply.pcc_kv) if res.supply is not None else None
 
 
 def _duty_limit_set(data: dict):
@@ -387,8 +362,8 @@ def _input_tables(res: StudyResult, data: dict) -> list[Table]:
                    (Column("name", "", _s, "left", 30), Column("bus", "", _s, "left"), Column("P", "kW"),
                     Column("power factor", "-"), Column("Q (from P, pf)", "kvar", _f(1))),
                    tuple((x.name, x.bus, x.kw, x.pf, x.kw * math.tan(math.acos(x.pf))) for x in c.load)))
-    spec = {name: sp for name, sp, _p in (res.extras.get("sources") or [])}
-    pulses = {name: p for name, _sp, p in (res.extras.get("sources") or [])}
+    spec = {name: sp for name, sp, _p in res.sources}
+    pulses = {name: p for name, _sp, p in res.sources}
     rows = []
     for x in c.harmonic_source:
         kind = x.spectrum if isinstance(x.spectrum, str) else "table in case"
