@@ -142,15 +142,15 @@ class CheckResult:
     def scan_table(self, bank: str, scenario: str = "nominal"):
         """Driving-point impedance at the bank's bus per step (pandas DataFrame).
 
-        Index ``h`` [harmonic order]; one column ``step k`` per step [ohm]; raises KeyError for an
-        unknown bank or scenario.
+        Index ``h`` [harmonic order]; column ``bank off`` and one column ``step k`` per step
+        [ohm]; raises KeyError for an unknown bank or scenario.
         """
         import pandas as pd  # noqa: PLC0415
 
         sc = self.study.scans_for(bank, scenario)
         if sc is None:
             raise KeyError(f"no scan of bank {bank!r} in the {scenario!r} scenario")
-        cols = {f"step {k + 1}": sc.z_ohm[k] for k in range(len(sc.steps))}
+        cols = {"bank off": sc.z_ohm[0], **{f"step {k}": sc.z_ohm[k] for k in range(1, len(sc.steps) + 1)}}
         return pd.DataFrame(cols, index=pd.Index(sc.h, name="h"))
 
 
