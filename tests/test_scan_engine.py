@@ -35,7 +35,6 @@ from resonance.harmonics.scan import (
     impedance_columns_dh,
     step_peaks,
     step_update,
-    woodbury_update,
 )
 from resonance.assessment.study import bank_models
 
@@ -113,23 +112,6 @@ def test_sherman_morrison_equals_direct_solve_case118(case118, p):
     for s in range(b.size):
         ref = _direct(arr, h, k, ys[:, s], cols)
         np.testing.assert_allclose(zs[:, s], ref, rtol=1e-9, atol=1e-9 * np.abs(ref).max())
-
-
-def test_woodbury_several_banks_switched_together(case118):
-    # Reference: direct solve with three banks (one detuned) on the diagonal (Woodbury identity).
-    arr = case118
-    h = np.linspace(1.0, 50.0, 61)
-    buses = np.array([11, 58, 89])
-    y = np.stack([bank_step_admittance(h, np.array([0.3]))[:, 0],
-                  bank_step_admittance(h, np.array([0.5]), 0.07, 40.0)[:, 0],
-                  bank_step_admittance(h, np.array([0.2]))[:, 0]], axis=1)
-    cols = np.array([5, 11, 58, 89])
-    z0 = impedance_columns(arr, h, cols, rows=cols)
-    zw = woodbury_update(z0, np.array([1, 2, 3]), np.array([1, 2, 3]), y)
-    d = np.zeros((h.size, arr.n_bus), complex)
-    d[:, buses] = y
-    ref = impedance_columns(arr, h, cols, diag_extra=d, rows=cols)
-    np.testing.assert_allclose(zw, ref, rtol=1e-9, atol=1e-9 * np.abs(ref).max())
 
 
 # ---------------------------------------------------------------- 2. sparse and dense paths

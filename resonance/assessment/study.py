@@ -17,8 +17,8 @@ from resonance.inputs.case_checks import case_hints
 from resonance.errors import InputError, InputProblem, ModelError
 from resonance.assessment.findings import Finding
 from resonance.model.network import NetworkArrays
-from resonance.harmonics.scan import (ModelSettings, find_peaks, harmonic_grid, impedance_columns, impedance_columns_dh,
-                   refine_peaks)
+from resonance.harmonics.scan import (ModelSettings, harmonic_grid, impedance_columns, impedance_columns_dh,
+                                      step_peaks)
 from resonance.harmonics.screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
 __all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models", "iec60909_cross_check",
@@ -320,38 +320,18 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
     zb_p = float(arr.bus_kv[pcc]) ** 2 / base
     sc_mva, x_r = bus_short_circuit(arr, bank.index, settings)
     q_nom = bank.q_cap_nominal_kvar()
-    if not _ADAPTIVE_PEAKS:
-        # peaks of the uniform grid, each refined on finer local grids (all in one batch)
-        peaks_idx = find_peaks(h, np.abs(zkk[1:]))
-        flat_h, flat_step = [], []
-        for s, idx in enumerate(peaks_idx):
-            flat_h += list(h[idx])
-            flat_step += [s] * idx.size
-        flat_h_arr = np.array(flat_h, float)
-        flat_step_arr = np.array(flat_step, int)
-
-        def fun(hh: np.ndarray, which: np.ndarray) -> np.ndarray:
-            z = impedance_columns(arr, hh, np.array([bank.index]), settings, extra(hh),
-                                  rows=np.array([bank.index]), pattern=pattern)[:, 0, 0]
-            y = bank.step_admittance(hh, base)[np.arange(hh.size), flat_step_arr[which]]
-            return np.abs(z / (1.0 + y * z))
-
-        h_ref, z_ref = refine_peaks(fun, flat_h_arr, h_step)
-    else:
-        # adaptive grid (resonance.harmonics.grid): brackets every local maximum, even one narrower than the
-        # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
-        from resonance.harmonics.scan import step_peaks  # noqa: PLC0415
-
-        spk = step_peaks(arr, bank.index, step_y, h, settings,
-                         extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
-        hs_, zs_, st_ = [], [], []
-        for s in range(bank.n_steps):
-            hp, zp = np.asarray(spk.h_peak[s + 1], float), np.asarray(spk.z_peak[s + 1], float)
-            keep = _prominent(spk.scan, s + 1, hp, zp)
-            hs_ += list(hp[keep])
-            zs_ += list(zp[keep])
-            st_ += [s] * int(np.sum(keep))
-        h_ref, z_ref, flat_step_arr = np.array(hs_, float), np.array(zs_, float), np.array(st_, int)
+    # adaptive grid (resonance.harmonics.grid): brackets every local maximum, even one narrower than the
+    # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
+    spk = step_peaks(arr, bank.index, step_y, h, settings,
+                     extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
+    hs_, zs_, st_ = [], [], []
+    for s in range(bank.n_steps):
+        hp, zp = np.asarray(spk.h_peak[s + 1], float), np.asarray(spk.z_peak[s + 1], float)
+        keep = _prominent(spk.scan, s + 1, hp, zp)
+        hs_ += list(hp[keep])
+        zs_ += list(zp[keep])
+        st_ += [s] * int(np.sum(keep))
+    h_ref, z_ref, flat_step_arr = np.array(hs_, float), np.array(zs_, float), np.array(st_, int)
     steps = []
     for s in range(bank.n_steps):
         sel = flat_step_arr == s
@@ -412,10 +392,6 @@ def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, setti
         dz0.flags.writeable = False
         _BANK_OFF.setdefault(arr, {})[key] = (z0, dz0)
     return z0, dz0
-
-
-#: find peaks on the adaptive grid of resonance.harmonics.grid (True) or the uniform grid only (False)
-_ADAPTIVE_PEAKS = True
 
 
 def _prominent(scan, row: int, hp: np.ndarray, zp: np.ndarray, min_rel: float = 0.02) -> np.ndarray:

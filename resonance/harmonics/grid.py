@@ -7,7 +7,7 @@ amount (in magnitude or in phase) is halved, repeatedly, until every interval
 either changes little or is narrower than ``min_step``.  Intervals beside a
 sampled local maximum are always halved down to ``min_step``, so each peak is
 sampled finely on both sides.  Peaks are then the local maxima on the final
-grid, each polished by golden-section search inside its bracket.
+grid, each polished inside its bracket by :func:`zoom_refine`.
 
 All evaluations at one refinement level are made in one vectorised call, so
 the expensive part (one factorisation per order) stays batched.
@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["AdaptiveScan", "adaptive_scan", "peak_brackets", "grid_peaks", "golden_refine", "zoom_refine"]
+__all__ = ["AdaptiveScan", "adaptive_scan", "peak_brackets", "grid_peaks", "zoom_refine"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -351,58 +351,6 @@ def grid_peaks(h: np.ndarray, z_abs: np.ndarray, min_rel_prominence: float = 0.0
     return out
 
 
-def golden_refine(fun, lo: np.ndarray, hi: np.ndarray, xtol: float = 1e-5) -> tuple[np.ndarray, np.ndarray]:
-    """Maximise unimodal functions on brackets by golden-section search, all brackets at once.
-
-    Parameters
-    ----------
-    fun : callable
-        ``fun(h) -> f`` with ``h`` of shape (p,), one order per bracket [unitless -> any unit].
-    lo, hi : ndarray, shape (p,)
-        Brackets, each holding one local maximum [unitless].
-    xtol : float
-        Final bracket width [unitless].
-
-    Returns
-    -------
-    (h_max, f_max) : tuple of ndarray
-        Location [unitless] and value of each maximum.
-
-    Notes
-    -----
-    Each step keeps the part of the bracket that holds the larger of two
-    interior values at ``a + (1 - 1/phi)(b - a)`` and ``a + (b - a)/phi``
-    (``phi`` the golden ratio), shrinking the bracket by ``1/phi``.
-
-    References
-    ----------
-    J. Kiefer, "Sequential minimax search for a maximum", Proc. AMS 4 (1953);
-    Press et al., *Numerical Recipes*, 3rd ed., sec. 10.2.
-    """
-    a = np.asarray(lo, float).copy()
-    b = np.asarray(hi, float).copy()
-    if a.size == 0:
-        return a, a.copy()
-    g = (np.sqrt(5.0) - 1.0) / 2.0
-    c = b - g * (b - a)
-    d = a + g * (b - a)
-    fc = np.asarray(fun(c), float)
-    fd = np.asarray(fun(d), float)
-    n_iter = int(np.ceil(np.log(max(np.max(b - a), xtol) / xtol) / -np.log(g)))
-    for _ in range(n_iter):
-        left = fc > fd  # the maximum lies in [a, d]; else in [c, b]
-        a, b = np.where(left, a, c), np.where(left, d, b)
-        c_new = np.where(left, b - g * (b - a), d)
-        d_new = np.where(left, c, a + g * (b - a))
-        p = np.where(left, c_new, d_new)
-        fp = np.asarray(fun(p), float)
-        fc, fd = np.where(left, fp, fd), np.where(left, fc, fp)
-        c, d = c_new, d_new
-    hm = np.where(fc > fd, c, d)
-    fm = np.maximum(fc, fd)
-    return hm, fm
-
-
 def zoom_refine(fun, lo: np.ndarray, hi: np.ndarray, xtol: float = 1e-5,
                 points: int = 7) -> tuple[np.ndarray, np.ndarray]:
     """Maximise unimodal functions on brackets by repeated uniform sampling, all brackets at once.
@@ -430,8 +378,8 @@ def zoom_refine(fun, lo: np.ndarray, hi: np.ndarray, xtol: float = 1e-5,
     ``a + k (b - a) / (points + 1)``, ``k = 1..points``; for a unimodal function
     the maximum lies between the neighbours of the largest sample, so the
     bracket shrinks by ``2 / (points + 1)`` per pass.  Fewer, larger batched
-    evaluations than golden-section search (:func:`golden_refine`, which
-    shrinks by 0.618 per evaluation) for the same final width.
+    evaluations than golden-section search (which shrinks by 0.618 per
+    evaluation) for the same final width.
 
     References
     ----------

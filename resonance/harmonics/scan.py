@@ -27,11 +27,9 @@ __all__ = [
     "impedance_columns",
     "step_update",
     "find_peaks",
-    "refine_peaks",
     "DENSE_MAX_BUSES",
     "impedance_columns_dh",
     "sparse_engine",
-    "woodbury_update",
     "driving_point_steps",
     "step_peaks",
     "StepPeaks",
@@ -294,48 +292,6 @@ def step_update(z_cols: np.ndarray, k_row: int, k_col: int, y_s: np.ndarray) -> 
     return z_cols[:, None, :, :] - g[:, :, None, None] * zik[:, None, :, None] * zkj[:, None, None, :]
 
 
-def woodbury_update(z_cols: np.ndarray, k_rows: np.ndarray, k_cols: np.ndarray, y_add: np.ndarray) -> np.ndarray:
-    """Impedance columns after adding shunt admittances at several buses at once (Woodbury).
-
-    Parameters
-    ----------
-    z_cols : ndarray, shape (n_h, r, m)
-        Change-free impedance rows x columns; must contain the rows and the
-        columns of every changed bus [pu].
-    k_rows, k_cols : ndarray of int, shape (q,)
-        Positions of the changed buses among the rows and among the columns [unitless].
-    y_add : ndarray, shape (n_h, q)
-        Admittance added at each changed bus [pu].
-
-    Returns
-    -------
-    ndarray, shape (n_h, r, m)
-        Updated impedances [pu].
-
-    Notes
-    -----
-    With ``D = diag(y)`` and ``K`` the changed buses,
-    ``Z' = Z - Z[:, K] D (I + Z[K, K] D)^-1 Z[K, :]``, i.e.
-    ``Z' = Z - Z[:, K] (I + D Z[K, K])^-1 D Z[K, :]`` (exact for a rank-q change).
-
-    References
-    ----------
-    M. A. Woodbury, "Inverting modified matrices", Memorandum Report 42,
-    Statistical Research Group, Princeton University, 1950; W. W. Hager,
-    "Updating the inverse of a matrix", SIAM Review 31(2), 1989.
-    """
-    k_rows = np.asarray(k_rows, int)
-    k_cols = np.asarray(k_cols, int)
-    y = np.asarray(y_add, complex)
-    z_ik = z_cols[:, :, k_cols]  # (n_h, r, q)
-    z_kj = z_cols[:, k_rows, :]  # (n_h, q, m)
-    z_kk = z_cols[:, k_rows][:, :, k_cols]  # (n_h, q, q)
-    q = k_rows.size
-    m_ = np.eye(q)[None, :, :] + y[:, :, None] * z_kk  # I + D Z_KK
-    w = np.linalg.solve(m_, y[:, :, None] * z_kj)  # (I + D Z_KK)^-1 D Z_K:
-    return z_cols - z_ik @ w
-
-
 def find_peaks(h: np.ndarray, z_abs: np.ndarray, min_rel_prominence: float = 0.02) -> list[np.ndarray]:
     """Grid indices of local maxima of ``|Z|`` along the last axis.
 
@@ -362,44 +318,6 @@ def find_peaks(h: np.ndarray, z_abs: np.ndarray, min_rel_prominence: float = 0.0
         idx, _ = _fp(row, prominence=np.log1p(min_rel_prominence))
         out.append(idx.astype(int))
     return out
-
-
-def refine_peaks(fun, h_peaks: np.ndarray, half_width: float, levels: int = 3, points: int = 21) -> tuple[np.ndarray, np.ndarray]:
-    """Refine peak orders by evaluating ``fun`` on successively finer local grids.
-
-    Parameters
-    ----------
-    fun : callable
-        ``fun(h, which) -> |Z|`` evaluated at orders ``h`` (shape (p,)) for
-        peaks ``which`` (indices into ``h_peaks``); vectorised [unitless].
-    h_peaks : ndarray, shape (p,)
-        Grid estimates [unitless].
-    half_width : float
-        Initial half-width of the search window, e.g. the grid step [unitless].
-    levels, points : int
-        Zoom levels and points per level; final resolution
-        ``2 half_width / (points - 1)^levels``.
-
-    Returns
-    -------
-    (h_ref, z_ref) : tuple of ndarray
-        Refined orders [unitless] and ``|Z|`` there.
-    """
-    h_c = np.asarray(h_peaks, float).copy()
-    z_c = np.zeros_like(h_c)
-    if h_c.size == 0:
-        return h_c, z_c
-    w = float(half_width)
-    off = np.linspace(-1.0, 1.0, points)
-    which = np.repeat(np.arange(h_c.size), points)
-    for _ in range(levels):
-        hh = (h_c[:, None] + w * off[None, :]).ravel()
-        zz = np.asarray(fun(hh, which)).reshape(h_c.size, points)
-        j = np.argmax(zz, axis=1)
-        h_c = h_c + w * off[j]
-        z_c = zz[np.arange(h_c.size), j]
-        w = w * 2.0 / (points - 1)
-    return h_c, z_c
 
 
 def _central_dh(fun, h: np.ndarray) -> np.ndarray:

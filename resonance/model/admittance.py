@@ -26,7 +26,6 @@ __all__ = [
     "bank_step_admittance",
     "YPattern",
     "dense_y",
-    "sparse_y",
 ]
 
 #: Frequency dependence of series resistance, ``R(h) = R * factor(h)``.
@@ -393,15 +392,3 @@ def dense_y(arr: NetworkArrays, h: np.ndarray, diag_extra: np.ndarray | None = N
     y = np.zeros((h.shape[0], n * n), complex)
     y[:, pattern.rows * n + pattern.cols] = vals
     return y.reshape(h.shape[0], n, n)
-
-
-def sparse_y(arr: NetworkArrays, h: float, diag_extra: np.ndarray | None = None,
-             r_model: str = "constant", load_model: str = "parallel_rl",
-             pattern: YPattern | None = None) -> sp.csc_matrix:
-    """Y at one order as a sparse matrix [pu]; see :meth:`YPattern.values`."""
-    pattern = pattern or YPattern.build(arr)
-    vals = pattern.values(arr, np.array([float(h)]),
-                          None if diag_extra is None else np.atleast_2d(diag_extra),
-                          r_model, load_model)[0]
-    return sp.csr_matrix((vals, pattern.cols, pattern.indptr), shape=(pattern.n, pattern.n)).tocsc()
-
