@@ -24,6 +24,7 @@ from typing import Any, Mapping
 from resonance.assessment.study import BankScan, StudyResult
 from resonance.assessment.verdict import bank_findings, site_findings
 from resonance.inputs.case import Case
+from resonance.memo import Memo
 
 __all__ = ["CheckResult", "run_check", "LIVE_NET_LABEL"]
 
@@ -213,13 +214,14 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
         raise ValueError(f"workers must be a whole number >= 1, not {workers!r}")
     token = CHECK_WORKERS.set(workers)
     try:
-        checked, sha = _as_case(case, net)
-        model = netmodel.build_model(checked, net=net)
-        study = run_study(checked, model=model, cross_check=False)
-        tis = time_in_step(checked, study)
-        study = with_cross_check(study, checked, model)
-        proposals = propose_detuning(checked, model, study)
-        detuned = recommended_scans(checked, model, proposals)
+        with Memo().active():  # the one cache of this check, gone with it (resonance.memo)
+            checked, sha = _as_case(case, net)
+            model = netmodel.build_model(checked, net=net)
+            study = run_study(checked, model=model, cross_check=False)
+            tis = time_in_step(checked, study)
+            study = with_cross_check(study, checked, model)
+            proposals = propose_detuning(checked, model, study)
+            detuned = recommended_scans(checked, model, proposals)
     finally:
         CHECK_WORKERS.reset(token)
     return CheckResult(case=checked, study=study, proposals=proposals, time_in_step=tis, detuned_scans=detuned,

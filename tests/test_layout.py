@@ -15,7 +15,7 @@ PKG = ROOT / "resonance"
 
 #: the rooms from the bottom up: a module may import its own room and the rooms below it only
 LAYERS = (
-    ("resonance", "resonance.errors", "resonance.names", "resonance.outputs"),
+    ("resonance", "resonance.errors", "resonance.names", "resonance.outputs", "resonance.memo"),
     ("resonance.standards",),
     ("resonance.inputs",),
     ("resonance.model",),
@@ -132,3 +132,39 @@ def test_every_core_module_loads_without_matplotlib_or_pandapower():
 def test_a_backend_is_chosen_only_by_the_command_line():
     users = sorted(n for n, p in _modules().items() if "matplotlib.use(" in p.read_text(encoding="utf-8"))
     assert users == ["resonance.cli"]
+
+
+def test_no_module_keeps_a_cache_of_its_own():
+    # the one cache is the check's memo (resonance.memo); a module-level store would outlive it
+    words = ("WeakKeyDictionary", "lru_cache", "functools.cache", ".cache[", "model.cache")
+    found = sorted(f"{n}: {w}" for n, p in _modules().items() for w in words if w in p.read_text(encoding="utf-8"))
+    assert found == []
+
+
+def test_a_check_owns_its_memo_and_equal_runs_give_equal_results():
+    import json
+
+    from resonance import memo
+    from resonance.pipeline import run_check
+
+    from .conftest import CASES
+
+    seen = []
+    real = memo.Memo.active
+
+    def spy(self):
+        seen.append(self)
+        return real(self)
+
+    memo.Memo.active = spy
+    try:
+        a = run_check(CASES / "demo_plant.toml")
+    finally:
+        memo.Memo.active = real
+    assert memo.current() is None  # nothing is left active after the check
+    m = seen[0]
+    sizes = m.sizes()
+    # the detuned re-checks shared the bank-off scans, load flows and engines of one network
+    assert sizes.get("variant_study", 0) >= 1 and m.hits > 0
+    b = run_check(CASES / "demo_plant.toml")
+    assert json.dumps(a.data, sort_keys=True) == json.dumps(b.data, sort_keys=True)

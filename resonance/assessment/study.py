@@ -6,13 +6,13 @@ Pure apart from the pandapower calls made through :mod:`resonance.model.netmodel
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from resonance.model.admittance import YPattern, bank_step_admittance, bank_step_admittance_dh
 from resonance.inputs.case import Case
+from resonance.memo import remember, scope
 from resonance.inputs.case_checks import case_hints
 from resonance.errors import InputError, InputProblem, ModelError
 from resonance.assessment.findings import Finding
@@ -22,7 +22,7 @@ from resonance.harmonics.scan import (ModelSettings, harmonic_grid, impedance_co
 from resonance.harmonics.screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
 __all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models", "iec60909_cross_check",
-           "iec60909_job", "with_cross_check", "bus_short_circuit"]
+           "with_cross_check", "bus_short_circuit"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -229,10 +229,6 @@ class StudyResult:
         return None
 
 
-#: network -> the same network without loads (weak keys: dropped with the network)
-_NO_LOADS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
-
-
 def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) -> np.ndarray:
     """Driving-point impedance at the fundamental, loads excluded (short-circuit impedance).
 
@@ -256,9 +252,8 @@ def thevenin_pu(arr: NetworkArrays, buses: np.ndarray, settings: ModelSettings) 
     location, here with c = 1 and no correction factors).
     """
     buses = np.asarray(buses, int)
-    bare = _NO_LOADS.get(arr)
-    if bare is None:  # one load-free copy per network, so its solver set-up is reused
-        bare = _NO_LOADS[arr] = arr.without_loads()
+    # one load-free copy per network and check, so its solver set-up is reused
+    bare = remember("no_loads", arr, arr.without_loads)
     z = impedance_columns(bare, np.array([1.0]), buses,
                           ModelSettings(settings.r_model, "none"), rows=buses)
     return np.diagonal(z[0])
@@ -362,35 +357,31 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
                     z_ohm=np.abs(zkk) * zb_k, z_pcc_ohm=np.abs(zpp) * zb_p, steps=tuple(steps))
 
 
-#: network -> {(grid, buses, models): (Z, dZ/dh)} of bank-off scans without other banks in service,
-#: shared by the re-checks of detuned variants (the network is the same, only the bank differs)
-_BANK_OFF: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
-
-
 def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, settings: ModelSettings, extra,
                       pattern: YPattern) -> tuple[np.ndarray, np.ndarray]:
     """Bank-off ``Z[:, cols, cols]`` and ``dZ/dh`` on the grid ``h`` [pu] (read-only arrays)."""
     de = extra(h)
-    key = None
     if de is None:
-        key = (h.size, h.tobytes(), tuple(int(c) for c in cols), settings)
-        hit = _BANK_OFF.get(arr, {}).get(key)
-        if hit is not None:
-            return hit
-    de_dh = None
-    if de is not None:
-        eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
-        de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
+        # without other banks in service the bank-off scan depends on the network only: shared
+        # by the re-checks of detuned variants in the check's memo (read-only arrays)
+        key = (arr, h.size, h.tobytes(), tuple(int(c) for c in cols), settings)
+        return remember("bank_off_scan", key, lambda: _bank_off_solve(arr, h, cols, settings, None, None, pattern,
+                                                                      read_only=True))
+    eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
+    de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
+    return _bank_off_solve(arr, h, cols, settings, de, de_dh, pattern)
+
+
+def _bank_off_solve(arr, h, cols, settings, de, de_dh, pattern, read_only: bool = False):
     try:
         # with dZ/dh: the same solve seeds the adaptive peak search (scan.step_peaks)
         z0, dz0 = impedance_columns_dh(arr, h, cols, settings, de, rows=cols, pattern=pattern,
                                        diag_extra_dh=de_dh)
     except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
         raise ModelError(f"network admittance is singular ({e})") from None
-    if key is not None:
+    if read_only:
         z0.flags.writeable = False
         dz0.flags.writeable = False
-        _BANK_OFF.setdefault(arr, {})[key] = (z0, dz0)
     return z0, dz0
 
 
@@ -450,6 +441,11 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
         Inputs that are valid by schema but unusable (unknown spectrum names,
         a network file that does not fit).
     """
+    with scope():  # the running check's memo, or one for this study alone
+        return _run_study(case, model, cross_check)
+
+
+def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     from resonance.model import netmodel  # noqa: PLC0415  (pandapower is imported only here)
     from resonance.model.pp_loadflow import bank_voltages  # noqa: PLC0415
 
@@ -551,7 +547,7 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
 
 
 def iec60909_cross_check(case: Case, model) -> dict:
-    """IEC 60909 short-circuit power at the bank buses and the PCC (memoised on the model).
+    """IEC 60909 short-circuit power at the bank buses and the PCC (memoised in the check's memo).
 
     Parameters
     ----------
@@ -572,23 +568,10 @@ def iec60909_cross_check(case: Case, model) -> dict:
         Whatever pandapower raises when the cross-check cannot run;
         :func:`with_cross_check` turns it into a warning.
     """
-    key, value = iec60909_job(case, model)
-    model.cache.setdefault(key, value)
-    return dict(model.cache[key])
-
-
-def iec60909_job(case: Case, model) -> tuple:
-    """``(memo key, {bus: S_k'' [MVA]})`` of :func:`iec60909_cross_check`, for another process.
-
-    Reads the memo on ``model.cache`` when it is there; the process that owns the model
-    stores the pair with ``model.cache.setdefault(key, value)``.
-    """
     from resonance.model import netmodel  # noqa: PLC0415
 
-    key = ("iec60909", tuple(sorted({b.bus for b in case.bank} | {case.study.pcc_bus or model.supply_bus})))
-    if key in model.cache:
-        return key, dict(model.cache[key])
-    return key, netmodel.iec60909_sc_mva(model, list(key[1]))
+    buses = tuple(sorted({b.bus for b in case.bank} | {case.study.pcc_bus or model.supply_bus}))
+    return dict(remember("iec60909", (model, buses), lambda: netmodel.iec60909_sc_mva(model, list(buses))))
 
 
 def with_cross_check(res: StudyResult, case: Case, model) -> StudyResult:

@@ -35,6 +35,7 @@ from resonance.assessment.tuning import (SETTING_SOURCES, DetuningSettings, detu
 from resonance.design.detuned_step import (DetunedStep, capacitor_rating_kv, detuned_step, nameplate_kvar,
                                            next_ratings, rearrange_stages, stage_share_max)
 from resonance.errors import InputError, ModelError
+from resonance.memo import remember
 
 __all__ = ["run_variant", "propose_detuning", "recommended_case", "recommended_scans"]
 
@@ -147,10 +148,8 @@ def run_variant(variant, model):
     """
     from resonance.assessment.study import run_study  # noqa: PLC0415
 
-    key = _variant_key(variant)
-    if key not in model.cache:
-        model.cache[key] = run_study(variant, model=model, cross_check=False)
-    return model.cache[key]
+    return remember("variant_study", (model, _variant_key(variant)),
+                    lambda: run_study(variant, model=model, cross_check=False))
 
 
 def _variant_key(variant) -> tuple:

@@ -11,7 +11,6 @@ re-evaluating the impedance on successively finer local grids.
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -19,6 +18,7 @@ import numpy as np
 from resonance.model.admittance import YPattern
 from resonance.harmonics.engine import SparseEngine, sparse_columns
 from resonance.harmonics.grid import AdaptiveScan, adaptive_scan, peak_brackets, zoom_refine
+from resonance.memo import remember
 from resonance.model.network import NetworkArrays
 
 __all__ = [
@@ -80,13 +80,10 @@ def _nudge(h: np.ndarray) -> np.ndarray:
     return h * (1.0 + 1e-9)
 
 
-#: engines built for a network, reused across calls (keyed by the arrays object itself)
-_ENGINES: "weakref.WeakKeyDictionary[NetworkArrays, dict]" = weakref.WeakKeyDictionary()
-
-
 def sparse_engine(arr: NetworkArrays, settings: ModelSettings = ModelSettings(),
                   pattern: YPattern | None = None) -> SparseEngine:
-    """The sparse engine of a network (pattern, ordering, value map), built once and cached.
+    """The sparse engine of a network (pattern, ordering, value map), built once per check
+    (memoised in the running check's memo, :mod:`resonance.memo`).
 
     Parameters
     ----------
@@ -102,12 +99,8 @@ def sparse_engine(arr: NetworkArrays, settings: ModelSettings = ModelSettings(),
     SparseEngine
         Engine for ``arr`` and ``settings`` [see :class:`resonance.harmonics.engine.SparseEngine`].
     """
-    per_arr = _ENGINES.setdefault(arr, {})
-    eng = per_arr.get(settings)
-    if eng is None:
-        eng = SparseEngine.build(arr, settings.r_model, settings.load_model, pattern)
-        per_arr[settings] = eng
-    return eng
+    return remember("sparse_engine", (arr, settings),
+                    lambda: SparseEngine.build(arr, settings.r_model, settings.load_model, pattern))
 
 
 def impedance_columns(

@@ -67,8 +67,6 @@ class PlantModel:
     sc_mva_supply_min: float | None = None
     x_r_supply_min: float | None = None
     notes: tuple = field(default_factory=tuple)
-    #: memo of load-flow sessions and solved voltages (the net never changes, only bank outputs)
-    cache: dict = field(default_factory=dict, repr=False)
 
 
 def supply_impedance_pu(sc_mva: float, x_r: float, base_mva: float) -> tuple[float, float]:

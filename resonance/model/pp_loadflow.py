@@ -9,47 +9,40 @@ plant's net.
 from __future__ import annotations
 
 import copy
-import math
 import warnings
 
 import numpy as np
 
 from resonance.errors import ModelError
+from resonance.memo import remember
 from resonance.model.netmodel import PlantModel, _pp, supply_impedance_pu
 
 __all__ = ["LoadFlow", "load_flow_session", "bank_voltages", "load_flow_vm_pu"]
 
-#: natural log of the ratio between neighbouring bank outputs that share a load flow
-_LOG_Q_CELL = math.log(1.002)
-
-
 def bank_voltages(model: PlantModel, bank_buses: dict, q_kvar: dict, weak: bool = False) -> np.ndarray:
-    """Bus voltages [pu] with banks at the given outputs [kvar], memoised (see :class:`LoadFlow`)."""
-    # outputs within 0.1 % of each other share a load flow (a detuned candidate built to
-    # deliver the plain bank's kvar differs only by nameplate rounding): each output is
-    # rounded to a grid with ratio 1.002 and the load flow runs at the rounded value, so a
-    # result does not depend on which output of a grid cell came first (nor on the process
-    # that computed it).  The voltage error is about dQ / S_sc <= 0.001 Q / S_sc, below
-    # 1e-4 pu (derived from dV/V ~= Q / S_sc).
-    cells = {k: round(math.log(max(float(v), 1e-9)) / _LOG_Q_CELL) for k, v in q_kvar.items()}
-    key = ("vm", weak, tuple(sorted(bank_buses.items())), tuple(sorted(cells.items())))
-    if key not in model.cache:
-        q_cell = {k: (math.exp(c * _LOG_Q_CELL) if float(q_kvar[k]) > 1e-9 else 0.0) for k, c in cells.items()}
-        model.cache[key] = load_flow_session(model, bank_buses, weak).vm_pu(q_cell)
-    return model.cache[key].copy()
+    """Bus voltages [pu] with banks at the given outputs [kvar] (see :class:`LoadFlow`).
+
+    Memoised in the running check's memo (:mod:`resonance.memo`) on the exact outputs: every
+    load flow runs at the outputs asked for.
+    """
+    key = (model, weak, tuple(sorted(bank_buses.items())), tuple(sorted((k, float(v)) for k, v in q_kvar.items())))
+    vm = remember("bank_voltages", key,
+                  lambda: load_flow_session(model, bank_buses, weak).vm_pu({k: float(v) for k, v in q_kvar.items()}))
+    return vm.copy()
 
 
 def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False) -> "LoadFlow":
-    """The memoised :class:`LoadFlow` of a plant with the given banks, in one supply scenario.
+    """The :class:`LoadFlow` of a plant with the given banks, in one supply scenario.
 
     The weak-supply session is derived from the nominal one by changing the supply
     impedance in the bus admittance matrix (:meth:`LoadFlow.with_supply`) when the
     nominal session runs on arrays; otherwise it is a pandapower session of its own.
+    Memoised in the running check's memo (:mod:`resonance.memo`).
 
     Parameters
     ----------
     model : PlantModel
-        Plant model (its ``cache`` holds the sessions).
+        Plant model.
     bank_buses : dict
         Bank name -> bus name.
     weak : bool
@@ -59,17 +52,16 @@ def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False) -
     -------
     LoadFlow
     """
-    buses = tuple(sorted(bank_buses.items()))
-    skey = ("lf", weak, buses)
-    if skey not in model.cache:
+    def make() -> "LoadFlow":
         if weak and model.sc_mva_supply_min:
             nominal = load_flow_session(model, bank_buses, False)
             xr = model.x_r_supply_min or model.x_r_supply
             lf = nominal.with_supply(model.sc_mva_supply_min, xr) if nominal.mode == "arrays" else None
-            model.cache[skey] = lf if lf is not None else LoadFlow(model, bank_buses, weak=True)
-        else:
-            model.cache[skey] = LoadFlow(model, bank_buses, weak=weak)
-    return model.cache[skey]
+            return lf if lf is not None else LoadFlow(model, bank_buses, weak=True)
+        return LoadFlow(model, bank_buses, weak=weak)
+
+    return remember("load_flow_session", (model, weak, tuple(sorted(bank_buses.items()))), make)
+
 
 class LoadFlow:
     """Fundamental load flows of one plant with its banks at chosen outputs.
