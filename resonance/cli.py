@@ -249,8 +249,10 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         d = b.get("detuning") or {}
         rec = d.get("recommended")
         if rec:
+            band = rec.get("tuning_band") or (float("nan"), float("nan"))
             _say(f"\nbank {b['name']}: proposed detuned design: tuning order {rec['tuning_order']:.2f} "
-                 f"(p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV, nameplate stages "
+                 f"(p = {rec['detuning_pct']:g} %; {band[0]:.2f}-{band[1]:.2f} at the tolerance limits), "
+                 f"capacitors rated {rec['rated_kv']:g} kV, nameplate stages "
                  f"{', '.join(f'{q:g}' for q in rec['steps_kvar'])} kvar")
         if d.get("reason") and (rec or d.get("status") == "proposed"):
             _say(f"  {d['reason']}")

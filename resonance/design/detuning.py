@@ -497,6 +497,13 @@ def propose_detuning(case, model, result) -> dict:
                 "l_mh_per_stage": [s_["l_mh"] for s_ in b["stages"]],
                 "reactor_i_rms_max_a": [s_["i_rms_max_a"] for s_ in b["stages"]],
                 "reactor_i_lin_a": [s_["i_lin_a"] for s_ in b["stages"]],
+                # the one tolerance band: the terminal, the tables and the chart all show this
+                "tuning_band": list(b["tolerance"]["n_band"]),
+                "tolerance_pct": {"capacitance": list(st.cap_tolerance_pct),
+                                  "inductance": list(st.reactor_tolerance_pct)},
+                "lowest_significant_order": b["lowest_significant_order"],
+                "order_margin_pct": st.order_margin_pct,
+                "parallel_resonance": {sc_: hp["nominal"] for sc_, hp in b["tolerance"]["hp_band"].items()},
                 "bank_table": {"name": bank.name, "bus": bank.bus, "rated_kv": b["rated_kv"],
                                "steps_kvar": b["steps_kvar"], "detuning_pct": b["detuning_pct"],
                                "reactor_q": b["reactor_q"]},

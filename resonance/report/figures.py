@@ -22,7 +22,6 @@ __all__ = [
     "FONT",
     "PNG_DPI",
     "RC",
-    "CAP_TOLERANCE",
     "new_figure",
     "step_color",
     "draw_scan_all",
@@ -60,10 +59,6 @@ RC = {
     "axes.labelsize": 8.0,
     "legend.fontsize": 6.5,
 }
-#: capacitance tolerance of capacitor units, -5 / +10 % [memory; editions differ]
-#: (REFERENCES.md, "Detuned (series reactor) banks").  Capacitance lost with age
-#: raises the tuning order [common practice].
-CAP_TOLERANCE = (-0.05, 0.10)
 
 
 def new_figure(w_in: float, h_in: float) -> Figure:
@@ -414,9 +409,9 @@ def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str) -> N
         ax.set_title(ttl, color=STYLE["ink"], loc="left", fontsize=8)
 
 
-def draw_detuning_band(ax, n_tuned: float, p: float, h_parallel, steps, dominant: int | None,
-                       title: str) -> None:
-    """Tuning order with its capacitance-tolerance band and each step's parallel resonance.
+def draw_detuning_band(ax, n_tuned: float, p: float, band: tuple, band_label: str, h_parallel, steps,
+                       dominant: int | None, margin_pct: float | None, title: str) -> None:
+    """Tuning order with its tolerance band and each step's parallel resonance.
 
     Parameters
     ----------
@@ -426,32 +421,36 @@ def draw_detuning_band(ax, n_tuned: float, p: float, h_parallel, steps, dominant
         Series tuning order of the detuned step, ``1/sqrt(p)`` [unitless].
     p : float
         Detuning factor X_L/X_C [unitless].
+    band : (float, float)
+        The proposal's tuning band at the tolerance limits (``tuning_band`` of the
+        recommended design, :func:`resonance.assessment.tuning.tuning_band`) [unitless].
+    band_label : str
+        What the band spans (the tolerances the proposal used) [unitless].
     h_parallel : array_like
         Parallel resonance of each step with the supply (``1/sqrt(p + X_s/X_C)``) [unitless].
     steps : array_like of int
         Step numbers [unitless].
     dominant : int or None
-        Lowest injected order (the one the tuning must stay below) [unitless].
+        Lowest significant order (the one the tuning must stay below) [unitless].
+    margin_pct : float or None
+        The proposal's order margin below ``dominant`` [%].
     title : str
         Axes title [unitless].
 
     Notes
     -----
-    With the capacitance off nameplate by a fraction ``c``, the tuning order moves to
-    ``n / sqrt(1 + c)``; the band spans :data:`CAP_TOLERANCE`.
+    Nothing is recomputed here: band, margin and parallel resonances are the proposal's.
     """
     _style_axes(ax)
-    lo = n_tuned / math.sqrt(1.0 + CAP_TOLERANCE[1])
-    hi = n_tuned / math.sqrt(1.0 + CAP_TOLERANCE[0])
+    lo, hi = float(band[0]), float(band[1])
     y = np.asarray(steps, int)
-    ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.8, lw=0,
-               label=f"n with capacitance {CAP_TOLERANCE[0] * 100:+.0f}/{CAP_TOLERANCE[1] * 100:+.0f} %: "
-                     f"{lo:.2f}-{hi:.2f}")
+    ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.8, lw=0, label=f"n with {band_label}: {lo:.2f}-{hi:.2f}")
     ax.axvline(n_tuned, color=STYLE["ink"], lw=1.2, label=f"tuning order n = {n_tuned:.2f} (p = {p * 100:.3g} %)")
     if dominant is not None:
-        ax.axvline(dominant, color=STYLE["injected"], lw=1.2, label=f"lowest injected order {dominant}")
-        ax.axvline(0.9 * dominant, color=STYLE["injected"], lw=0.8, ls="--",
-                   label=f"90 % of it: {0.9 * dominant:.2f}")
+        ax.axvline(dominant, color=STYLE["injected"], lw=1.2, label=f"lowest significant order {dominant}")
+        if margin_pct is not None:
+            m = dominant * (1.0 - margin_pct / 100.0)
+            ax.axvline(m, color=STYLE["injected"], lw=0.8, ls="--", label=f"{100 - margin_pct:g} % of it: {m:.2f}")
     hp = np.asarray(h_parallel, float)
     ax.plot(hp, y, ls="none", marker="o", ms=4, color=STYLE["characteristic"], mec=STYLE["ink"], mew=0.4,
             label="parallel resonance with the supply, per step")

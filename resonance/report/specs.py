@@ -9,7 +9,6 @@ starts from a fresh figure, so its files do not depend on what ran before.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
@@ -137,18 +136,20 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
         rec, _c = _detuning(bank)
         n_t = _num(_get(rec, "tuning_order")) if rec else None
         p_pct = _num(_get(rec, "detuning_pct")) if rec else None
-        if rec and (n_t or p_pct):
-            p = p_pct / 100.0 if p_pct else 1.0 / n_t**2
-            n_t = n_t or 1.0 / math.sqrt(p)
-            q_r = np.cumsum([float(q) for q in (rec.get("steps_kvar") or b.stages_kvar)])
-            u_r = _num(rec.get("rated_kv")) or b.rated_kv
-            # X_s/X_C = U^2 Q_R / (S_sc U_R^2); h_p = 1/sqrt(p + X_s/X_C)  [derived, REFERENCES.md "Detuned banks"]
-            hp = 1.0 / np.sqrt(p + b.bus_kv**2 * q_r / 1000.0 / (sc.sc_mva * u_r**2))
-            dom = min(res.orders.injected) if res.orders.injected else None
+        band = _get(rec, "tuning_band") if rec else None
+        hp = _get(_get(rec, "parallel_resonance"), "nominal") if rec else None
+        if rec and n_t and p_pct and band and hp:
+            tol = _get(rec, "tolerance_pct") or {}
+            c, ind = tol.get("capacitance") or (None, None), tol.get("inductance") or (None, None)
+            label = (f"capacitance {c[0]:+g}/{c[1]:+g} %, inductance {ind[0]:+g}/{ind[1]:+g} %"
+                     if None not in (*c, *ind) else "the proposal's tolerances")
+            hp_arr = np.asarray([_num(x) for x in hp], float)
             specs["band"].append(_FigSpec(
                 f"fig_detuning_{s}", (8.2, 3.6),
-                lambda fig, r, n_t=n_t, p=p, hp=hp, k=np.arange(1, hp.size + 1), d=dom, nm=b.name:
-                rf.draw_detuning_band(_axes(fig, r, (0.72, 2.6, 0.5, 0.42)), n_t, p, hp, k, d,
+                lambda fig, r, n_t=n_t, p=p_pct / 100.0, bd=tuple(band), lb=label, hp=hp_arr,
+                k=np.arange(1, hp_arr.size + 1), d=_get(rec, "lowest_significant_order"),
+                m=_num(_get(rec, "order_margin_pct")), nm=b.name:
+                rf.draw_detuning_band(_axes(fig, r, (0.72, 2.6, 0.5, 0.42)), n_t, p, bd, lb, hp, k, d, m,
                                       f"Bank {nm}: recommended detuning"), 3.6))
     return specs
 

@@ -384,7 +384,18 @@ def _input_tables(res: StudyResult, data: dict) -> list[Table]:
 
 
 _REC_WORDS = {"tuning_order": "tuning order n [-]", "detuning_pct": "detuning p = X_L/X_C [%]",
-              "rated_kv": "capacitor rated voltage [kV]", "steps_kvar": "stages at rated voltage [kvar]"}
+              "rated_kv": "capacitor rated voltage [kV]", "steps_kvar": "stages at rated voltage [kvar]",
+              "tuning_band": "tuning order band at the tolerance limits [-]",
+              "lowest_significant_order": "lowest significant harmonic [-]",
+              "order_margin_pct": "required margin below it [%]"}
+
+
+def _band(v) -> str:
+    """A tuning band as the terminal and the chart write it: ``lo-hi`` to two decimals."""
+    try:
+        return f"{float(v[0]):.2f}-{float(v[1]):.2f}"
+    except (TypeError, ValueError, IndexError):
+        return _fmt_any(v)
 
 
 def _detuning_tables(bank: dict) -> list[Table]:
@@ -394,7 +405,8 @@ def _detuning_tables(bank: dict) -> list[Table]:
         out.append(Table(f"table_detuning_recommended_{_safe(bank['name'])}.csv",
                          f"Bank {bank['name']}: recommended detuned bank",
                          (Column("quantity", "", _s, "left"), Column("value", "", _s, "left", 60)),
-                         tuple((_REC_WORDS.get(k, k.replace("_", " ")), _fmt_any(v)) for k, v in rec.items()
+                         tuple((_REC_WORDS.get(k, k.replace("_", " ")),
+                                _band(v) if k == "tuning_band" else _fmt_any(v)) for k, v in rec.items()
                                if not isinstance(v, dict))))
     if cands:
         def stages(v):

@@ -207,9 +207,12 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
     if st.get("load_model") == "cigre_c4":
         mem.append("CIGRE 36.05 load model coefficients 0.073, 6.7 and 0.74 (from memory).")
     for b in data["banks"]:
-        if _detuning(b)[0]:
-            mem.append(f"Capacitance tolerance {rf.CAP_TOLERANCE[0] * 100:+.0f}/{rf.CAP_TOLERANCE[1] * 100:+.0f} % "
-                       "used for the detuning band (from memory; editions differ).")
+        rec = _detuning(b)[0]
+        tol = rec.get("tolerance_pct") if rec else None
+        if tol:
+            c, ind = tol.get("capacitance", ("?", "?")), tol.get("inductance", ("?", "?"))
+            mem.append(f"Capacitance tolerance {c[0]:+g}/{c[1]:+g} % and inductance tolerance {ind[0]:+g}/"
+                       f"{ind[1]:+g} % used for the detuning band (from memory; editions differ).")
             break
     for spec in _builtin_notes(res):
         mem.append(spec)
