@@ -76,3 +76,17 @@ def test_h_scan_equals_closed_form_every_step(tmp_path, f_hz):
         assert st.h_estimate == pytest.approx(expect, rel=1e-4)
         # residual X/R = 200 shifts the |Z| peak by ~ (R/X)^2: far below 0.1 %
         assert st.h_scan == pytest.approx(expect, rel=1e-3)
+
+
+def test_one_x_r_split_keeps_magnitude_and_ratio():
+    # IEC 60909-0:2016 clause 6.2: R_Q = Z_Q / sqrt(1 + (X/R)^2), X_Q = R_Q X/R (derived check:
+    # |R + jX| = Z and X / R = X/R)
+    from resonance.standards.impedance import split_by_x_r
+    from resonance.model.netmodel import supply_impedance_pu
+
+    for z_abs, x_r in ((5.0, 10.0), (0.02, 0.5), (1.0, 1e4)):
+        z = split_by_x_r(z_abs, x_r)
+        assert abs(z) == pytest.approx(z_abs, rel=1e-12)
+        assert z.imag / z.real == pytest.approx(x_r, rel=1e-12)
+    r, x = supply_impedance_pu(250.0, 12.0, 1.0)  # 250 MVA, X/R 12, 1 MVA base: |Z| = 1/250 pu
+    assert math.hypot(r, x) == pytest.approx(1.0 / 250.0, rel=1e-12) and x / r == pytest.approx(12.0)

@@ -19,6 +19,7 @@ import numpy as np
 from resonance.errors import InputProblem
 from resonance.inputs.case import Bank, Case
 from resonance.names import file_stem
+from resonance.standards.impedance import split_by_x_r
 
 __all__ = ["check_case", "bus_voltages_kv", "bus_kv_problems", "sc_kva_estimate", "case_hints",
            "STAGE_MIN_KVAR", "DEMAND_MIN_KVA"]
@@ -362,9 +363,6 @@ def sc_kva_estimate(case: Case, kv: dict[str, float] | None = None) -> dict[str,
     idx = {b: k for k, b in enumerate(names)}
     y = np.zeros((len(names), len(names)), complex)
 
-    def z_split(z_abs: float, x_r: float) -> complex:
-        return z_abs * complex(1.0, x_r) / math.hypot(1.0, x_r)
-
     def branch(a: str, b: str, z: complex) -> None:
         if a in idx and b in idx and z != 0:
             i, j = idx[a], idx[b]
@@ -375,9 +373,9 @@ def sc_kva_estimate(case: Case, kv: dict[str, float] | None = None) -> dict[str,
 
     s = case.supply
     k0 = idx[s.bus]
-    y[k0, k0] += 1 / z_split(1.0 / s.sc_mva, s.x_r)
+    y[k0, k0] += 1 / split_by_x_r(1.0 / s.sc_mva, s.x_r)
     for t in case.transformer:
-        branch(t.hv_bus, t.lv_bus, z_split(t.z_pct / 100.0 / (t.kva / 1000.0), t.x_r))
+        branch(t.hv_bus, t.lv_bus, split_by_x_r(t.z_pct / 100.0 / (t.kva / 1000.0), t.x_r))
     for c in case.cable:
         if c.from_bus in kv:
             z_ohm = complex(c.r_ohm_per_km, c.x_ohm_per_km) * c.length_m / 1000.0 / c.parallel

@@ -20,6 +20,7 @@ import numpy as np
 from resonance.inputs.case import Case
 from resonance.inputs.case_checks import bus_kv_problems, bus_voltages_kv
 from resonance.errors import InputError, InputProblem, ModelError
+from resonance.standards.impedance import split_by_x_r
 from resonance.model.network import BRANCH_LINE, BRANCH_OTHER, BRANCH_TRAFO, NetworkArrays
 
 __all__ = ["PlantModel", "build_model", "net_to_arrays", "iec60909_sc_mva", "supply_impedance_pu"]
@@ -88,15 +89,15 @@ def supply_impedance_pu(sc_mva: float, x_r: float, base_mva: float) -> tuple[flo
 
     Notes
     -----
-    ``|Z| = U_n^2 / S_sc``, i.e. ``base / S_sc`` in per unit; ``X = |Z| / sqrt(1 + (1/(X/R))^2)``.
+    ``|Z| = U_n^2 / S_sc``, i.e. ``base / S_sc`` in per unit, split by X/R
+    (:func:`resonance.standards.impedance.split_by_x_r`).
 
     References
     ----------
     IEC 60909-0:2016, clause 6.2 (network feeder impedance, here with c = 1).
     """
-    z = base_mva / sc_mva
-    x = z / math.sqrt(1.0 + (1.0 / x_r) ** 2)
-    return x / x_r, x
+    z = split_by_x_r(base_mva / sc_mva, x_r)
+    return z.real, z.imag
 
 
 #: one empty pandapower net per process: creating its ~70 tables costs about 0.2 s, a copy 0.02 s
@@ -128,7 +129,7 @@ def _build_from_tables(case: Case):
     pp.create_ext_grid(net, bus_pp[s.bus], vm_pu=1.0, name="supply", s_sc_max_mva=s.sc_mva,
                        rx_max=1.0 / s.x_r, s_sc_min_mva=sc_min, rx_min=1.0 / xr_min)
     for t in case.transformer:
-        vkr = t.z_pct / math.sqrt(1.0 + t.x_r**2)
+        vkr = split_by_x_r(t.z_pct, t.x_r).real  # u_Rr [%]
         pp.create_transformer_from_parameters(
             net, bus_pp[t.hv_bus], bus_pp[t.lv_bus], sn_mva=t.kva / 1000.0, vn_hv_kv=t.hv_kv,
             vn_lv_kv=t.lv_kv, vkr_percent=vkr, vk_percent=t.z_pct, pfe_kw=0.0, i0_percent=0.0,
