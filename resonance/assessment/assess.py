@@ -26,12 +26,12 @@ from resonance.harmonics.penetration import Injection, PenetrationResult, penetr
 from resonance.harmonics.scan import ModelSettings
 from resonance.standards.spectra import resolve_spectrum
 
-__all__ = ["StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
+__all__ = ["reported", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
 
 
 @dataclass(frozen=True, eq=False)
 class StepDuty:
-    """Distortion and duty figures of one step (plain data for results.json).
+    """Distortion and duty figures of one step (unrounded; rounded by the results.json writer).
 
     ``fields`` holds the per-step keys (``thd_v_pct``, ``cap_*_pct``, ``duty_ok``,
     PCC figures, per-order table); ``findings`` the limits it breaks.
@@ -52,6 +52,25 @@ class BankAssessment:
     bank_off: dict
     pen: PenetrationResult
     info: dict = field(default_factory=dict)
+
+
+#: decimals per key of the assessment's figures in results.json (everything else: 4)
+_DIGITS = {"cap_v_rms_pct": 3, "cap_v_peak_pct": 3, "cap_i_rms_pct": 3, "cap_kvar_pct": 3, "cap_v1_pct": 3,
+           "duty_margins_pct": 3, "bank_i_rms_a": 3, "i_limit_pct_of_il": 3, "isc_over_il": 2, "i_sc_a": 2,
+           "i_l_a": 3}
+
+
+def reported(x, nd: int = 4):
+    """The assessment's unrounded figures as results.json and the proposals report them
+    (``_DIGITS`` decimals per key, else ``nd``) [same units]."""
+    if isinstance(x, dict):
+        return {k: reported(v, _DIGITS.get(k, nd)) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [reported(v, nd) for v in x]
+    if isinstance(x, (bool, np.bool_)) or x is None or isinstance(x, (str, int, np.integer)):
+        return x
+    v = float(x)
+    return round(v, nd) if math.isfinite(v) else None
 
 
 def build_injection(case: Case, arr: NetworkArrays, model_bus: dict) -> Injection:
@@ -141,7 +160,7 @@ def demand_current_a(case: Case, v_pcc_kv: float, arr: NetworkArrays | None = No
 
 
 def _pct_table(h: np.ndarray, v: np.ndarray) -> dict:
-    return {str(int(a)): round(float(b) * 100.0, 4) for a, b in zip(h, v)}
+    return {str(int(a)): float(b) * 100.0 for a, b in zip(h, v)}
 
 
 def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: np.ndarray, pcc: int,
@@ -240,28 +259,28 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
         v_ok = thd_p <= vlim.thd_pct and worst_ind <= vlim.individual_pct
         i_ok = tdd <= clim.tdd_pct and worst_i >= 0
         f.update({
-            "thd_v_pct": round(thd_b, 4),
-            "cap_v_rms_pct": round(float(duty.v_rms_pct[s]), 3),
-            "cap_v_peak_pct": round(float(duty.v_peak_pct[s]), 3),
-            "cap_i_rms_pct": round(float(duty.i_rms_pct[s]), 3),
-            "cap_kvar_pct": round(float(duty.kvar_pct[s]), 3),
+            "thd_v_pct": thd_b,
+            "cap_v_rms_pct": float(duty.v_rms_pct[s]),
+            "cap_v_peak_pct": float(duty.v_peak_pct[s]),
+            "cap_i_rms_pct": float(duty.i_rms_pct[s]),
+            "cap_kvar_pct": float(duty.kvar_pct[s]),
             "duty_ok": bool(duty.ok[s]),
             "duty_margins_pct": {
-                "v_rms": round(float(duty.v_rms_margin_pct[s]), 3), "v_peak": round(float(duty.v_peak_margin_pct[s]), 3),
-                "i_rms": round(float(duty.i_rms_margin_pct[s]), 3), "kvar": round(float(duty.kvar_margin_pct[s]), 3)},
+                "v_rms": float(duty.v_rms_margin_pct[s]), "v_peak": float(duty.v_peak_margin_pct[s]),
+                "i_rms": float(duty.i_rms_margin_pct[s]), "kvar": float(duty.kvar_margin_pct[s])},
             "duty_governing": str(duty.governing[s]),
-            "cap_v1_pct": round(float(v1_cap[s]) * 100.0, 3),
-            "bank_i_rms_a": round(i_rms_a, 3),
-            "thd_v_pcc_pct": round(thd_p, 4),
-            "v_h_max_pcc_pct": round(worst_ind, 4),
-            "tdd_pct": round(tdd, 4),
+            "cap_v1_pct": float(v1_cap[s]) * 100.0,
+            "bank_i_rms_a": i_rms_a,
+            "thd_v_pcc_pct": thd_p,
+            "v_h_max_pcc_pct": worst_ind,
+            "tdd_pct": tdd,
             "pcc_voltage_ok": bool(v_ok),
             "pcc_current_ok": bool(i_ok),
             "harmonics": [
-                {"h": int(hh_), "v_bank_pct": round(float(vb[j]) * 100, 4), "v_pcc_pct": round(float(vp[j]) * 100, 4),
-                 "v_cap_pct": round(float(v_cap[s, j + 1]) * 100, 4), "i_bank_a": round(float(ib[j]), 4),
-                 "i_supply_a": round(float(i_sup_a[j]), 4), "i_supply_pct_of_il": round(float(ind_pct[j]), 4),
-                 "i_limit_pct_of_il": (round(float(clim.individual_pct[j]), 3) if clim.limited[j] else None)}
+                {"h": int(hh_), "v_bank_pct": float(vb[j]) * 100, "v_pcc_pct": float(vp[j]) * 100,
+                 "v_cap_pct": float(v_cap[s, j + 1]) * 100, "i_bank_a": float(ib[j]),
+                 "i_supply_a": float(i_sup_a[j]), "i_supply_pct_of_il": float(ind_pct[j]),
+                 "i_limit_pct_of_il": (float(clim.individual_pct[j]) if clim.limited[j] else None)}
                 for j, hh_ in enumerate(h.astype(int))],
         })
         finds = []
@@ -308,14 +327,14 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
                                  message=f"{tag}: harmonic {int(h[j])} current at the PCC {ind_pct[j]:.2f} % of "
                                          f"I_L exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"))
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
-    off = {"thd_v_pct": round(100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))), 4),
-           "thd_v_pcc_pct": round(thd_p_off, 4), "tdd_pct": round(tdd_off, 4)}
+    off = {"thd_v_pct": 100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))),
+           "thd_v_pcc_pct": thd_p_off, "tdd_pct": tdd_off}
     info = {"pcc_v_limits": {"individual_pct": vlim.individual_pct, "thd_pct": vlim.thd_pct, "source": vlim.source},
             "pcc_i_limits": {"row": clim.row, "tdd_pct": clim.tdd_pct, "source": clim.source,
-                             "isc_over_il": round(ratio, 2) if math.isfinite(ratio) else None,
-                             "i_l_a": round(i_l, 3), "i_l_basis": il_basis, "i_sc_a": round(i_sc, 2)},
-            "duty_limits": {"name": lim.name, "citation": lim.citation, "v_rms_pct": round(lim.v_rms * 100, 6),
-                            "v_peak_pct": round(lim.v_peak * 100, 6), "i_rms_pct": round(lim.i_rms * 100, 6),
-                            "kvar_pct": round(lim.q * 100, 6)},
+                             "isc_over_il": ratio if math.isfinite(ratio) else None,
+                             "i_l_a": i_l, "i_l_basis": il_basis, "i_sc_a": i_sc},
+            "duty_limits": {"name": lim.name, "citation": lim.citation, "v_rms_pct": lim.v_rms * 100,
+                            "v_peak_pct": lim.v_peak * 100, "i_rms_pct": lim.i_rms * 100,
+                            "kvar_pct": lim.q * 100},
             "orders": [int(x) for x in h]}
     return BankAssessment(bank=bank.name, scenario=scenario, steps=tuple(steps), bank_off=off, pen=pen, info=info)

@@ -30,6 +30,7 @@ from dataclasses import asdict
 
 import numpy as np
 
+from resonance.assessment.assess import reported
 from resonance.assessment.tuning import (SETTING_SOURCES, DetuningSettings, detuning_settings, parallel_band, tolerance_corners,
                                          significant_orders, tuning_band, tuning_reasons)
 from resonance.design.detuned_step import (DetunedStep, capacitor_rating_kv, detuned_step, nameplate_kvar,
@@ -64,7 +65,7 @@ def _bank_status(result, case, model, bank_name: str) -> dict:
         asm = result.assessment_for(bank_name, sc.scenario)
         rows = []
         for s, sd in zip(sc.steps, asm.steps):
-            f = sd.fields
+            f = reported(sd.fields)
             worse = [x.check for x in own if x.scenario == sc.scenario and x.step == s.step
                      and x.check.startswith("pcc_")]
             m = f["duty_margins_pct"]
@@ -80,8 +81,8 @@ def _bank_status(result, case, model, bank_name: str) -> dict:
                 "tdd_pct": f["tdd_pct"], "thd_v_pcc_pct": f["thd_v_pcc_pct"], "pcc_worse_than_off": worse,
             })
         out["scenarios"][sc.scenario] = {"sc_mva": round(sc.sc_mva, 4), "steps": rows,
-                                         "pcc_off": {"thd_v_pct": asm.bank_off["thd_v_pcc_pct"],
-                                                     "tdd_pct": asm.bank_off["tdd_pct"]}}
+                                         "pcc_off": {"thd_v_pct": reported(asm.bank_off["thd_v_pcc_pct"]),
+                                                     "tdd_pct": reported(asm.bank_off["tdd_pct"])}}
     out["passes"] = not own
     return out
 

@@ -9,6 +9,7 @@ import math
 
 import numpy as np
 
+from resonance.assessment.assess import reported
 from resonance.assessment.verdict import bank_findings, site_findings
 from resonance import __version__
 from resonance.assessment.study import BankScan, StudyResult
@@ -46,7 +47,7 @@ def _r(x, nd=4):
 
 def _steps(sc: BankScan, extra_by_step: dict | None, assessment=None) -> list[dict]:
     out = []
-    duty = {d.step: d.fields for d in assessment.steps} if assessment is not None else {}
+    duty = {d.step: reported(d.fields) for d in assessment.steps} if assessment is not None else {}
     for s in sc.steps:
         d = {
             "step": s.step,
@@ -111,8 +112,8 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         }
         asm = res.assessment_for(b.name, "nominal")
         if asm is not None:
-            entry["bank_off"] = asm.bank_off
-            entry["limits"] = asm.info
+            entry["bank_off"] = reported(asm.bank_off)
+            entry["limits"] = reported(asm.info)
         entry["duty_ok"] = all(s.get("duty_ok", True) for s in entry["steps"])
         entry["resonance_ok"] = all(s["resonance_ok"] for s in entry["steps"])
         weak = res.scans_for(b.name, "weak")
