@@ -26,7 +26,7 @@ from resonance.harmonics.penetration import Injection, PenetrationResult, penetr
 from resonance.harmonics.scan import ModelSettings
 from resonance.standards.spectra import resolve_spectrum
 
-__all__ = ["reported", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
+__all__ = ["reported", "duty_findings", "pcc_findings", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -283,49 +283,10 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
                  "i_limit_pct_of_il": (float(clim.individual_pct[j]) if clim.limited[j] else None)}
                 for j, hh_ in enumerate(h.astype(int))],
         })
-        finds = []
-        tag = f"bank {bank.name} step {s + 1} ({scenario} supply)"
-        for g, vals, limv in (("v_rms", duty.v_rms_pct, lim.v_rms), ("v_peak", duty.v_peak_pct, lim.v_peak),
-                              ("i_rms", duty.i_rms_pct, lim.i_rms), ("kvar", duty.kvar_pct, lim.q)):
-            val, limp = float(vals[s]), float(limv) * 100.0
-            if val > limp:  # each quantity beyond its limit is a finding of its own
-                finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check=f"duty_{g}",
-                                     value=val, limit=limp, unit="% of rating", source=lim.citation, cause="bank",
-                                     message=f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
-                                             f"{lim.name} limit {limp:.0f} %"))
-        if thd_p > vlim.thd_pct:
-            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_thd_v",
-                                 value=thd_p, limit=vlim.thd_pct, unit="% of nominal voltage",
-                                 source=vlim.source, value_bank_off=thd_p_off,
-                                 cause=distortion_cause(thd_p, thd_p_off, vlim.thd_pct),
-                                 message=f"{tag}: voltage THD at the PCC {thd_p:.2f} % exceeds the IEEE 519 limit "
-                                         f"{vlim.thd_pct:g} %"))
-        if worst_ind > vlim.individual_pct:
-            jw = int(np.argmax(vp))
-            hw = int(h[jw])
-            off_w = 100.0 * float(vp_off[jw])
-            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_v_individual",
-                                 value=worst_ind, limit=vlim.individual_pct, order=hw,
-                                 unit="% of nominal voltage", source=vlim.source, value_bank_off=off_w,
-                                 cause=distortion_cause(worst_ind, off_w, vlim.individual_pct),
-                                 message=f"{tag}: harmonic {hw} voltage at the PCC {worst_ind:.2f} % exceeds the "
-                                         f"IEEE 519 individual limit {vlim.individual_pct:g} %"))
-        if tdd > clim.tdd_pct:
-            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_tdd",
-                                 value=tdd, limit=clim.tdd_pct, unit="% of I_L", source=clim.source,
-                                 value_bank_off=tdd_off, cause=distortion_cause(tdd, tdd_off, clim.tdd_pct),
-                                 message=f"{tag}: TDD at the PCC {tdd:.2f} % exceeds the IEEE 519 limit "
-                                         f"{clim.tdd_pct:g} % (Isc/IL = {ratio:.0f})"))
-        if worst_i < 0:
-            j = int(np.argmin(np.where(clim.limited, clim.individual_pct - ind_pct, np.inf)))
-            finds.append(Finding(bank=bank.name, step=s + 1, scenario=scenario, check="pcc_i_individual",
-                                 value=float(ind_pct[j]), limit=float(clim.individual_pct[j]),
-                                 order=int(h[j]), unit="% of I_L", source=clim.source,
-                                 value_bank_off=float(ind_off_pct[j]),
-                                 cause=distortion_cause(float(ind_pct[j]), float(ind_off_pct[j]),
-                                                        float(clim.individual_pct[j])),
-                                 message=f"{tag}: harmonic {int(h[j])} current at the PCC {ind_pct[j]:.2f} % of "
-                                         f"I_L exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"))
+        finds = duty_findings(bank.name, s + 1, scenario,
+                              {"v_rms": float(duty.v_rms_pct[s]), "v_peak": float(duty.v_peak_pct[s]),
+                               "i_rms": float(duty.i_rms_pct[s]), "kvar": float(duty.kvar_pct[s])}, lim)
+        finds += pcc_findings(bank.name, s + 1, scenario, h, vp, vp_off, vlim, ind_pct, ind_off_pct, clim, ratio)
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
     off = {"thd_v_pct": 100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))),
            "thd_v_pcc_pct": thd_p_off, "tdd_pct": tdd_off}
@@ -338,3 +299,115 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
                             "kvar_pct": lim.q * 100},
             "orders": [int(x) for x in h]}
     return BankAssessment(bank=bank.name, scenario=scenario, steps=tuple(steps), bank_off=off, pen=pen, info=info)
+
+
+def duty_findings(bank: str, step: int, scenario: str, duty_pct: dict, lim) -> list[Finding]:
+    """Each capacitor duty quantity beyond its limit, one finding each.
+
+    Parameters
+    ----------
+    bank, scenario : str
+        Bank name and supply scenario [unitless].
+    step : int
+        Step number [unitless].
+    duty_pct : dict
+        ``{"v_rms", "v_peak", "i_rms", "kvar"}`` -> the quantity [% of rating].
+    lim : DutyLimits
+        The limit set (:func:`resonance.standards.duty.duty_limits`; fractions of rating).
+
+    Returns
+    -------
+    list of Finding
+        ``duty_<quantity>`` findings, always the bank's.
+
+    References
+    ----------
+    IEEE Std 18-2012, clause 5 (continuous overload limits), via ``lim.citation``.
+    """
+    tag = f"bank {bank} step {step} ({scenario} supply)"
+    out = []
+    for g, limv in (("v_rms", lim.v_rms), ("v_peak", lim.v_peak), ("i_rms", lim.i_rms), ("kvar", lim.q)):
+        val, limp = float(duty_pct[g]), float(limv) * 100.0
+        if val > limp:
+            out.append(Finding(bank=bank, step=step, scenario=scenario, check=f"duty_{g}", value=val, limit=limp,
+                               unit="% of rating", source=lim.citation, cause="bank",
+                               message=f"{tag}: capacitor {g.replace('_', ' ')} {val:.1f} % exceeds the "
+                                       f"{lim.name} limit {limp:.0f} %"))
+    return out
+
+
+def pcc_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_pcc: np.ndarray, v_pcc_off: np.ndarray,
+                 vlim, i_pct: np.ndarray, i_off_pct: np.ndarray, clim, isc_over_il: float) -> list[Finding]:
+    """The PCC distortion limits a step breaks, each with its bank-off value and its cause.
+
+    Parameters
+    ----------
+    bank, scenario : str
+        Bank name and supply scenario [unitless].
+    step : int
+        Step number [unitless].
+    h : ndarray, shape (n_h,)
+        Harmonic orders [unitless].
+    v_pcc, v_pcc_off : ndarray, shape (n_h,)
+        Harmonic voltage at the PCC with the step in and with the bank off [pu of nominal].
+    vlim : VoltageLimits
+        IEEE 519 voltage limits at the PCC voltage [%].
+    i_pct, i_off_pct : ndarray, shape (n_h,)
+        Harmonic current into the supply with the step in and with the bank off [% of I_L].
+    clim : CurrentLimits
+        IEEE 519 current limits for the short-circuit ratio [% of I_L].
+    isc_over_il : float
+        Short-circuit ratio I_sc/I_L, for the message [unitless].
+
+    Returns
+    -------
+    list of Finding
+        ``pcc_thd_v``, ``pcc_v_individual`` (the worst order), ``pcc_tdd``, ``pcc_i_individual``
+        (the order with the least margin); cause by :func:`resonance.assessment.verdict.distortion_cause`.
+
+    Notes
+    -----
+    THD = sqrt(sum V_h^2) / V_1 and TDD = sqrt(sum I_h^2) / I_L (IEEE Std 519-2014, clause 3).
+
+    References
+    ----------
+    IEEE Std 519-2014, tables 1 and 2 (voltage and current distortion limits at the PCC).
+    """
+    tag = f"bank {bank} step {step} ({scenario} supply)"
+    out = []
+    thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_pcc**2))), 100.0 * float(np.sqrt(np.sum(v_pcc_off**2)))
+    if thd > vlim.thd_pct:
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_thd_v", value=thd,
+                           limit=vlim.thd_pct, unit="% of nominal voltage", source=vlim.source, value_bank_off=thd_off,
+                           cause=distortion_cause(thd, thd_off, vlim.thd_pct),
+                           message=f"{tag}: voltage THD at the PCC {thd:.2f} % exceeds the IEEE 519 limit "
+                                   f"{vlim.thd_pct:g} %"))
+    worst = float(np.max(v_pcc) * 100.0) if v_pcc.size else 0.0
+    if worst > vlim.individual_pct:
+        jw = int(np.argmax(v_pcc))
+        off_w = 100.0 * float(v_pcc_off[jw])
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_v_individual", value=worst,
+                           limit=vlim.individual_pct, order=int(h[jw]), unit="% of nominal voltage",
+                           source=vlim.source, value_bank_off=off_w,
+                           cause=distortion_cause(worst, off_w, vlim.individual_pct),
+                           message=f"{tag}: harmonic {int(h[jw])} voltage at the PCC {worst:.2f} % exceeds the "
+                                   f"IEEE 519 individual limit {vlim.individual_pct:g} %"))
+    tdd, tdd_off = float(np.sqrt(np.sum(i_pct**2))), float(np.sqrt(np.sum(i_off_pct**2)))
+    if tdd > clim.tdd_pct:
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_tdd", value=tdd, limit=clim.tdd_pct,
+                           unit="% of I_L", source=clim.source, value_bank_off=tdd_off,
+                           cause=distortion_cause(tdd, tdd_off, clim.tdd_pct),
+                           message=f"{tag}: TDD at the PCC {tdd:.2f} % exceeds the IEEE 519 limit "
+                                   f"{clim.tdd_pct:g} % (Isc/IL = {isc_over_il:.0f})"))
+    if i_pct.size and np.any(clim.limited):
+        margin = np.where(clim.limited, clim.individual_pct - i_pct, np.inf)
+        j = int(np.argmin(margin))
+        if margin[j] < 0:
+            out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_i_individual",
+                               value=float(i_pct[j]), limit=float(clim.individual_pct[j]), order=int(h[j]),
+                               unit="% of I_L", source=clim.source, value_bank_off=float(i_off_pct[j]),
+                               cause=distortion_cause(float(i_pct[j]), float(i_off_pct[j]),
+                                                      float(clim.individual_pct[j])),
+                               message=f"{tag}: harmonic {int(h[j])} current at the PCC {i_pct[j]:.2f} % of "
+                                       f"I_L exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"))
+    return out

@@ -260,21 +260,18 @@ class Table:
         return out
 
 
-def _fails(s: dict, lim: _Limits) -> list[str]:
-    """Short codes of the checks a step fails: res, duty, V (PCC voltage), I (PCC current)."""
+#: short code of each check in the step tables' result column
+_CODE = {"resonance": "res", "duty_v_rms": "duty", "duty_v_peak": "duty", "duty_i_rms": "duty", "duty_kvar": "duty",
+         "pcc_thd_v": "V", "pcc_v_individual": "V", "pcc_tdd": "I", "pcc_i_individual": "I",
+         "detuning_tuning": "tune"}
+
+
+def _codes(findings, step) -> list[str]:
     out = []
-    if s.get("resonance_ok") is False:
-        out.append("res")
-    duty_over = any(_num(s.get(k)) is not None and q in lim.duty and _num(s.get(k)) > lim.duty[q]
-                    for q, k in DUTY_KEYS.items())
-    if s.get("duty_ok") is False or duty_over:
-        out.append("duty")
-    thd = _thd_pcc(s)
-    if s.get("pcc_voltage_ok") is False or (thd is not None and lim.pcc_thd is not None and thd > lim.pcc_thd):
-        out.append("V")
-    tdd = _num(s.get("tdd_pct"))
-    if s.get("pcc_current_ok") is False or (tdd is not None and lim.tdd is not None and tdd > lim.tdd):
-        out.append("I")
+    for f in findings:
+        c = _CODE.get(str(f.get("check")), str(f.get("check")))
+        if f.get("step") == step and c not in out:
+            out.append(c)
     return out
 
 
@@ -282,7 +279,9 @@ def _lim_head(label: str, v) -> str:
     return label + (f"\nlim {v:g}" if v is not None else "")
 
 
-def _step_rows(steps: list[dict], lim: _Limits, site_only: frozenset = frozenset()):
+def _step_rows(steps: list[dict], lim: _Limits, findings=()):
+    """Rows of a step table; the result word of each step comes from its findings alone (the
+    one judge: ``cause`` says whose each is), never from the figures."""
     cols = [Column("step", "-", _s), Column("kvar\nnameplate", "kvar", _f(0)), Column("kvar\ndelivered", "kvar", _f(1)),
             Column("h_est", "-", _f(2)), Column("h_scan", "-", _f(2)), Column("nearest\norder", "-", _s),
             Column("margin", "%", _f(1)), Column("THD\nbank bus", "%", _f(2)),
@@ -309,29 +308,27 @@ def _step_rows(steps: list[dict], lim: _Limits, site_only: frozenset = frozenset
             row.append(v)
             if v is not None and q in lim.duty and v > lim.duty[q]:
                 bad.add((i, 10 + j))
-        f = _fails(s, lim)
-        if f and s.get("step") in site_only:  # the one judge: only the site's own distortion here
-            row.append("pass (site " + ",".join(f) + ")")
+        own = _codes([x for x in findings if x.get("cause", "bank") == "bank"], s.get("step"))
+        site = _codes([x for x in findings if x.get("cause") == "site"], s.get("step"))
+        if own:
+            row.append("FAIL " + ",".join(own))
+            bad.add((i, len(cols) - 1))
         else:
-            row.append("pass" if not f else "FAIL " + ",".join(f))
-            if f:
-                bad.add((i, len(cols) - 1))
+            row.append("pass (site " + ",".join(site) + ")" if site else "pass")
         rows.append(row)
     return tuple(cols), tuple(tuple(r) for r in rows), frozenset(bad)
 
 
 def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits, findings=()) -> Table:
     mine = [f for f in findings if f.get("bank") == bank["name"] and f.get("scenario") in (scen, "all")]
-    bank_steps = {f.get("step") for f in mine if f.get("cause", "bank") == "bank"}
-    site_only = frozenset(f.get("step") for f in mine if f.get("cause") == "site") - bank_steps
-    cols, rows, bad = _step_rows(steps, lim, site_only)
+    cols, rows, bad = _step_rows(steps, lim, mine)
     suffix = "" if scen == "nominal" else "_weak"
     return Table(f"table_summary_{_safe(bank['name'])}{suffix}.csv",
                  f"Bank {bank['name']}: every step, {scen} supply", cols, rows,
                  "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
                  "char characteristic). THD in % of nominal voltage, TDD in % of I_L, duty in % of the capacitor "
-                 f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes: res resonance, duty capacitor duty, "
-                 "V PCC voltage distortion, I PCC current distortion; 'pass (site ...)': beyond a limit already with "
+                 f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes (from the findings): res resonance, duty "
+                 "capacitor duty, V PCC voltage distortion, I PCC current distortion, tune detuned tuning; 'pass (site ...)': beyond a limit already with "
                  "the bank off and not made worse by it (the site's own emission).", bad)
 
 
