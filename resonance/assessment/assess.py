@@ -167,6 +167,9 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
                 sc_mva_pcc: float, settings: ModelSettings, scenario: str, diag_extra=None) -> BankAssessment:
     """Penetration, duty and limits of every step of one bank.
 
+    Long on purpose: one pass over the steps keeps each step's figures and its findings
+    (:func:`duty_findings`, :func:`pcc_findings`) side by side, with the bank-off reference once.
+
     Parameters
     ----------
     case : Case

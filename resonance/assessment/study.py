@@ -446,6 +446,9 @@ def run_study(case: Case, model=None, cross_check: bool = True) -> StudyResult:
 
 
 def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
+    """The study stage of :func:`run_study`, top to bottom: sources, load flows per step, scans,
+    penetration and duty, findings.  Long on purpose: each stage is a few lines on the previous
+    one's results, and splitting it would only pass a dozen locals around."""
     from resonance.model import netmodel  # noqa: PLC0415  (pandapower is imported only here)
     from resonance.model.pp_loadflow import bank_voltages  # noqa: PLC0415
 

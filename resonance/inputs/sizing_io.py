@@ -150,6 +150,9 @@ def _rows(path: Path, file: str):
 def read_intervals(path) -> IntervalData:
     """Read interval demand from a CSV file (format in the module docstring).
 
+    Long on purpose: every row and column is checked where it is read, so each problem names
+    its line and column.
+
     Parameters
     ----------
     path : str or Path

@@ -322,6 +322,9 @@ def net_to_arrays(net, sc_by_grid: dict | None = None, require_grid_data: bool =
                   copy_net: bool = True) -> tuple[NetworkArrays, np.ndarray]:
     """Convert a pandapower net into :class:`NetworkArrays` (on a copy of the net).
 
+    Long on purpose: one pass over pandapower's branch, bus and load tables of its internal
+    case (``to_ppc``), each table a short block.
+
     Parameters
     ----------
     net : pandapowerNet

@@ -207,7 +207,8 @@ def _write(res: StudyResult, data: dict, detuned: dict, out, date: str) -> list[
 
 
 def _pdf(res: StudyResult, data: dict, tables: list, specs: dict, date: str, path) -> None:
-    """Lay out every page and write the PDF to ``path``."""
+    """Lay out every page and write the PDF to ``path`` (long on purpose: the sections in
+    report order, each a short block)."""
     title = data["case"]["title"]
     doc = _Doc(title)
     tbl = {t.name: t for t in tables}

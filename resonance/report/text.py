@@ -51,6 +51,8 @@ def _check_word(c: str) -> str:
 
 
 def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
+    """The summary paragraphs of one bank, from its findings (long on purpose: one sentence per
+    kind of finding, in the order an engineer reads them)."""
     margin = data["settings"]["margin_pct"]
     kind = (f"a detuned bank (p = {bank['detuning_pct']:g} %, tuning order {bank['tuning_order']:.2f})"
             if bank.get("detuning_pct") else "a plain (undetuned) bank")
