@@ -293,7 +293,11 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
     off = {"thd_v_pct": 100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))),
            "thd_v_pcc_pct": thd_p_off, "tdd_pct": tdd_off}
+    blim = ieee519_voltage_limits(bank.bus_kv, st.ieee519_edition, file=case.source_file)
     info = {"pcc_v_limits": {"individual_pct": vlim.individual_pct, "thd_pct": vlim.thd_pct, "source": vlim.source},
+            # the same table at the bank's own bus voltage (shown beside the bus spectrum; IEEE 519
+            # applies at the PCC, so no finding is made there)
+            "bus_v_limits": {"individual_pct": blim.individual_pct, "thd_pct": blim.thd_pct, "source": blim.source},
             "pcc_i_limits": {"row": clim.row, "tdd_pct": clim.tdd_pct, "source": clim.source,
                              "isc_over_il": ratio if math.isfinite(ratio) else None,
                              "i_l_a": i_l, "i_l_basis": il_basis, "i_sc_a": i_sc},

@@ -19,7 +19,7 @@ from matplotlib.figure import Figure
 from resonance.report import figures as rf
 from resonance.report.layout import INK, M_LEFT, M_TOP, PAGE_H, PAGE_W, TEXT_W, _Doc
 from resonance.report.tables import (DUTY_KEYS, _detuning, _get, _has_duty, _limits, _Limits, _num,
-                            _safe, _spectrum, _thd_bus, _thd_pcc, _v519)
+                            _safe, _spectrum, _thd_bus, _thd_pcc)
 from resonance.assessment.study import BankScan, StudyResult
 
 __all__ = ["FileJob", "file_jobs", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE"]
@@ -59,10 +59,10 @@ STEP_PAGE_H = 4.75         # height of one per-step plot on a page [in]
 def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
     steps = bank["steps"]
     ed = data["settings"].get("ieee519_edition")
-    v_bus = _v519(b.bus_kv, data)
+    v_bus = _get(bank.get("limits"), "bus_v_limits") or {}
     out = []
     for where, ind, label, ylab in (
-            ("bus", v_bus.individual_pct if v_bus else None, f"bank bus {b.bus}", "V_h [% of nominal]"),
+            ("bus", _num(v_bus.get("individual_pct")), f"bank bus {b.bus}", "V_h [% of nominal]"),
             ("pcc", lim.pcc_ind, f"PCC {data.get('pcc_bus')}", "V_h [% of nominal]"),
             ("i_pcc", None, f"current into the supply at the PCC {data.get('pcc_bus')}", "I_h [% of I_L]")):
         spx = [_spectrum(x, where) for x in steps]

@@ -116,26 +116,16 @@ def _pcc_kv(res: StudyResult, data: dict) -> float | None:
 
 
 def _duty_limit_set(data: dict):
+    """The published duty-limit set the case named (its citation and notes for the methods text;
+    the name is validated with the case, so the lookup cannot fail)."""
     from resonance.standards.duty import duty_limits  # noqa: PLC0415
-    try:
-        return duty_limits(data["settings"]["duty_limits"])
-    except Exception:  # noqa: BLE001 - an unknown set leaves the limit columns without a limit
-        return None
 
-
-def _v519(v_kv: float | None, data: dict):
-    if v_kv is None:
-        return None
-    from resonance.standards.limits import ieee519_voltage_limits  # noqa: PLC0415
-    try:
-        return ieee519_voltage_limits(v_kv, str(data["settings"].get("ieee519_edition", "2014")))
-    except Exception:  # noqa: BLE001 - unknown edition: no limit shown
-        return None
+    return duty_limits(data["settings"]["duty_limits"])
 
 
 @dataclass(frozen=True)
 class _Limits:
-    """Limits a bank's steps are compared with, as the results give them (or looked up)."""
+    """Limits a bank's steps are compared with, as the results give them (nothing looked up)."""
 
     duty: dict            # quantity -> [% of rating]
     duty_name: str
@@ -156,22 +146,13 @@ def _limits(res: StudyResult, data: dict, bank: dict, scen: str = "nominal") -> 
     if scen != "nominal":
         wl = (bank.get("weak_supply") or {}).get("limits")
         lim = {**{k: v for k, v in lim.items() if k != "pcc_i_limits"}, **(wl if isinstance(wl, dict) else {})}
-    dl = lim.get("duty_limits") if isinstance(lim.get("duty_limits"), dict) else None
-    if dl:
-        duty = {q: _num(dl.get(f"{q}_pct")) for q in DUTY_KEYS}
-        duty = {q: v for q, v in duty.items() if v is not None}
-        name = str(dl.get("name") or data["settings"].get("duty_limits"))
-    else:
-        d = _duty_limit_set(data)
-        duty = ({"v_rms": 100 * d.v_rms, "v_peak": 100 * d.v_peak, "i_rms": 100 * d.i_rms, "kvar": 100 * d.q}
-                if d else {})
-        name = d.name if d else str(data["settings"].get("duty_limits"))
-    pv = lim.get("pcc_v_limits") if isinstance(lim.get("pcc_v_limits"), dict) else None
-    if pv:
-        ind, thd, src = _num(pv.get("individual_pct")), _num(pv.get("thd_pct")), str(pv.get("source") or "")
-    else:
-        v = _v519(_pcc_kv(res, data), data)
-        ind, thd, src = (v.individual_pct, v.thd_pct, v.source) if v else (None, None, "")
+    # the limits are the assessment's, as the results give them; none are looked up here
+    dl = lim.get("duty_limits") if isinstance(lim.get("duty_limits"), dict) else {}
+    duty = {q: _num(dl.get(f"{q}_pct")) for q in DUTY_KEYS}
+    duty = {q: v for q, v in duty.items() if v is not None}
+    name = str(dl.get("name") or data["settings"].get("duty_limits"))
+    pv = lim.get("pcc_v_limits") if isinstance(lim.get("pcc_v_limits"), dict) else {}
+    ind, thd, src = _num(pv.get("individual_pct")), _num(pv.get("thd_pct")), str(pv.get("source") or "")
     pi = lim.get("pcc_i_limits") if isinstance(lim.get("pcc_i_limits"), dict) else {}
     return _Limits(duty, name, ind, thd, src, _num(pi.get("tdd_pct")), str(pi.get("source") or ""))
 

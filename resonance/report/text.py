@@ -5,9 +5,11 @@ Edge layer, no matplotlib.
 
 from __future__ import annotations
 
+from types import SimpleNamespace
+
 from resonance.report import figures as rf
 from resonance.report.tables import (DUTY_KEYS, DUTY_LABEL, _detuning, _duty_limit_set, _fmt_any, _has_duty,
-                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc, _v519)
+                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc)
 from resonance.assessment.study import StudyResult
 
 __all__ = ["NOT_EVALUATED"]
@@ -161,7 +163,9 @@ _L_MODEL = {
 def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
     st = data["settings"]
     v_pcc = _pcc_kv(res, data)
-    v519 = _v519(v_pcc, data)
+    pv = next((b["limits"]["pcc_v_limits"] for b in data["banks"] if (b.get("limits") or {}).get("pcc_v_limits")),
+              None)  # the assessment's PCC voltage limits (the same for every bank)
+    v519 = SimpleNamespace(**pv) if pv else None
     dl = _duty_limit_set(data)
     m = [
         "Supply: Thevenin source at the supply bus, X = V^2/S_sc split by the X/R ratio, reactance proportional "
