@@ -380,6 +380,14 @@ def main(argv: list[str] | None = None) -> int:
     except _Terminated as e:
         _say(f"terminated ({signal.Signals(e.signum).name}); no partial outputs were left", sys.stderr)
         return 128 + e.signum
+    except BrokenPipeError:  # the reader of our output went away (`resonance check ... | head`):
+        # the outputs were committed before the summary was printed; end as a shell's SIGPIPE would
+        try:
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())
+        except (OSError, ValueError):  # pragma: no cover - no real stdout
+            pass
+        return 128 + int(signal.SIGPIPE)
     except OSError as e:
         if e.errno in _WRITE_ERRNOS:  # the machine, not the input nor the tool: say which folder
             _say(f"error: {getattr(args, 'out', '') or '.'}: --out: cannot write the outputs: "
