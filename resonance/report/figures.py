@@ -444,7 +444,7 @@ def draw_detuning_band(ax, n_tuned: float, p: float, band: tuple, band_label: st
     _style_axes(ax)
     lo, hi = float(band[0]), float(band[1])
     y = np.asarray(steps, int)
-    ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.8, lw=0, label=f"n with {band_label}: {lo:.2f}-{hi:.2f}")
+    ax.axvspan(lo, hi, color=STYLE["band"], alpha=0.8, lw=0, label=f"n at the tolerance limits: {lo:.2f}-{hi:.2f}\n({band_label})")
     ax.axvline(n_tuned, color=STYLE["ink"], lw=1.2, label=f"tuning order n = {n_tuned:.2f} (p = {p * 100:.3g} %)")
     if dominant is not None:
         ax.axvline(dominant, color=STYLE["injected"], lw=1.2, label=f"lowest significant order {dominant}")
