@@ -228,17 +228,25 @@ def _write_outputs(args, case_path: Path, out, result) -> None:
 def _tell(args, data: dict, out, written, rec_text) -> None:
     """The terminal summary: findings (the bank's and the site's), proposals, files."""
     from resonance.report.results_json import CAUTION  # noqa: PLC0415
+    from resonance.report.text import site_lines  # noqa: PLC0415
 
     if not args.quiet:
         _say(_summary(data))
         _say("")
     for f in data["findings"]:
-        if f.get("cause") == "site":
-            off = f.get("value_bank_off")
-            was = f" (bank off: {off:g})" if isinstance(off, (int, float)) else ""
-            _say(f"SITE: {f['message']}{was}; already beyond the limit without the bank, not made worse by it")
-        else:
+        if f.get("cause") != "site":
             _say(f"FINDING: {f['message']}")
+    # the site's own distortion: one line per quantity, bank off against the bank's steps in (the
+    # per-step site findings are in results.json and the report)
+    n_site = sum(1 for f in data["findings"] if f.get("cause") == "site")
+    for b in data["banks"]:
+        for line in site_lines(b):
+            _say(line)
+    if n_site:
+        rule = data["settings"].get("site_findings", "report")
+        _say(f"{n_site} findings of the site's own distortion (not made worse by the bank): "
+             + ("they fail the check ([study] site_findings = \"fail\")" if rule == "fail" else
+                "reported, not failing the check ([study] site_findings = \"report\")"))
     for b in data["banks"]:
         t = b.get("time_in_step")
         if t:

@@ -22,7 +22,8 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from resonance.assessment.study import BankScan, StudyResult
-from resonance.assessment.verdict import bank_findings, site_findings
+from resonance.assessment.site import site_distortion
+from resonance.assessment.verdict import bank_findings, check_passes, site_findings
 from resonance.inputs.case import Case
 from resonance.memo import Memo
 
@@ -80,13 +81,20 @@ class CheckResult:
 
     @property
     def passed(self) -> bool:
-        """True when no finding is a bank's: the exit status 0 of ``resonance check``."""
-        return not self.bank_findings
+        """The verdict, the exit status 0 of ``resonance check``: no finding is a bank's (and, with
+        ``[study] site_findings = "fail"``, none is the site's either)."""
+        return check_passes(self.findings, self.case.study.site_findings)
 
     @property
     def site_passed(self) -> bool:
         """True when the site's own distortion is within every limit with the banks off."""
         return not self.site_findings
+
+    @property
+    def site_distortion(self) -> list[dict]:
+        """Every PCC quantity beyond its limit with a bank off, and what its steps do to it
+        (:func:`resonance.assessment.site.site_distortion`), per bank and scenario."""
+        return [e for asm in self.study.assessments for e in site_distortion(asm)]
 
     # ------------------------------------------------------------------ the edge views
     @cached_property

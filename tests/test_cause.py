@@ -84,3 +84,39 @@ def test_bank_off_values_equal_a_run_without_the_bank(tmp_path):
     _, data2, _ = _run(p, tmp_path / "b")
     tdd_tiny = data2["banks"][0]["steps"][0]["tdd_pct"]
     assert site[0]["value_bank_off"] == pytest.approx(tdd_tiny, rel=5e-3)
+
+
+def test_cold_store_summary_says_what_the_bank_does_to_the_site_s_distortion(tmp_path):
+    # IEEE Std 519-2014 Table 2 [published]: I_sc/I_L 100-1000 -> TDD 15 %; the cold store's plant
+    # alone exceeds it and the detuned bank lowers it on every step
+    rc, data, text = _run(CASES / "cold_store_50hz.toml", tmp_path / "o")
+    sd = [e for e in data["banks"][0]["site_distortion"] if e["check"] == "pcc_tdd" and e["scenario"] == "nominal"]
+    assert len(sd) == 1
+    e = sd[0]
+    steps = data["banks"][0]["steps"]
+    assert e["bank_off"] == pytest.approx(data["banks"][0]["bank_off"]["tdd_pct"], abs=1e-3)
+    assert e["with_steps_min"] == pytest.approx(min(s["tdd_pct"] for s in steps), abs=1e-3)
+    assert e["with_steps_max"] == pytest.approx(max(s["tdd_pct"] for s in steps), abs=1e-3)
+    assert e["limit"] == 15.0 and e["effect"] == "lowers" and e["with_steps_max"] < e["bank_off"]
+    assert (f"TDD at the PCC {e['bank_off']:.2f} % of I_L with the bank off (limit 15 % of I_L); "
+            f"{e['with_steps_min']:.2f}-{e['with_steps_max']:.2f} % of I_L with its steps in: the bank lowers it") in text
+    assert rc == 0 and data["passed"] is True and data["site_passed"] is False
+
+
+def test_site_findings_fail_when_the_case_asks(tmp_path):
+    text = (CASES / "cold_store_50hz.toml").read_text(encoding="utf-8")
+    raw = tomllib.loads(text)
+    raw.setdefault("study", {})["site_findings"] = "fail"
+    from resonance.pipeline import run_check
+
+    strict = run_check(raw)
+    assert strict.site_findings and not strict.bank_findings
+    assert strict.passed is False and strict.data["passed"] is False
+    raw["study"]["site_findings"] = "report"
+    assert run_check(raw).passed is True
+    raw["study"]["site_findings"] = "maybe"
+    from resonance.errors import InputError
+
+    with pytest.raises(InputError) as ei:
+        run_check(raw)
+    assert any(p.field == "study.site_findings" for p in ei.value.problems)

@@ -292,7 +292,10 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
         finds += pcc_findings(bank.name, s + 1, scenario, h, vp, vp_off, vlim, ind_pct, ind_off_pct, clim, ratio)
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
     off = {"thd_v_pct": 100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))),
-           "thd_v_pcc_pct": thd_p_off, "tdd_pct": tdd_off}
+           "thd_v_pcc_pct": thd_p_off, "tdd_pct": tdd_off,
+           # per order at the PCC with the bank off: voltage [% of nominal], current [% of I_L]
+           "v_pcc_pct": {str(int(x)): 100.0 * float(v) for x, v in zip(h, vp_off)},
+           "i_pcc_pct_of_il": {str(int(x)): float(v) for x, v in zip(h, ind_off_pct)}}
     blim = ieee519_voltage_limits(bank.bus_kv, st.ieee519_edition, file=case.source_file)
     info = {"pcc_v_limits": {"individual_pct": vlim.individual_pct, "thd_pct": vlim.thd_pct, "source": vlim.source},
             # the same table at the bank's own bus voltage (shown beside the bus spectrum; IEEE 519

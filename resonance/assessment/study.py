@@ -216,10 +216,11 @@ class StudyResult:
 
     @property
     def passed(self) -> bool:
-        """True when no finding is the bank's (:func:`resonance.assessment.verdict.bank_findings`)."""
-        from resonance.assessment.verdict import bank_findings  # noqa: PLC0415
+        """The verdict (:func:`resonance.assessment.verdict.check_passes`): no bank finding, and no
+        site finding either when the case sets ``site_findings = "fail"``."""
+        from resonance.assessment.verdict import check_passes  # noqa: PLC0415
 
-        return not bank_findings(self.findings)
+        return check_passes(self.findings, self.case.study.site_findings)
 
     def scans_for(self, bank: str, scenario: str = "nominal") -> BankScan | None:
         """The scan of one bank in one scenario (None if absent)."""

@@ -14,8 +14,12 @@ detuning-tuning findings are always the bank's.
 
 from __future__ import annotations
 
-__all__ = ["CAUSE_REL_TOL", "CAUSE_ABS_TOL_PCT", "BANK_CHECKS", "distortion_cause", "bank_findings",
-           "site_findings", "bank_passes"]
+__all__ = ["CAUSE_REL_TOL", "CAUSE_ABS_TOL_PCT", "BANK_CHECKS", "SITE_RULES", "distortion_cause", "bank_findings",
+           "site_findings", "bank_passes", "check_passes", "site_effect"]
+
+#: how the site's own distortion counts (``[study] site_findings``): "report" (apart, not failing)
+#: or "fail" (it fails the check as a bank finding does)
+SITE_RULES = ("report", "fail")
 
 #: A step "makes it worse" only when it raises the quantity by more than this fraction of its
 #: bank-off value [unitless] ...
@@ -75,3 +79,43 @@ def site_findings(findings) -> list:
 def bank_passes(findings, bank: str) -> bool:
     """True when ``bank`` has no finding of its own in any step and scenario [unitless]."""
     return not bank_findings(findings, bank)
+
+
+def check_passes(findings, site_rule: str = "report") -> bool:
+    """The check's verdict, the exit status 0: no bank finding, and with ``site_rule == "fail"``
+    no site finding either [unitless]."""
+    if site_rule not in SITE_RULES:
+        raise ValueError(f"unknown site rule {site_rule!r}")
+    return not bank_findings(findings) and (site_rule == "report" or not site_findings(findings))
+
+
+def site_effect(value_off: float, values_in, limit: float) -> dict | None:
+    """What a bank does to a distortion quantity that the site already has beyond its limit.
+
+    Parameters
+    ----------
+    value_off : float
+        The quantity with the bank (all of its steps) out of service [%].
+    values_in : sequence of float
+        The same quantity with each step in service [%].
+    limit : float
+        Its limit [%].
+
+    Returns
+    -------
+    dict or None
+        None when ``value_off`` is within the limit; else ``{"bank_off", "with_steps_min",
+        "with_steps_max", "limit", "effect"}`` with ``effect`` ``"lowers"`` (every step below the
+        bank-off value), ``"raises"`` (a step above it beyond the tolerance of
+        :func:`distortion_cause`: that step's finding is the bank's) or ``"no_worse"`` [%, unitless].
+    """
+    if not value_off > limit:
+        return None
+    vals = [float(v) for v in values_in]
+    if not vals:
+        return None
+    lo, hi = min(vals), max(vals)
+    worse = any(distortion_cause(v, value_off, limit) == "bank" for v in vals)
+    effect = "raises" if worse else ("lowers" if hi < value_off else "no_worse")
+    return {"bank_off": float(value_off), "with_steps_min": lo, "with_steps_max": hi, "limit": float(limit),
+            "effect": effect}

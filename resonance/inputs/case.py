@@ -246,6 +246,9 @@ class StudySettings(_Strict):
     duty_limits: Literal["ieee18-2002", "ieee18-2012", "ieee18-1992", "iec60831-1", "iec60871-1"] = "ieee18-2002"
     ieee519_edition: Literal["2014", "2022"] = "2014"
     summation: Literal["arithmetic", "iec61000-3-6", "phasor"] = "arithmetic"
+    #: "report": the site's own distortion (beyond its limit with the bank off and not made worse)
+    #: is reported apart and does not fail the check; "fail": it fails the check too
+    site_findings: Literal["report", "fail"] = "report"
     pcc_bus: str | None = None
     #: at least 1 kW (see :data:`DEMAND_MIN_KVA`), at most 10 GW
     max_demand_kw: Num | None = Field(default=None, ge=1.0, le=1.0e7)

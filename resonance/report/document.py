@@ -160,6 +160,9 @@ def _summary_pages(doc: _Doc, res: StudyResult, data: dict, tbl: dict) -> None:
         doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.0)
         if b.get("weak_supply"):
             doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.0)
+        site = tbl.get(f"table_site_{_safe(b['name'])}.csv")
+        if site is not None:
+            doc.table(site, size=7.0)
         doc.ensure(0.6)
         doc.text(M_LEFT, doc.y, "Verdict", fontsize=9.5, weight="bold")
         doc.y += 0.2

@@ -10,7 +10,8 @@ import math
 import numpy as np
 
 from resonance.assessment.assess import reported
-from resonance.assessment.verdict import bank_findings, site_findings
+from resonance.assessment.site import site_distortion
+from resonance.assessment.verdict import bank_findings, check_passes, site_findings
 from resonance import __version__
 from resonance.assessment.study import BankScan, StudyResult
 
@@ -114,6 +115,9 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         if asm is not None:
             entry["bank_off"] = reported(asm.bank_off)
             entry["limits"] = reported(asm.info)
+        # the site's own distortion beside what the bank's steps do to it, every scenario
+        entry["site_distortion"] = reported([e for a in res.assessments if a.bank == b.name
+                                             for e in site_distortion(a)])
         entry["duty_ok"] = all(s.get("duty_ok", True) for s in entry["steps"])
         entry["resonance_ok"] = all(s["resonance_ok"] for s in entry["steps"])
         weak = res.scans_for(b.name, "weak")
@@ -121,6 +125,9 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             entry["weak_supply"] = {"sc_mva": _r(weak.sc_mva, 4), "x_r_at_bus": _r(weak.x_r, 4),
                                     "steps": _steps(weak, extra.get((b.name, "weak")),
                                                     res.assessment_for(b.name, "weak"))}
+            wa = res.assessment_for(b.name, "weak")
+            if wa is not None:
+                entry["weak_supply"]["bank_off"] = reported(wa.bank_off)
         entry.update(extra.get(("bank", b.name), {}))
         banks.append(entry)
     sup = res.supply
@@ -139,7 +146,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "resistance_model": case.study.resistance_model, "load_model": case.study.load_model,
             "margin_pct": case.study.margin_pct, "other_banks": case.study.other_banks,
             "duty_limits": case.study.duty_limits, "ieee519_edition": case.study.ieee519_edition,
-            "summation": case.study.summation,
+            "summation": case.study.summation, "site_findings": case.study.site_findings,
         },
         "supply": {
             "bus": sup.bus if sup else None,
@@ -156,7 +163,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         "findings": findings,
         "warnings": list(res.warnings),
         # the bank's verdict (the exit status) and the site's own distortion apart from it
-        "passed": not own,
+        "passed": check_passes(res.findings, case.study.site_findings),
         "site_passed": not site_findings(res.findings),
     }
     out.update(extra.get("top", {}))

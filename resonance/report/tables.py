@@ -462,6 +462,31 @@ def _spectrum_tables(bank: dict, lim: _Limits, scen: str = "nominal") -> list[Ta
     return out
 
 
+_SITE_QTY = {"pcc_thd_v": "voltage THD", "pcc_v_individual": "voltage, order {h}", "pcc_tdd": "current TDD",
+             "pcc_i_individual": "current, order {h}"}
+_SITE_EFFECT = {"lowers": "lowers it", "raises": "raises it (bank finding)", "no_worse": "no worse"}
+
+
+def _site_table(bank: dict) -> Table | None:
+    """The site's own distortion at the PCC: bank off against the bank's steps in (results.json
+    ``site_distortion``), or None when the site is within every limit with the bank off."""
+    rows = tuple((e.get("scenario"), _SITE_QTY.get(e.get("check"), str(e.get("check"))).format(h=e.get("order")),
+                  e.get("unit"), e.get("limit"), e.get("bank_off"), e.get("with_steps_min"), e.get("with_steps_max"),
+                  _SITE_EFFECT.get(e.get("effect"), e.get("effect")))
+                 for e in bank.get("site_distortion") or [])
+    if not rows:
+        return None
+    cols = (Column("supply", "", _s, "left"), Column("quantity at the PCC", "", _s, "left"),
+            Column("unit", "", _s, "left"), Column("limit", "", _f(1)), Column("bank off", "", _f(2)),
+            Column("steps in, min", "", _f(2)), Column("steps in, max", "", _f(2)),
+            Column("the bank", "", _s, "left"))
+    return Table(f"table_site_{_safe(bank['name'])}.csv",
+                 f"Bank {bank['name']}: the site's own distortion, bank off against its steps in", cols, rows,
+                 "Quantities already beyond their IEEE 519 limit with the bank out of service. A step that does not "
+                 "make one worse leaves a finding of the site's ('pass (site ...)' in the step tables); one that "
+                 "does is a finding of the bank's.")
+
+
 def report_tables(res: StudyResult, data: dict) -> list[Table]:
     """Every table of the report (summary, inputs, spectra, detuning).
 
@@ -484,6 +509,9 @@ def report_tables(res: StudyResult, data: dict) -> list[Table]:
         if b.get("weak_supply"):
             out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", _limits(res, data, b, "weak"),
                                       data.get("findings", ())))
+        site = _site_table(b)
+        if site is not None:
+            out.append(site)
     out += _input_tables(res, data)
     for b in data["banks"]:
         out += _spectrum_tables(b, _limits(res, data, b))

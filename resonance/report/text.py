@@ -252,3 +252,23 @@ def _builtin_notes(res: StudyResult) -> list[str]:
         if note and "memory" in note:
             out.append(f"Built-in spectrum '{name}': {note}")
     return out
+
+
+#: what each PCC quantity is called in plain words
+_SITE_WORDS = {"pcc_thd_v": "voltage THD at the PCC", "pcc_v_individual": "harmonic {h} voltage at the PCC",
+               "pcc_tdd": "TDD at the PCC", "pcc_i_individual": "harmonic {h} current at the PCC"}
+_EFFECT_WORDS = {"lowers": "the bank lowers it", "raises": "the bank raises it (a finding of the bank's)",
+                 "no_worse": "the bank does not make it worse"}
+
+
+def site_lines(bank: dict) -> list[str]:
+    """One line per PCC quantity the site has beyond its limit with the bank off (results.json
+    ``site_distortion``): bank off against the bank's steps in, and what the bank does to it."""
+    out = []
+    for e in bank.get("site_distortion") or []:
+        what = _SITE_WORDS.get(e.get("check"), str(e.get("check"))).format(h=e.get("order"))
+        unit = "% of I_L" if "I_L" in str(e.get("unit")) else "%"
+        out.append(f"SITE: bank {bank['name']} ({e.get('scenario')} supply): {what} {e['bank_off']:.2f} {unit} with the "
+                   f"bank off (limit {e['limit']:g} {unit}); {e['with_steps_min']:.2f}-{e['with_steps_max']:.2f} {unit} "
+                   f"with its steps in: {_EFFECT_WORDS.get(e.get('effect'), e.get('effect'))}")
+    return out
