@@ -244,7 +244,7 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
             _say(line)
     if n_site:
         rule = data["settings"].get("site_findings", "report")
-        _say(f"{n_site} findings of the site's own distortion (not made worse by the bank): "
+        _say(f"{n_site} finding{'s' if n_site != 1 else ''} of the site's own distortion (not made worse by the bank): "
              + ("they fail the check ([study] site_findings = \"fail\")" if rule == "fail" else
                 "reported, not failing the check ([study] site_findings = \"report\")"))
     for b in data["banks"]:
