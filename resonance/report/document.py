@@ -19,7 +19,7 @@ per step (``banks[].steps[]`` and ``banks[].weak_supply.steps[]``):
     ``pcc.thd_v_pct``) [% of nominal], ``tdd_pct`` [% of I_L],
     ``cap_v_rms_pct``, ``cap_v_peak_pct``, ``cap_i_rms_pct``, ``cap_kvar_pct``
     [% of rating], ``duty_ok``, ``pcc_voltage_ok``, ``pcc_current_ok`` [bool];
-    per order ``harmonics[]``: ``h``, ``v_bank_pct`` (or ``v_bus_pct``),
+    per order ``harmonics[]``: ``h``, ``v_bank_pct``,
     ``v_pcc_pct`` [% of nominal], ``i_supply_pct_of_il``, ``i_limit_pct_of_il``
     [% of I_L] (all further scalar keys go to the long CSV).
 per bank (``banks[]``):

@@ -44,11 +44,11 @@ def _get(d: Any, *keys: str):
 
 
 def _thd_bus(step: dict):
-    return _num(_get(step, "thd_v_pct", "thd_v_bus_pct"))
+    return _num(step.get("thd_v_pct"))
 
 
 def _thd_pcc(step: dict):
-    return _num(_get(step, "thd_v_pcc_pct", "pcc_thd_v_pct", "pcc.thd_v_pct"))
+    return _num(step.get("thd_v_pcc_pct"))
 
 
 #: duty quantity -> per-step key [% of rating]
@@ -64,40 +64,23 @@ def _num(x):
     return v if math.isfinite(v) else None
 
 
-#: per-order quantity -> keys accepted in a ``harmonics`` entry (first present wins)
+#: per-order quantity -> its key in a step's ``harmonics`` entry (results.json, docs/results.md)
 _ORDER_KEYS = {
-    "bus": ("v_bank_pct", "v_bus_pct", "v_pct", "v_h_pct"),   # voltage at the bank bus [% of nominal]
-    "pcc": ("v_pcc_pct", "pcc_v_pct"),                        # voltage at the PCC [% of nominal]
-    "cap": ("v_cap_pct",),                                    # voltage across the capacitor [% of rated]
-    "i_pcc": ("i_supply_pct_of_il", "i_pcc_pct_of_il"),       # current into the supply [% of I_L]
-    "i_lim": ("i_limit_pct_of_il",),                          # IEEE 519 current limit [% of I_L]
+    "bus": "v_bank_pct",         # voltage at the bank bus [% of nominal]
+    "pcc": "v_pcc_pct",          # voltage at the PCC [% of nominal]
+    "cap": "v_cap_pct",          # voltage across the capacitor [% of rated]
+    "i_pcc": "i_supply_pct_of_il",  # current into the supply [% of I_L]
+    "i_lim": "i_limit_pct_of_il",   # IEEE 519 current limit [% of I_L]
 }
-_DICT_KEYS = {"bus": ("v_h_pct", "v_bus_h_pct"), "pcc": ("v_pcc_h_pct", "pcc_v_h_pct")}
-
-
-def _order_rows(step: dict) -> list[dict]:
-    for lk in ("harmonics", "per_order"):
-        rows = step.get(lk) if isinstance(step, dict) else None
-        if isinstance(rows, list) and rows and isinstance(rows[0], dict):
-            return rows
-    return []
 
 
 def _spectrum(step: dict, where: str) -> dict[int, float]:
     """Per-order value of one step (see :data:`_ORDER_KEYS` for ``where``); {} when absent."""
     out = {}
-    for r in _order_rows(step):
-        h, v = _num(r.get("h")), _num(_get(r, *_ORDER_KEYS[where]))
+    for r in step.get("harmonics") or []:
+        h, v = _num(r.get("h")), _num(r.get(_ORDER_KEYS[where]))
         if h is not None and v is not None and h > 1.5:
             out[int(round(h))] = v
-    if out:
-        return out
-    m = _get(step, *_DICT_KEYS.get(where, ()))
-    if isinstance(m, dict):
-        for h, v in m.items():
-            hh, vv = _num(h), _num(v)
-            if hh is not None and vv is not None and hh > 1.5:
-                out[int(round(hh))] = vv
     return out
 
 
@@ -420,7 +403,7 @@ def _fmt_any(v) -> str:
 def _spectrum_tables(bank: dict, lim: _Limits, scen: str = "nominal") -> list[Table]:
     """Per-order tables of a bank: one CSV in long form; PDF tables order x step per location."""
     steps = bank["steps"] if scen == "nominal" else (bank.get("weak_supply") or {}).get("steps", [])
-    rows_long = [(s.get("step"), r) for s in steps for r in _order_rows(s)]
+    rows_long = [(s.get("step"), r) for s in steps for r in (s.get("harmonics") or [])]
     out = []
     safe = _safe(bank["name"]) + ("" if scen == "nominal" else "_weak")
     if rows_long:
