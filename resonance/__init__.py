@@ -4,15 +4,20 @@ Frequency scans of every bank step, harmonic penetration, capacitor duty and
 distortion limits, detuning proposals and a submittal report, from one case file.
 
 Importing this package is cheap: pandapower and matplotlib are imported only
-by the modules that need them (``netmodel``, ``plots``, ``report``).
+by the modules that need them (``model/``, ``report/``).  The entry for Python users is
+``resonance.run_check`` (:func:`resonance.pipeline.run_check`, docs/python-api.md).
 """
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "load_case", "run_study", "InputError", "ResonanceError"]
+__all__ = ["__version__", "run_check", "load_case", "run_study", "InputError", "ResonanceError"]
 
 
 def __getattr__(name):  # lazy re-exports keep `resonance --help` fast
+    if name == "run_check":
+        from resonance.pipeline import run_check
+
+        return run_check
     if name == "load_case":
         from resonance.inputs.case_load import load_case
 
