@@ -61,3 +61,25 @@ def test_failed_cross_check_is_a_warning(tmp_path, monkeypatch):
     data = json.loads((out / "results.json").read_text())
     assert any("IEC 60909 cross-check not available (RuntimeError)" in w for w in data["warnings"])
     assert all(b["sc_mva_iec60909"] is None for b in data["banks"])
+
+
+def test_run_check_workers_reach_the_sparse_engine_and_end_with_the_check(monkeypatch):
+    from resonance.assessment import study
+    from resonance.harmonics import engine
+    from resonance.pipeline import run_check
+
+    monkeypatch.setenv("RESONANCE_WORKERS", "3")
+    seen = []
+    real = study.run_study
+
+    def spy(*a, **k):
+        seen.append(engine.default_workers())
+        return real(*a, **k)
+
+    monkeypatch.setattr(study, "run_study", spy)
+    run_check(ROOT / "cases" / "cold_store_50hz.toml", workers=2)
+    assert seen and set(seen) == {2}  # the call's value wins over the variable, for the whole check
+    assert engine.default_workers() == 3  # and is gone with it: the variable decides again
+    seen.clear()
+    run_check(ROOT / "cases" / "cold_store_50hz.toml")
+    assert set(seen) == {3}
