@@ -19,6 +19,7 @@ import numpy as np
 from resonance.assessment.findings import Finding
 from resonance.assessment.verdict import distortion_cause
 from resonance.inputs.case import Case
+from resonance.standards.compat import in_plant_limits
 from resonance.standards.duty import capacitor_duty, duty_limits
 from resonance.standards.limits import ieee519_current_limits, ieee519_voltage_limits
 from resonance.model.network import NetworkArrays
@@ -26,7 +27,7 @@ from resonance.harmonics.penetration import Injection, PenetrationResult, penetr
 from resonance.harmonics.scan import ModelSettings
 from resonance.standards.spectra import resolve_spectrum
 
-__all__ = ["reported", "duty_findings", "pcc_findings", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
+__all__ = ["reported", "duty_findings", "pcc_findings", "bus_findings", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -218,6 +219,8 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
         v_bank = np.zeros((n + 1, 0))
         v_pcc = np.zeros((n + 1, 0))
     lim = duty_limits(st.duty_limits, file=case.source_file)
+    plant_lim = (in_plant_limits(st.in_plant_limits, file=case.source_file)
+                 if st.in_plant_limits != "none" else None)
     # capacitor voltage per unit of its own rating; fundamental across the capacitor is V/(1-p)
     kv_ratio = bank.bus_kv / bank.rated_kv
     v1_cap = vm_steps / (1.0 - bank.p) * kv_ratio
@@ -290,6 +293,8 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
                               {"v_rms": float(duty.v_rms_pct[s]), "v_peak": float(duty.v_peak_pct[s]),
                                "i_rms": float(duty.i_rms_pct[s]), "kvar": float(duty.kvar_pct[s])}, lim)
         finds += pcc_findings(bank.name, s + 1, scenario, h, vp, vp_off, vlim, ind_pct, ind_off_pct, clim, ratio)
+        if plant_lim is not None:
+            finds += bus_findings(bank.name, s + 1, scenario, h, vb, v_bank[0], plant_lim)
         steps.append(StepDuty(step=s + 1, fields=f, findings=tuple(finds)))
     off = {"thd_v_pct": 100.0 * float(np.sqrt(np.sum(v_bank[0] ** 2))),
            "thd_v_pcc_pct": thd_p_off, "tdd_pct": tdd_off,
@@ -301,6 +306,9 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
             # the same table at the bank's own bus voltage (shown beside the bus spectrum; IEEE 519
             # applies at the PCC, so no finding is made there)
             "bus_v_limits": {"individual_pct": blim.individual_pct, "thd_pct": blim.thd_pct, "source": blim.source},
+            "in_plant_limits": ({"name": plant_lim.name, "thd_pct": plant_lim.thd_pct,
+                                 "individual_pct": {str(k): v for k, v in plant_lim.individual_pct.items()},
+                                 "source": plant_lim.source} if plant_lim is not None else None),
             "pcc_i_limits": {"row": clim.row, "tdd_pct": clim.tdd_pct, "source": clim.source,
                              "isc_over_il": ratio if math.isfinite(ratio) else None,
                              "i_l_a": i_l, "i_l_basis": il_basis, "i_sc_a": i_sc},
@@ -420,4 +428,58 @@ def pcc_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_pcc: np.n
                                                       float(clim.individual_pct[j])),
                                message=f"{tag}: harmonic {int(h[j])} current at the PCC {i_pct[j]:.2f} % of "
                                        f"I_L exceeds the IEEE 519 limit {clim.individual_pct[j]:g} %"))
+    return out
+
+
+def bus_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_bus: np.ndarray, v_bus_off: np.ndarray,
+                 plant) -> list[Finding]:
+    """The in-plant compatibility levels a step breaks at the bank's own bus.
+
+    Parameters
+    ----------
+    bank, scenario : str
+        Bank name and supply scenario [unitless].
+    step : int
+        Step number [unitless].
+    h : ndarray, shape (n_h,)
+        Harmonic orders [unitless].
+    v_bus, v_bus_off : ndarray, shape (n_h,)
+        Harmonic voltage at the bank's bus with the step in and with the bank off [pu of nominal].
+    plant : InPlantLimits
+        The class's levels (:func:`resonance.standards.compat.in_plant_limits`) [%].
+
+    Returns
+    -------
+    list of Finding
+        ``bus_thd_v`` and ``bus_v_individual`` (the order furthest beyond its level), each with its
+        bank-off value and cause (:func:`resonance.assessment.verdict.distortion_cause`).
+
+    References
+    ----------
+    IEC 61000-2-4:2002, tables 2 to 4 and THD (values from memory, see :mod:`resonance.standards.compat`).
+    """
+    tag = f"bank {bank} step {step} ({scenario} supply)"
+    out = []
+    thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_bus**2))), 100.0 * float(np.sqrt(np.sum(v_bus_off**2)))
+    if thd > plant.thd_pct:
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check="bus_thd_v", value=thd,
+                           limit=plant.thd_pct, unit="% of nominal voltage", source=plant.source,
+                           value_bank_off=thd_off, cause=distortion_cause(thd, thd_off, plant.thd_pct),
+                           message=f"{tag}: voltage THD at the bank's bus {thd:.2f} % exceeds the in-plant level "
+                                   f"{plant.thd_pct:g} % ({plant.name})"))
+    worst = None
+    for j, hh in enumerate(h.astype(int)):
+        lv = plant.individual_pct.get(int(hh))
+        if lv is not None and 100.0 * v_bus[j] > lv:
+            excess = 100.0 * float(v_bus[j]) / lv
+            if worst is None or excess > worst[0]:
+                worst = (excess, j, lv)
+    if worst is not None:
+        _, j, lv = worst
+        val, off = 100.0 * float(v_bus[j]), 100.0 * float(v_bus_off[j])
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check="bus_v_individual", value=val, limit=lv,
+                           order=int(h[j]), unit="% of nominal voltage", source=plant.source, value_bank_off=off,
+                           cause=distortion_cause(val, off, lv),
+                           message=f"{tag}: harmonic {int(h[j])} voltage at the bank's bus {val:.2f} % exceeds the "
+                                   f"in-plant level {lv:g} % ({plant.name})"))
     return out

@@ -26,6 +26,8 @@ CHECKS = {
     "pcc_tdd": "current TDD at the PCC",
     "pcc_i_individual": "an individual harmonic current at the PCC",
     "detuning_tuning": "tuning order of a detuned bank against the lowest significant order",
+    "bus_thd_v": "voltage THD at the bank's bus against the in-plant compatibility level",
+    "bus_v_individual": "an individual harmonic voltage at the bank's bus against its in-plant level",
 }
 
 #: whose a finding is: the bank's (it causes or worsens it) or the site's own emission

@@ -58,6 +58,7 @@ def _bank_status(result, case, model, bank_name: str) -> dict:
            "resonance_ok": not any(f.check == "resonance" for f in own),
            "duty_ok": not any(f.check.startswith("duty_") for f in own),
            "pcc_ok": not any(f.check.startswith("pcc_") for f in own),
+           "bus_ok": not any(f.check.startswith("bus_") for f in own),
            "tuning_ok": not any(f.check == "detuning_tuning" for f in own)}
     for sc in result.scans:
         if sc.bank.name != bank_name:

@@ -249,6 +249,8 @@ class StudySettings(_Strict):
     #: "report": the site's own distortion (beyond its limit with the bank off and not made worse)
     #: is reported apart and does not fail the check; "fail": it fails the check too
     site_findings: Literal["report", "fail"] = "report"
+    #: compatibility levels checked at each bank's bus inside the plant ("none": not checked)
+    in_plant_limits: Literal["none", "iec61000-2-4-class1", "iec61000-2-4-class2", "iec61000-2-4-class3"] = "none"
     pcc_bus: str | None = None
     #: at least 1 kW (see :data:`DEMAND_MIN_KVA`), at most 10 GW
     max_demand_kw: Num | None = Field(default=None, ge=1.0, le=1.0e7)
