@@ -19,7 +19,7 @@ import numpy as np
 from resonance.assessment.findings import Finding
 from resonance.assessment.verdict import distortion_cause
 from resonance.inputs.case import Case
-from resonance.standards.compat import in_plant_limits
+from resonance.standards.compat import InPlantLimits, in_plant_limits, planning_levels
 from resonance.standards.duty import capacitor_duty, duty_limits
 from resonance.standards.limits import ieee519_current_limits, ieee519_voltage_limits
 from resonance.model.network import NetworkArrays
@@ -27,7 +27,7 @@ from resonance.harmonics.penetration import Injection, PenetrationResult, penetr
 from resonance.harmonics.scan import ModelSettings
 from resonance.standards.spectra import resolve_spectrum
 
-__all__ = ["reported", "duty_findings", "pcc_findings", "bus_findings", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
+__all__ = ["reported", "voltage_levels", "duty_findings", "pcc_findings", "bus_findings", "StepDuty", "BankAssessment", "build_injection", "assess_bank", "demand_current_a"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -228,7 +228,9 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
     hh = np.concatenate([[1.0], h])
     duty = capacitor_duty(hh, v_cap, lim)
     v_kv_pcc = float(arr.bus_kv[pcc])
-    vlim = ieee519_voltage_limits(v_kv_pcc, st.ieee519_edition, file=case.source_file)
+    vlim = (ieee519_voltage_limits(v_kv_pcc, st.ieee519_edition, file=case.source_file)
+            if st.pcc_voltage_limits == "ieee519" else planning_levels(st.pcc_voltage_limits, file=case.source_file))
+    thd_level, v_levels, _w = voltage_levels(vlim, h)
     i_base_pcc = base * 1000.0 / (math.sqrt(3) * v_kv_pcc)  # [A]
     i_base_bank = base * 1000.0 / (math.sqrt(3) * bank.bus_kv)
     i_l, il_basis = demand_current_a(case, v_kv_pcc, arr)
@@ -262,7 +264,7 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
             worst_i = float("inf")
         ib = pen.i_bank_pu[s] * i_base_bank if h.size else np.zeros(0)
         i_rms_a = float(math.sqrt((i1_bank[s] * i_base_bank) ** 2 + float(np.sum(ib**2))))
-        v_ok = thd_p <= vlim.thd_pct and worst_ind <= vlim.individual_pct
+        v_ok = thd_p <= thd_level and not np.any(100.0 * vp > v_levels)
         i_ok = tdd <= clim.tdd_pct and worst_i >= 0
         f.update({
             "thd_v_pct": thd_b,
@@ -368,8 +370,9 @@ def pcc_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_pcc: np.n
         Harmonic orders [unitless].
     v_pcc, v_pcc_off : ndarray, shape (n_h,)
         Harmonic voltage at the PCC with the step in and with the bank off [pu of nominal].
-    vlim : VoltageLimits
-        IEEE 519 voltage limits at the PCC voltage [%].
+    vlim : VoltageLimits or InPlantLimits
+        IEEE 519 voltage limits at the PCC voltage, or per-order planning levels [%]
+        (:func:`voltage_levels`).
     i_pct, i_off_pct : ndarray, shape (n_h,)
         Harmonic current into the supply with the step in and with the bank off [% of I_L].
     clim : CurrentLimits
@@ -393,23 +396,26 @@ def pcc_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_pcc: np.n
     """
     tag = f"bank {bank} step {step} ({scenario} supply)"
     out = []
+    thd_level, levels, (set_word, ind_word) = voltage_levels(vlim, h)
     thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_pcc**2))), 100.0 * float(np.sqrt(np.sum(v_pcc_off**2)))
-    if thd > vlim.thd_pct:
+    if thd > thd_level:
         out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_thd_v", value=thd,
-                           limit=vlim.thd_pct, unit="% of nominal voltage", source=vlim.source, value_bank_off=thd_off,
-                           cause=distortion_cause(thd, thd_off, vlim.thd_pct),
-                           message=f"{tag}: voltage THD at the PCC {thd:.2f} % exceeds the IEEE 519 limit "
-                                   f"{vlim.thd_pct:g} %"))
-    worst = float(np.max(v_pcc) * 100.0) if v_pcc.size else 0.0
-    if worst > vlim.individual_pct:
-        jw = int(np.argmax(v_pcc))
+                           limit=thd_level, unit="% of nominal voltage", source=vlim.source, value_bank_off=thd_off,
+                           cause=distortion_cause(thd, thd_off, thd_level),
+                           message=f"{tag}: voltage THD at the PCC {thd:.2f} % exceeds the {set_word} "
+                                   f"{thd_level:g} %"))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(np.isfinite(levels), 100.0 * v_pcc / levels, -np.inf)
+    if v_pcc.size and float(np.max(ratio)) > 1.0:
+        jw = int(np.argmax(ratio))
+        worst, lv = 100.0 * float(v_pcc[jw]), float(levels[jw])
         off_w = 100.0 * float(v_pcc_off[jw])
         out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_v_individual", value=worst,
-                           limit=vlim.individual_pct, order=int(h[jw]), unit="% of nominal voltage",
+                           limit=lv, order=int(h[jw]), unit="% of nominal voltage",
                            source=vlim.source, value_bank_off=off_w,
-                           cause=distortion_cause(worst, off_w, vlim.individual_pct),
+                           cause=distortion_cause(worst, off_w, lv),
                            message=f"{tag}: harmonic {int(h[jw])} voltage at the PCC {worst:.2f} % exceeds the "
-                                   f"IEEE 519 individual limit {vlim.individual_pct:g} %"))
+                                   f"{ind_word} {lv:g} %"))
     tdd, tdd_off = float(np.sqrt(np.sum(i_pct**2))), float(np.sqrt(np.sum(i_off_pct**2)))
     if tdd > clim.tdd_pct:
         out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_tdd", value=tdd, limit=clim.tdd_pct,
@@ -483,3 +489,26 @@ def bus_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_bus: np.n
                            message=f"{tag}: harmonic {int(h[j])} voltage at the bank's bus {val:.2f} % exceeds the "
                                    f"in-plant level {lv:g} % ({plant.name})"))
     return out
+
+
+def voltage_levels(vlim, h: np.ndarray) -> tuple[float, np.ndarray, tuple[str, str]]:
+    """THD level, per-order levels and their names for a voltage limit set.
+
+    Parameters
+    ----------
+    vlim : VoltageLimits or InPlantLimits
+        IEEE 519 (one individual limit for every order) or a per-order table [%].
+    h : ndarray
+        Harmonic orders [unitless].
+
+    Returns
+    -------
+    (float, ndarray, (str, str))
+        THD level [%], the level of each order (NaN where the table has none) [%], and the words
+        for the THD and the individual limit in messages [unitless].
+    """
+    h = np.asarray(h, float)
+    if isinstance(vlim, InPlantLimits):
+        lv = np.array([vlim.individual_pct.get(int(x), np.nan) for x in h], float)
+        return vlim.thd_pct, lv, (f"planning level ({vlim.name})", f"planning level ({vlim.name})")
+    return vlim.thd_pct, np.full(h.shape, float(vlim.individual_pct)), ("IEEE 519 limit", "IEEE 519 individual limit")

@@ -53,10 +53,13 @@ def site_distortion(asm) -> list[dict]:
 
     add("pcc_thd_v", None, "% of nominal voltage",
         site_effect(off["thd_v_pcc_pct"], [f["thd_v_pcc_pct"] for f in steps], vl["thd_pct"]))
+    ind = vl["individual_pct"]  # one IEEE 519 limit for every order, or a per-order table
     for h, v_off in off.get("v_pcc_pct", {}).items():
+        lv = ind.get(int(h)) if isinstance(ind, dict) else ind
+        if lv is None:
+            continue
         rows = list(_per_order(steps, h))
-        add("pcc_v_individual", int(h), "% of nominal voltage",
-            site_effect(v_off, [r["v_pcc_pct"] for r in rows], vl["individual_pct"]))
+        add("pcc_v_individual", int(h), "% of nominal voltage", site_effect(v_off, [r["v_pcc_pct"] for r in rows], lv))
     add("pcc_tdd", None, "% of I_L", site_effect(off["tdd_pct"], [f["tdd_pct"] for f in steps], il["tdd_pct"]))
     for h, i_off in off.get("i_pcc_pct_of_il", {}).items():
         rows = list(_per_order(steps, h))

@@ -470,6 +470,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     pattern = YPattern.build(arr)
     # likely input mistakes (case_checks.case_hints) travel with the results
     warnings_: list[str] = [f"input {hint.field}: {hint.problem}" for hint in case_hints(case)]
+    warnings_ += _limit_set_notes(case)
     # fundamental voltage of every step from a load flow with that step in service
     vm: dict[tuple[str, str], np.ndarray] = {}
     full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
@@ -548,6 +549,21 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
                                             x_r=float(model.x_r_supply), sc_mva_min=model.sc_mva_supply_min,
                                             pcc_kv=float(arr.bus_kv[pcc])))
     return with_cross_check(res, case, model) if cross_check else res
+
+
+def _limit_set_notes(case: Case) -> list[str]:
+    """Which PCC voltage limit set was assumed, and why, where the case leaves it open."""
+    st = case.study
+    out = []
+    if case.frequency_hz == 50 and "pcc_voltage_limits" not in st.model_fields_set:
+        out.append("IEEE 519 voltage limits were assumed at the PCC (the default, the case names no set); a utility "
+                   "in a 50 Hz region often applies IEC 61000-3-6 planning levels at an MV or HV connection: set "
+                   "[study] pcc_voltage_limits = \"iec61000-3-6-mv\" or \"iec61000-3-6-hv\" where it does")
+    if st.pcc_voltage_limits != "ieee519":
+        out.append(f"PCC voltages are checked against {st.pcc_voltage_limits} planning levels; PCC currents stay "
+                   "checked against IEEE 519 (the emission limits a utility allocates under IEC 61000-3-6 are "
+                   "not modelled)")
+    return out
 
 
 def iec60909_cross_check(case: Case, model) -> dict:

@@ -249,6 +249,8 @@ class StudySettings(_Strict):
     #: "report": the site's own distortion (beyond its limit with the bank off and not made worse)
     #: is reported apart and does not fail the check; "fail": it fails the check too
     site_findings: Literal["report", "fail"] = "report"
+    #: harmonic voltage limits at the PCC: IEEE 519 (edition above) or IEC 61000-3-6 planning levels
+    pcc_voltage_limits: Literal["ieee519", "iec61000-3-6-mv", "iec61000-3-6-hv"] = "ieee519"
     #: compatibility levels checked at each bank's bus inside the plant ("none": not checked)
     in_plant_limits: Literal["none", "iec61000-2-4-class1", "iec61000-2-4-class2", "iec61000-2-4-class3"] = "none"
     pcc_bus: str | None = None

@@ -147,7 +147,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "margin_pct": case.study.margin_pct, "other_banks": case.study.other_banks,
             "duty_limits": case.study.duty_limits, "ieee519_edition": case.study.ieee519_edition,
             "summation": case.study.summation, "site_findings": case.study.site_findings,
-            "in_plant_limits": case.study.in_plant_limits,
+            "in_plant_limits": case.study.in_plant_limits, "pcc_voltage_limits": case.study.pcc_voltage_limits,
         },
         "supply": {
             "bus": sup.bus if sup else None,

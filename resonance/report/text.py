@@ -160,6 +160,21 @@ _L_MODEL = {
 }
 
 
+def _pcc_voltage_line(st: dict, data: dict, v_pcc, v519) -> str:
+    """The methods line on the PCC voltage limits: IEEE 519 (one individual limit) or a
+    per-order planning-level table, as the assessment applied it."""
+    where = f"applied at the PCC (bus {data.get('pcc_bus')}" + (f", {v_pcc:g} kV" if v_pcc else "") + ")"
+    if v519 is None:
+        return f"Voltage distortion limits: {where}."
+    ind = v519.individual_pct
+    if isinstance(ind, dict):
+        levels = ", ".join(f"h{h} {v:g}" for h, v in sorted(ind.items(), key=lambda kv: int(kv[0])))
+        return (f"Voltage distortion limits: {st.get('pcc_voltage_limits')} planning levels, {where}: {levels} %, "
+                f"THD {v519.thd_pct:g} % ({v519.source}).")
+    return (f"Voltage distortion limits: IEEE Std 519-{st.get('ieee519_edition')}, {where}: individual {ind:g} %, "
+            f"THD {v519.thd_pct:g} % ({v519.source}).")
+
+
 def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
     st = data["settings"]
     v_pcc = _pcc_kv(res, data)
@@ -187,9 +202,7 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
         f"Screening: a resonance within +-{st.get('margin_pct'):g} % of an injected, background or characteristic "
         "order (k p +- 1) is a finding (common practice).",
         "Short-circuit power at each bank bus is cross-checked with IEC 60909-0:2016 through pandapower.",
-        f"Voltage distortion limits: IEEE Std 519-{st.get('ieee519_edition')}, applied at the PCC "
-        f"(bus {data.get('pcc_bus')}" + (f", {v_pcc:g} kV" if v_pcc else "") + ")"
-        + (f": individual {v519.individual_pct:g} %, THD {v519.thd_pct:g} % ({v519.source})." if v519 else "."),
+        _pcc_voltage_line(st, data, v_pcc, v519),
         "Capacitor duty limits: " + (f"{dl.citation} - rms voltage {dl.v_rms:g}, crest voltage {dl.v_peak:g}, rms "
                                      f"current {dl.i_rms:g}, reactive power {dl.q:g} pu. {dl.note}." if dl else
                                      str(st.get("duty_limits"))),
@@ -205,7 +218,9 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
             if "memory" in src:
                 mem.append(f"Capacitor {q} limit of {dl.name}: {src}.")
     if v519 and "memory" in v519.source:
-        mem.append(f"IEEE 519 voltage limits at {v_pcc:g} kV: {v519.source}.")
+        named = "IEEE 519 voltage limits" if st.get("pcc_voltage_limits", "ieee519") == "ieee519" else \
+            f"{st.get('pcc_voltage_limits')} planning levels"
+        mem.append(f"{named} at {v_pcc:g} kV: {v519.source}.")
     if st.get("summation") != "arithmetic":
         mem.append("IEC 61000-3-6 summation exponents (from memory).")
     if st.get("resistance_model") == "breuer":

@@ -1,4 +1,5 @@
-"""In-plant compatibility levels of harmonic voltage (IEC 61000-2-4 classes 1, 2 and 3).
+"""Harmonic voltage levels of the IEC 61000 series: in-plant compatibility levels (IEC 61000-2-4
+classes 1, 2 and 3) and indicative planning levels at an MV or HV connection (IEC/TR 61000-3-6).
 
 Data with their source marker, no computation beyond the lookup.  The values are those of
 /work/shared/REFERENCES.md "In-plant and planning levels of harmonic voltage", which marks them
@@ -9,6 +10,8 @@ References
 ----------
 IEC 61000-2-4:2002, Compatibility levels in industrial plants for low-frequency conducted
 disturbances, tables 2 to 4 (odd non-multiple-of-3, odd multiple-of-3 and even orders) and THD.
+IEC/TR 61000-3-6:2008, Assessment of emission limits for the connection of distorting
+installations to MV, HV and EHV power systems, table 2 (indicative planning levels).
 """
 
 from __future__ import annotations
@@ -17,7 +20,7 @@ from dataclasses import dataclass
 
 from resonance.errors import InputError
 
-__all__ = ["IN_PLANT_SETS", "InPlantLimits", "in_plant_limits"]
+__all__ = ["IN_PLANT_SETS", "PLANNING_SETS", "InPlantLimits", "in_plant_limits", "planning_levels"]
 
 _SOURCE = ("IEC 61000-2-4:2002 compatibility levels, class {c} (from memory, REFERENCES.md; verify against "
            "the standard)")
@@ -88,3 +91,46 @@ def in_plant_limits(name: str, *, file: str = "<input>") -> InPlantLimits:
                                 + ", ".join(repr(k) for k in IN_PLANT_SETS))
     thd, ind = _LEVELS[c]
     return InPlantLimits(name=name, thd_pct=thd, individual_pct=dict(ind), source=_SOURCE.format(c=c))
+
+
+_PLANNING_SOURCE = ("IEC/TR 61000-3-6:2008 indicative planning levels, {v} (from memory, REFERENCES.md; verify "
+                    "against the report and the utility's own levels)")
+
+#: connection -> (THD [%], {order: planning level [% of nominal]}); REFERENCES.md gives 0.7-1.0 %
+#: for HV orders 19-25: 1.0 % is taken for the 19th and 0.7 % for the 23rd and 25th (from memory)
+_PLANNING = {
+    "MV": (6.5, {2: 1.8, 3: 4.0, 4: 1.0, 5: 5.0, 7: 4.0, 9: 1.2, 11: 3.0, 13: 2.5, 17: 1.6, 19: 1.2, 23: 1.2,
+                 25: 1.2}),
+    "HV-EHV": (3.0, {2: 1.4, 3: 2.0, 4: 0.8, 5: 2.0, 7: 2.0, 9: 1.0, 11: 1.5, 13: 1.5, 17: 1.2, 19: 1.0, 23: 0.7,
+                     25: 0.7}),
+}
+
+#: the names a case uses (``[study] pcc_voltage_limits``, beside the default ``"ieee519"``)
+PLANNING_SETS = {"iec61000-3-6-mv": "MV", "iec61000-3-6-hv": "HV-EHV"}
+
+
+def planning_levels(name: str, *, file: str = "<input>") -> InPlantLimits:
+    """The indicative planning levels of harmonic voltage at an MV or HV connection (the PCC).
+
+    Parameters
+    ----------
+    name : str
+        ``"iec61000-3-6-mv"`` or ``"iec61000-3-6-hv"`` [unitless].
+    file : str
+        Input file, for the error message [unitless].
+
+    Returns
+    -------
+    InPlantLimits
+        THD and per-order levels [% of nominal voltage] (same shape as the in-plant levels).
+
+    References
+    ----------
+    IEC/TR 61000-3-6:2008, table 2 (values from memory, see the module docstring).
+    """
+    v = PLANNING_SETS.get(name)
+    if v is None:
+        raise InputError.single(file, "study.pcc_voltage_limits", f"unknown set {name!r}; choose 'ieee519' or one "
+                                "of " + ", ".join(repr(k) for k in PLANNING_SETS))
+    thd, ind = _PLANNING[v]
+    return InPlantLimits(name=name, thd_pct=thd, individual_pct=dict(ind), source=_PLANNING_SOURCE.format(v=v))
