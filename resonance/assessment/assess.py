@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from resonance.assessment.envelope import scenario_words
 from resonance.assessment.findings import Finding
 from resonance.assessment.verdict import distortion_cause
 from resonance.inputs.case import Case
@@ -165,7 +166,8 @@ def _pct_table(h: np.ndarray, v: np.ndarray) -> dict:
 
 
 def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: np.ndarray, pcc: int,
-                sc_mva_pcc: float, settings: ModelSettings, scenario: str, diag_extra=None) -> BankAssessment:
+                sc_mva_pcc: float, settings: ModelSettings, scenario: str, diag_extra=None,
+                demand_arr: NetworkArrays | None = None) -> BankAssessment:
     """Penetration, duty and limits of every step of one bank.
 
     Long on purpose: one pass over the steps keeps each step's figures and its findings
@@ -193,6 +195,9 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
         "nominal" or "weak".
     diag_extra : ndarray, optional
         Other banks in service [pu].
+    demand_arr : NetworkArrays, optional
+        The network at full load, for the maximum demand I_L (a property of the site, not of the
+        scenario's loading: IEEE Std 519-2014 clause 3); ``arr`` when None.
 
     Returns
     -------
@@ -233,7 +238,7 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
     thd_level, v_levels, _w = voltage_levels(vlim, h)
     i_base_pcc = base * 1000.0 / (math.sqrt(3) * v_kv_pcc)  # [A]
     i_base_bank = base * 1000.0 / (math.sqrt(3) * bank.bus_kv)
-    i_l, il_basis = demand_current_a(case, v_kv_pcc, arr)
+    i_l, il_basis = demand_current_a(case, v_kv_pcc, demand_arr if demand_arr is not None else arr)
     i_sc = sc_mva_pcc * 1000.0 / (math.sqrt(3) * v_kv_pcc)
     ratio = i_sc / i_l if i_l > 0 else float("inf")
     clim = ieee519_current_limits(ratio if math.isfinite(ratio) else 1e9, h if h.size else np.array([5.0]),
@@ -344,7 +349,7 @@ def duty_findings(bank: str, step: int, scenario: str, duty_pct: dict, lim) -> l
     ----------
     IEEE Std 18-2012, clause 5 (continuous overload limits), via ``lim.citation``.
     """
-    tag = f"bank {bank} step {step} ({scenario} supply)"
+    tag = f"bank {bank} step {step} ({scenario_words(scenario)})"
     out = []
     for g, limv in (("v_rms", lim.v_rms), ("v_peak", lim.v_peak), ("i_rms", lim.i_rms), ("kvar", lim.q)):
         val, limp = float(duty_pct[g]), float(limv) * 100.0
@@ -394,7 +399,7 @@ def pcc_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_pcc: np.n
     ----------
     IEEE Std 519-2014, tables 1 and 2 (voltage and current distortion limits at the PCC).
     """
-    tag = f"bank {bank} step {step} ({scenario} supply)"
+    tag = f"bank {bank} step {step} ({scenario_words(scenario)})"
     out = []
     thd_level, levels, (set_word, ind_word) = voltage_levels(vlim, h)
     thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_pcc**2))), 100.0 * float(np.sqrt(np.sum(v_pcc_off**2)))
@@ -464,7 +469,7 @@ def bus_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_bus: np.n
     ----------
     IEC 61000-2-4:2002, tables 2 to 4 and THD (values from memory, see :mod:`resonance.standards.compat`).
     """
-    tag = f"bank {bank} step {step} ({scenario} supply)"
+    tag = f"bank {bank} step {step} ({scenario_words(scenario)})"
     out = []
     thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_bus**2))), 100.0 * float(np.sqrt(np.sum(v_bus_off**2)))
     if thd > plant.thd_pct:

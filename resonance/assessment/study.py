@@ -6,6 +6,7 @@ Pure apart from the pandapower calls made through :mod:`resonance.model.netmodel
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -15,6 +16,7 @@ from resonance.inputs.case import Case
 from resonance.memo import remember, scope
 from resonance.inputs.case_checks import case_hints
 from resonance.errors import InputError, InputProblem, ModelError
+from resonance.assessment.envelope import scenario_arrays, scenario_words, scenarios_of
 from resonance.assessment.findings import Finding
 from resonance.model.network import NetworkArrays
 from resonance.harmonics.scan import (ModelSettings, harmonic_grid, impedance_columns, impedance_columns_dh,
@@ -139,7 +141,7 @@ class BankScan:
     Attributes
     ----------
     scenario : str
-        "nominal" or "weak".
+        A scenario of the operating envelope (:mod:`resonance.assessment.envelope`).
     sc_mva : float
         Physical (c = 1) short-circuit power at the bank bus, loads excluded [MVA].
     x_r : float
@@ -206,6 +208,8 @@ class StudyResult:
     sc_mva_pcc: float = float("nan")
     sources: tuple = field(default_factory=tuple)
     supply: SupplyFigures | None = None
+    #: the operating envelope the study ran in (:class:`resonance.assessment.envelope.Scenario`)
+    scenarios: tuple = field(default_factory=tuple)
 
     def assessment_for(self, bank: str, scenario: str = "nominal"):
         """Penetration and duty of one bank in one scenario (None if absent)."""
@@ -474,9 +478,11 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     # fundamental voltage of every step from a load flow with that step in service
     vm: dict[tuple[str, str], np.ndarray] = {}
     full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
-    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
-        if a is None:
-            continue
+    # the operating envelope: every scenario with its own supply, voltage and loading
+    envelope = scenarios_of(case, model.arrays_weak is not None)
+    nets = {sn.name: scenario_arrays(arr, model.arrays_weak, sn) for sn in envelope}
+    for sn in envelope:
+        scenario = sn.name
         buses = {b.name: b.bus for b in banks}
         for b in banks:
             base_q = {o.name: full[o.name] for o in banks if o is not b} if st.other_banks == "full" else {}
@@ -484,14 +490,14 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
             for s in range(b.n_steps):
                 q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
                 try:
-                    v[s] = bank_voltages(model, buses, {**base_q, b.name: q}, weak=(scenario == "weak"))[b.index]
+                    v[s] = bank_voltages(model, buses, {**base_q, b.name: q}, weak=sn.weak, v_source_pu=sn.v_source_pu,
+                                         load_scale=sn.load_scale)[b.index]
                 except ModelError as e:
                     warnings_.append(f"bank {b.name} step {s + 1} ({scenario}): {e}; nominal voltage assumed")
             vm[(b.name, scenario)] = v
     scans = []
-    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
-        if a is None:
-            continue
+    for sn in envelope:
+        scenario, a = sn.name, nets[sn.name]
         for b in banks:
             others = [o for o in banks if o is not b]
             scans.append(_scan_bank(a, b, others, st.other_banks, pcc, h, settings, orders, st.margin_pct,
@@ -501,10 +507,11 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
 
     assessments = []
     sc_pcc = float("nan")
-    for scenario, a in (("nominal", arr), ("weak", model.arrays_weak)):
-        if a is None:
-            continue
+    for sn in envelope:
+        scenario, a = sn.name, nets[sn.name]
         inj = build_injection(case, a, model.model_bus)
+        if sn.source_scale != 1.0:
+            inj = dataclasses.replace(inj, src_i_pu=inj.src_i_pu * sn.source_scale)
         s_pcc = bus_short_circuit(a, pcc, settings)[0]
         if scenario == "nominal":
             sc_pcc = float(s_pcc)
@@ -516,7 +523,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
                 for ob in others:
                     extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]
             assessments.append(assess_bank(case, a, b, inj, vm[(b.name, scenario)], pcc, float(s_pcc), settings, scenario,
-                                           diag_extra=extra))
+                                           diag_extra=extra, demand_arr=arr))
     findings = []
     for sc in scans:
         for s in sc.steps:
@@ -526,7 +533,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
                     value=s.h_scan, limit=st.margin_pct, unit="harmonic order (limit: % margin)",
                     source="screening margin of the case ([study] margin_pct; common practice)", cause="bank",
                     order=s.nearest_order,
-                    message=(f"bank {sc.bank.name} step {s.step} ({sc.scenario} supply): resonance at "
+                    message=(f"bank {sc.bank.name} step {s.step} ({scenario_words(sc.scenario)}): resonance at "
                              f"h = {s.h_scan:.2f} is {abs(s.margin_pct):.1f} % from the {s.nearest_kind} "
                              f"order {s.nearest_order} (screening margin {st.margin_pct:g} %)"),
                 ))
@@ -545,6 +552,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
                        settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
                        assessments=tuple(assessments), sc_mva_pcc=sc_pcc, sources=tuple(sources),
+                       scenarios=tuple(envelope),
                        supply=SupplyFigures(bus=model.supply_bus, sc_mva=float(model.sc_mva_supply),
                                             x_r=float(model.x_r_supply), sc_mva_min=model.sc_mva_supply_min,
                                             pcc_kv=float(arr.bus_kv[pcc])))
@@ -597,8 +605,6 @@ def iec60909_cross_check(case: Case, model) -> dict:
 def with_cross_check(res: StudyResult, case: Case, model) -> StudyResult:
     """The study with its IEC 60909 figures [MVA] (:func:`iec60909_cross_check`), or with a
     warning where the cross-check cannot run (a failed cross-check is reported, not fatal)."""
-    import dataclasses  # noqa: PLC0415
-
     try:
         sc_iec = iec60909_cross_check(case, model)
     except Exception as e:  # noqa: BLE001 - pandapower's own errors

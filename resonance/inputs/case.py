@@ -18,7 +18,7 @@ from pydantic import BaseModel, ConfigDict, Field, Strict, field_validator, mode
 
 
 __all__ = ["Case", "Supply", "Transformer", "Cable", "Load", "HarmonicSource", "Bank", "StudySettings",
-           "NetworkFile", "DetuningTable", "DemandLink", "one_line"]
+           "NetworkFile", "DetuningTable", "DemandLink", "Envelope", "SCENARIO_NAMES", "one_line"]
 
 #: a number given as a TOML number: ``true`` or ``"13.8"`` are refused rather
 #: than read as 1.0 or 13.8 (an int is accepted where a float is expected)
@@ -286,6 +286,35 @@ class DetuningTable(_Strict):
     recheck: Literal["all", "first"] | None = None
 
 
+#: the supply and loading conditions a case can be checked in (see docs/case-file.md, [envelope])
+SCENARIO_NAMES = ("nominal", "weak", "high_voltage_light_load", "weak_light_load")
+
+
+class Envelope(_Strict):
+    """Optional ``[envelope]``: the operating conditions every step is checked in.
+
+    ``nominal`` is the supply at ``sc_mva`` and 1.0 pu with the plant at full load; ``weak`` the
+    supply at ``sc_mva_min``; ``high_voltage_light_load`` the supply at ``v_max_pu`` (plus the tap)
+    with the linear loads at ``light_load_pct``; ``weak_light_load`` the weak supply with light
+    load.  The weak scenarios exist only where ``sc_mva_min`` is given.
+    """
+
+    #: supply voltage of the high-voltage scenario [pu] (1.05: ANSI C84.1 Range A upper limit,
+    #: a common screening choice, REFERENCES.md "Operating envelope" [memory])
+    v_max_pu: Num = Field(default=1.05, ge=1.0, le=1.15)
+    #: transformer tap raising the plant's voltage in that scenario [%] (common practice: a
+    #: -2.5 % tap raises the secondary by about 2.5 %)
+    tap_pct: Num = Field(default=0.0, ge=0.0, le=10.0)
+    #: linear load in the light-load scenarios [% of the case's loads] (common practice: 20-40 %
+    #: at night and weekends, REFERENCES.md "Operating envelope")
+    light_load_pct: Num = Field(default=30.0, ge=1.0, le=100.0)
+    #: scale the harmonic sources with the load as well (false: sources at full output, the
+    #: worse case for distortion)
+    sources_follow_load: bool = False
+    #: the scenarios to check (default: all four where they exist)
+    scenarios: list[Literal["nominal", "weak", "high_voltage_light_load", "weak_light_load"]] | None = None
+
+
 class DemandLink(_Strict):
     """Optional ``[demand]``: metered interval data that weights each step by time in service.
 
@@ -317,6 +346,7 @@ class Case(_Strict):
     study: StudySettings = Field(default_factory=StudySettings)
     detuning: DetuningTable | None = None
     demand: DemandLink | None = None
+    envelope: Envelope = Field(default_factory=Envelope)
     #: path of the file the case came from (set by :func:`load_case`)
     source_file: str = ""
     #: directory that relative paths in the case are resolved against

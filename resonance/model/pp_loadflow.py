@@ -19,19 +19,25 @@ from resonance.model.netmodel import PlantModel, _pp, supply_impedance_pu
 
 __all__ = ["LoadFlow", "load_flow_session", "bank_voltages", "load_flow_vm_pu"]
 
-def bank_voltages(model: PlantModel, bank_buses: dict, q_kvar: dict, weak: bool = False) -> np.ndarray:
+def bank_voltages(model: PlantModel, bank_buses: dict, q_kvar: dict, weak: bool = False, v_source_pu: float = 1.0,
+                  load_scale: float = 1.0) -> np.ndarray:
     """Bus voltages [pu] with banks at the given outputs [kvar] (see :class:`LoadFlow`).
 
+    ``v_source_pu`` is the supply voltage [pu] and ``load_scale`` the linear loads as a fraction
+    of the case's [unitless] (the operating envelope, :mod:`resonance.assessment.envelope`).
     Memoised in the running check's memo (:mod:`resonance.memo`) on the exact outputs: every
     load flow runs at the outputs asked for.
     """
-    key = (model, weak, tuple(sorted(bank_buses.items())), tuple(sorted((k, float(v)) for k, v in q_kvar.items())))
+    key = (model, weak, float(v_source_pu), float(load_scale), tuple(sorted(bank_buses.items())),
+           tuple(sorted((k, float(v)) for k, v in q_kvar.items())))
     vm = remember("bank_voltages", key,
-                  lambda: load_flow_session(model, bank_buses, weak).vm_pu({k: float(v) for k, v in q_kvar.items()}))
+                  lambda: load_flow_session(model, bank_buses, weak, v_source_pu, load_scale).vm_pu(
+                      {k: float(v) for k, v in q_kvar.items()}))
     return vm.copy()
 
 
-def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False) -> "LoadFlow":
+def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False, v_source_pu: float = 1.0,
+                      load_scale: float = 1.0) -> "LoadFlow":
     """The :class:`LoadFlow` of a plant with the given banks, in one supply scenario.
 
     The weak-supply session is derived from the nominal one by changing the supply
@@ -52,15 +58,17 @@ def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False) -
     -------
     LoadFlow
     """
+    v, ls = float(v_source_pu), float(load_scale)
+
     def make() -> "LoadFlow":
         if weak and model.sc_mva_supply_min:
-            nominal = load_flow_session(model, bank_buses, False)
+            nominal = load_flow_session(model, bank_buses, False, v, ls)
             xr = model.x_r_supply_min or model.x_r_supply
             lf = nominal.with_supply(model.sc_mva_supply_min, xr) if nominal.mode == "arrays" else None
-            return lf if lf is not None else LoadFlow(model, bank_buses, weak=True)
-        return LoadFlow(model, bank_buses, weak=weak)
+            return lf if lf is not None else LoadFlow(model, bank_buses, weak=True, v_source_pu=v, load_scale=ls)
+        return LoadFlow(model, bank_buses, weak=weak, v_source_pu=v, load_scale=ls)
 
-    return remember("load_flow_session", (model, weak, tuple(sorted(bank_buses.items()))), make)
+    return remember("load_flow_session", (model, weak, v, ls, tuple(sorted(bank_buses.items()))), make)
 
 
 class LoadFlow:
@@ -93,13 +101,18 @@ class LoadFlow:
     Hart (1967), see :mod:`resonance.model.loadflow`.
     """
 
-    def __init__(self, model: PlantModel, bank_buses: dict, weak: bool = False):
+    def __init__(self, model: PlantModel, bank_buses: dict, weak: bool = False, v_source_pu: float = 1.0,
+                 load_scale: float = 1.0):
         self._pp = _pp()
         self.model = model
         self.net = copy.deepcopy(model.net)
+        if load_scale != 1.0 and len(self.net.load):  # the envelope's light load (pandapower's own scaling)
+            self.net.load["scaling"] = self.net.load["scaling"].astype(float) * float(load_scale)
         sc = model.sc_mva_supply_min if weak and model.sc_mva_supply_min else model.sc_mva_supply
         xr = model.x_r_supply_min if weak and model.x_r_supply_min else model.x_r_supply
         self._source = _supply_behind_impedance(self._pp, self.net, model, sc, xr)
+        if v_source_pu != 1.0:  # the envelope's supply voltage, at the source EMF behind its impedance
+            self.net.ext_grid["vm_pu"] = self.net.ext_grid["vm_pu"].astype(float) * float(v_source_pu)
         self.shunt = {}
         for name, bus in bank_buses.items():
             b = model.bus_pp[bus]

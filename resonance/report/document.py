@@ -160,6 +160,10 @@ def _summary_pages(doc: _Doc, res: StudyResult, data: dict, tbl: dict) -> None:
         doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.0)
         if b.get("weak_supply"):
             doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.0)
+        for scen in (b.get("scenarios") or {}):
+            extra_t = tbl.get(f"table_summary_{_safe(b['name'])}_{scen}.csv")
+            if scen != "weak" and extra_t is not None:
+                doc.table(extra_t, size=7.0)
         site = tbl.get(f"table_site_{_safe(b['name'])}.csv")
         if site is not None:
             doc.table(site, size=7.0)

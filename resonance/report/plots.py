@@ -6,6 +6,7 @@ from __future__ import annotations
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from resonance.assessment.envelope import scenario_words
 from resonance.assessment.study import BankScan, StudyResult  # noqa: E402
 
 __all__ = ["scan_figure", "STYLE"]
@@ -92,11 +93,11 @@ def scan_figure(res: StudyResult, sc: BankScan, steps: list[int] | None = None, 
                     color=col if st.resonance_ok else STYLE["injected"], mec=STYLE["ink"], mew=0.5, zorder=5)
         if compare is not None and s <= len(compare.steps):
             ax.semilogy(compare.h, compare.z_ohm[s], color=col, lw=1.0, ls="--",
-                        label=f"step {s}, {compare.scenario} supply")
+                        label=f"step {s}, {scenario_words(compare.scenario)}")
     ax.set_xlim(1, h_max)
     ax.set_xlabel("harmonic order h", color=STYLE["ink"], fontsize=9)
     ax.set_ylabel(f"|Z| at bus {sc.bank.bus} [ohm]", color=STYLE["ink"], fontsize=9)
-    scen = "" if sc.scenario == "nominal" else f" - {sc.scenario} supply"
+    scen = "" if sc.scenario == "nominal" else f" - {scenario_words(sc.scenario)}"
     ax.set_title(title or f"Driving-point impedance, bank {sc.bank.name}{scen}", color=STYLE["ink"],
                  fontsize=10, loc="left")
     ax.legend(fontsize=6.5, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)

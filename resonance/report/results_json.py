@@ -10,6 +10,7 @@ import math
 import numpy as np
 
 from resonance.assessment.assess import reported
+from resonance.assessment.envelope import scenario_words
 from resonance.assessment.site import site_distortion
 from resonance.assessment.verdict import bank_findings, check_passes, site_findings
 from resonance import __version__
@@ -128,6 +129,18 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             wa = res.assessment_for(b.name, "weak")
             if wa is not None:
                 entry["weak_supply"]["bank_off"] = reported(wa.bank_off)
+        # every scenario of the envelope but the nominal one (whose steps are the contract keys above)
+        entry["scenarios"] = {}
+        for sn in res.scenarios:
+            other = res.scans_for(b.name, sn.name)
+            if sn.name == "nominal" or other is None:
+                continue
+            oa = res.assessment_for(b.name, sn.name)
+            entry["scenarios"][sn.name] = {
+                "sc_mva": _r(other.sc_mva, 4), "x_r_at_bus": _r(other.x_r, 4),
+                "steps": _steps(other, extra.get((b.name, sn.name)), oa),
+                "bank_off": reported(oa.bank_off) if oa is not None else None,
+                "limits": reported(oa.info) if oa is not None else None}
         entry.update(extra.get(("bank", b.name), {}))
         banks.append(entry)
     sup = res.supply
@@ -156,6 +169,10 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "sc_mva_min": sup.sc_mva_min if sup else None,
             "sc_mva_iec60909_at_pcc": _r(res.sc_mva_iec60909.get(res.pcc_bus), 4),
         },
+        "scenarios": [{"name": sn.name, "words": scenario_words(sn.name), "weak_supply": sn.weak,
+                       "supply_sc_mva": _r(sup.sc_mva_min if (sn.weak and sup) else (sup.sc_mva if sup else None), 4),
+                       "supply_v_pu": _r(sn.v_source_pu, 5), "load_pct": _r(100.0 * sn.load_scale, 3),
+                       "sources_pct": _r(100.0 * sn.source_scale, 3)} for sn in res.scenarios],
         "pcc_bus": res.pcc_bus,
         "sc_mva_pcc": _r(res.sc_mva_pcc, 4),
         "harmonic_orders": {"injected": list(res.orders.injected), "background": list(res.orders.background),

@@ -19,6 +19,7 @@ from typing import Any, Callable
 
 from resonance.names import file_stem
 from resonance.outputs import csv_text_cell
+from resonance.assessment.envelope import scenario_words
 from resonance.assessment.study import StudyResult
 
 __all__ = ["Table", "Column", "report_tables", "DUTY_KEYS", "DUTY_LABEL"]
@@ -127,7 +128,7 @@ def _limits(res: StudyResult, data: dict, bank: dict, scen: str = "nominal") -> 
     """
     lim = bank.get("limits") if isinstance(bank.get("limits"), dict) else {}
     if scen != "nominal":
-        wl = (bank.get("weak_supply") or {}).get("limits")
+        wl = ((bank.get("scenarios") or {}).get(scen) or bank.get("weak_supply") or {}).get("limits")
         lim = {**{k: v for k, v in lim.items() if k != "pcc_i_limits"}, **(wl if isinstance(wl, dict) else {})}
     # the limits are the assessment's, as the results give them; none are looked up here
     dl = lim.get("duty_limits") if isinstance(lim.get("duty_limits"), dict) else {}
@@ -286,9 +287,9 @@ def _step_rows(steps: list[dict], lim: _Limits, findings=()):
 def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits, findings=()) -> Table:
     mine = [f for f in findings if f.get("bank") == bank["name"] and f.get("scenario") in (scen, "all")]
     cols, rows, bad = _step_rows(steps, lim, mine)
-    suffix = "" if scen == "nominal" else "_weak"
+    suffix = "" if scen == "nominal" else f"_{scen}"
     return Table(f"table_summary_{_safe(bank['name'])}{suffix}.csv",
-                 f"Bank {bank['name']}: every step, {scen} supply", cols, rows,
+                 f"Bank {bank['name']}: every step, {scenario_words(scen)}", cols, rows,
                  "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
                  "char characteristic). THD in % of nominal voltage, TDD in % of I_L, duty in % of the capacitor "
                  f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes (from the findings): res resonance, duty "
@@ -493,6 +494,10 @@ def report_tables(res: StudyResult, data: dict) -> list[Table]:
         if b.get("weak_supply"):
             out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", _limits(res, data, b, "weak"),
                                       data.get("findings", ())))
+        for scen, body in (b.get("scenarios") or {}).items():
+            if scen != "weak" and body.get("steps"):
+                out.append(_summary_table(b, body["steps"], scen, _limits(res, data, b, scen),
+                                          data.get("findings", ())))
         site = _site_table(b)
         if site is not None:
             out.append(site)

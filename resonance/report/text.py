@@ -7,6 +7,8 @@ from __future__ import annotations
 
 from types import SimpleNamespace
 
+from resonance.assessment.envelope import scenario_words
+
 from resonance.report import figures as rf
 from resonance.report.tables import (DUTY_KEYS, DUTY_LABEL, _detuning, _duty_limit_set, _fmt_any, _has_duty,
                             _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc)
@@ -283,7 +285,7 @@ def site_lines(bank: dict) -> list[str]:
     for e in bank.get("site_distortion") or []:
         what = _SITE_WORDS.get(e.get("check"), str(e.get("check"))).format(h=e.get("order"))
         unit = "% of I_L" if "I_L" in str(e.get("unit")) else "%"
-        out.append(f"SITE: bank {bank['name']} ({e.get('scenario')} supply): {what} {e['bank_off']:.2f} {unit} with the "
+        out.append(f"SITE: bank {bank['name']} ({scenario_words(str(e.get('scenario')))}): {what} {e['bank_off']:.2f} {unit} with the "
                    f"bank off (limit {e['limit']:g} {unit}); {e['with_steps_min']:.2f}-{e['with_steps_max']:.2f} {unit} "
                    f"with its steps in: {_EFFECT_WORDS.get(e.get('effect'), e.get('effect'))}")
     return out
