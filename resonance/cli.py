@@ -130,13 +130,17 @@ def _summary(data: dict) -> str:
         lines.append(f"\nbank {b['name']} at {b['bus']} ({b['bus_kv']:g} kV, {kind}); "
                      f"S_sc = {b['sc_mva']:.2f} MVA (IEC 60909: {iec} MVA)")
         lines.append("  step    kvar  h_est  h_scan  near  margin%  THDbus%  THDpcc%  Vrms%  Vpk%  Irms%  kvar%  TDD%  result")
-        # the one judge: a row is "ok" when the bank has no finding of its own at that step
-        # (nominal supply, or one that holds in every scenario); the site's own distortion is "site"
-        mine = [f for f in data["findings"] if f["bank"] == b["name"] and f["scenario"] in ("nominal", "all")]
+        # the one judge: a row is "ok" when the bank has no finding of its own at that step in any
+        # scenario; "site" when only the site's own distortion is beyond a limit; else FINDING with
+        # the scenarios where it governs (the figures shown are the nominal ones)
+        mine = [f for f in data["findings"] if f["bank"] == b["name"]]
+        order = [s["name"] for s in data.get("scenarios", [])] + ["all"]
         for s in b["steps"]:
             here = [f for f in mine if f["step"] == s["step"]]
-            ok = not any(f["cause"] == "bank" for f in here)
-            word = ("ok" if not here else "site") if ok else "FINDING"
+            own = sorted({f["scenario"] for f in here if f["cause"] == "bank"},
+                         key=lambda x: order.index(x) if x in order else len(order))
+            word = ("ok" if not here else "site") if not own else \
+                "FINDING " + ",".join(_SCEN_ABBR.get(x, x) for x in own)
             near = f"{s['nearest_order']:>4}" if s["nearest_order"] is not None else "   -"
             lines.append(f"  {s['step']:>4} {s['kvar_nameplate']:>7.0f} {_fmt(s['h_estimate'], 2, 6)} "
                          f"{_fmt(s['h_scan'], 2, 7)} {near} {_fmt(s['margin_pct'], 1, 8)} "
@@ -144,7 +148,16 @@ def _summary(data: dict) -> str:
                          f"{_fmt(s.get('cap_v_rms_pct'), 1, 6)} {_fmt(s.get('cap_v_peak_pct'), 1, 5)} "
                          f"{_fmt(s.get('cap_i_rms_pct'), 1, 6)} {_fmt(s.get('cap_kvar_pct'), 1, 6)} "
                          f"{_fmt(s.get('tdd_pct'), 1, 5)}  {word}")
+    if len(data.get("scenarios", [])) > 1:
+        lines.append("  (figures: nominal supply; FINDING names the scenarios: "
+                     + ", ".join(f"{_SCEN_ABBR.get(s['name'], s['name'])} {s['words']}" for s in data["scenarios"])
+                     + ")")
     return "\n".join(lines)
+
+
+#: short names of the scenarios in the terminal table
+_SCEN_ABBR = {"nominal": "nom", "weak": "weak", "high_voltage_light_load": "HV/LL", "weak_light_load": "weak/LL",
+              "all": "all"}
 
 
 def _input_files(case, case_path: Path) -> list[Path]:
