@@ -175,3 +175,23 @@ def test_conversion_in_place_leaves_the_element_tables_alone(case_name):
           if int(model.net.ext_grid.at[gi, "bus"]) == model.bus_pp[model.supply_bus]}
     again, _ = net_to_arrays(copy.deepcopy(model.net), sc)  # the converted net converts the same again
     _assert_same_arrays(model.arrays, again)
+
+
+def test_envelope_session_from_arrays_equals_pandapower_at_that_voltage_and_load():
+    # the derived session (loads scaled in the injections, EMF raised) against a session that runs
+    # pandapower's own runpp with the load scaling and the source voltage set (pandapower load flow)
+    from resonance.memo import Memo
+    from resonance.model.pp_loadflow import LoadFlow, load_flow_session
+
+    case = load_case(CASES / "demo_plant.toml")
+    model = build_model(case)
+    buses = {b.name: b.bus for b in case.bank}
+    with Memo().active():
+        derived = load_flow_session(model, buses, False, 1.076, 0.3)
+    direct = LoadFlow(model, buses, weak=False, v_source_pu=1.076, load_scale=0.3)
+    assert derived.mode == "arrays"
+    for q in (0.0, 300.0, 800.0):
+        a = derived.vm_pu({case.bank[0].name: q})
+        b = direct.vm_pu({case.bank[0].name: q})
+        np.testing.assert_allclose(a, b, atol=1e-7)
+    assert float(np.max(direct.vm_pu({case.bank[0].name: 0.0}))) > 1.05  # the raised voltage is there

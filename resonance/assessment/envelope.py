@@ -15,6 +15,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
+from resonance.memo import remember
 from resonance.model.network import NetworkArrays
 
 __all__ = ["Scenario", "scenarios_of", "scenario_arrays", "scenario_words", "SCENARIO_WORDS"]
@@ -91,4 +92,7 @@ def scenario_arrays(nominal: NetworkArrays, weak: NetworkArrays | None, sc: Scen
     base = weak if sc.weak else nominal
     if sc.load_scale == 1.0:
         return base
-    return replace(base, load_p_pu=base.load_p_pu * sc.load_scale, load_q_pu=base.load_q_pu * sc.load_scale)
+    # one object per network and scenario in a check, so every re-check shares its solves (memo)
+    return remember("scenario_arrays", (base, sc.load_scale),
+                    lambda: replace(base, load_p_pu=base.load_p_pu * sc.load_scale,
+                                    load_q_pu=base.load_q_pu * sc.load_scale))

@@ -61,6 +61,10 @@ def load_flow_session(model: PlantModel, bank_buses: dict, weak: bool = False, v
     v, ls = float(v_source_pu), float(load_scale)
 
     def make() -> "LoadFlow":
+        if (v, ls) != (1.0, 1.0):  # the envelope: derived from the session at 1.0 pu and full load
+            base = load_flow_session(model, bank_buses, weak, 1.0, 1.0)
+            lf = base.with_envelope(v, ls) if base.mode == "arrays" else None
+            return lf if lf is not None else LoadFlow(model, bank_buses, weak=weak, v_source_pu=v, load_scale=ls)
         if weak and model.sc_mva_supply_min:
             nominal = load_flow_session(model, bank_buses, False, v, ls)
             xr = model.x_r_supply_min or model.x_r_supply
@@ -176,6 +180,35 @@ class LoadFlow:
         new._source = [(aux, sup, *supply_impedance_pu(sc_mva, x_r, float(self.net.sn_mva)))
                        for aux, sup, _, _ in self._source]
         new._v_last = None if self._v_last is None else self._v_last.copy()
+        return new
+
+    def with_envelope(self, v_source_pu: float, load_scale: float) -> "LoadFlow | None":
+        """The same session with the supply EMF at ``v_source_pu`` [pu] and the linear loads
+        scaled by ``load_scale`` [unitless] (arrays mode only; None otherwise).
+
+        Notes
+        -----
+        Loads are constant power in this load flow (``voltage_depend_loads=False``), so scaling
+        them scales their part ``-(P_D + j Q_D) / S_base`` of the bus injections; the EMF is the
+        voltage magnitude of the reference bus (the source behind the supply impedance).
+        """
+        if self.mode != "arrays":
+            return None
+        from resonance.model.loadflow import PowerFlowCase  # noqa: PLC0415
+
+        try:
+            bus = np.asarray(self.net._ppc["internal"]["bus"], float)
+            s_load = (bus[:, 2] + 1j * bus[:, 3]) / self._base_mva  # PD, QD columns of the case [MW, Mvar]
+        except (AttributeError, KeyError, TypeError, ValueError, IndexError):
+            return None
+        if s_load.size != self._pf.n_bus:
+            return None
+        v0 = self._pf.v0.copy()
+        v0[self._pf.ref] = v0[self._pf.ref] * float(v_source_pu)
+        new = copy.copy(self)
+        new._pf = PowerFlowCase(ybus=self._pf.ybus, sbus=self._pf.sbus + (1.0 - float(load_scale)) * s_load, v0=v0,
+                                ref=self._pf.ref, pv=self._pf.pv, pq=self._pf.pq)
+        new._v_last = None
         return new
 
     def _runpp(self) -> None:
