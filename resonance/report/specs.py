@@ -109,6 +109,18 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
                 f"fig_scan_{s}_weak_all", (8.2, 4.0),
                 lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, w,
                                                         f"Bank {w.bank.name}: all steps, weak supply"), 4.0, b.name))
+        # the other scenarios of the envelope, drawn where they govern: a finding of the bank's there
+        own = {f.get("scenario") for f in data.get("findings", ())
+               if f.get("bank") == b.name and f.get("cause", "bank") == "bank"}
+        for sn in res.scenarios:
+            other = res.scans_for(b.name, sn.name)
+            if sn.name in ("nominal", "weak") or other is None or sn.name not in own:
+                continue
+            specs["overlay"].append(_FigSpec(
+                f"fig_scan_{s}_{sn.name}_all", (8.2, 4.0),
+                lambda fig, r, o=other, w=sn.words: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, o,
+                                                                     f"Bank {o.bank.name}: all steps, {w}"),
+                4.0, b.name))
         det = (detuned or {}).get(b.name)
         if det is not None:
             specs["compare"].append(_FigSpec(
