@@ -115,3 +115,12 @@ def test_a_50_hz_case_says_which_pcc_set_was_assumed():
     named = run_check(raw)
     assert not any("were assumed" in w for w in named.study.warnings)
     assert named.data["banks"][0]["limits"]["pcc_v_limits"]["thd_pct"] == 6.5
+
+
+def test_without_a_class_the_check_says_bank_bus_distortion_is_not_judged():
+    from resonance.pipeline import run_check
+
+    raw = tomllib.loads((CASES / "cold_store_50hz.toml").read_text(encoding="utf-8"))
+    assert any("no in-plant compatibility class named" in w for w in run_check(raw).study.warnings)
+    raw.setdefault("study", {})["in_plant_limits"] = "iec61000-2-4-class3"
+    assert not any("no in-plant compatibility class" in w for w in run_check(raw).study.warnings)

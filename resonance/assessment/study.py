@@ -567,6 +567,9 @@ def _limit_set_notes(case: Case) -> list[str]:
         out.append("IEEE 519 voltage limits were assumed at the PCC (the default, the case names no set); a utility "
                    "in a 50 Hz region often applies IEC 61000-3-6 planning levels at an MV or HV connection: set "
                    "[study] pcc_voltage_limits = \"iec61000-3-6-mv\" or \"iec61000-3-6-hv\" where it does")
+    if st.in_plant_limits == "none":
+        out.append("no in-plant compatibility class named: the distortion at the bank buses is reported, not judged; "
+                   "set [study] in_plant_limits = \"iec61000-2-4-class1\", \"-class2\" or \"-class3\" to check it")
     if st.pcc_voltage_limits != "ieee519":
         out.append(f"PCC voltages are checked against {st.pcc_voltage_limits} planning levels; PCC currents stay "
                    "checked against IEEE 519 (the emission limits a utility allocates under IEC 61000-3-6 are "
