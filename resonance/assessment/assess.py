@@ -235,7 +235,7 @@ def assess_bank(case: Case, arr: NetworkArrays, bank, inj: Injection, vm_steps: 
     v_kv_pcc = float(arr.bus_kv[pcc])
     vlim = (ieee519_voltage_limits(v_kv_pcc, st.ieee519_edition, file=case.source_file)
             if st.pcc_voltage_limits == "ieee519" else planning_levels(st.pcc_voltage_limits, file=case.source_file))
-    thd_level, v_levels, _w = voltage_levels(vlim, h)
+    thd_level, v_levels, _ = voltage_levels(vlim, h)
     i_base_pcc = base * 1000.0 / (math.sqrt(3) * v_kv_pcc)  # [A]
     i_base_bank = base * 1000.0 / (math.sqrt(3) * bank.bus_kv)
     i_l, il_basis = demand_current_a(case, v_kv_pcc, demand_arr if demand_arr is not None else arr)
@@ -401,26 +401,7 @@ def pcc_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_pcc: np.n
     """
     tag = f"bank {bank} step {step} ({scenario_words(scenario)})"
     out = []
-    thd_level, levels, (set_word, ind_word) = voltage_levels(vlim, h)
-    thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_pcc**2))), 100.0 * float(np.sqrt(np.sum(v_pcc_off**2)))
-    if thd > thd_level:
-        out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_thd_v", value=thd,
-                           limit=thd_level, unit="% of nominal voltage", source=vlim.source, value_bank_off=thd_off,
-                           cause=distortion_cause(thd, thd_off, thd_level),
-                           message=f"{tag}: voltage THD at the PCC {thd:.2f} % exceeds the {set_word} "
-                                   f"{thd_level:g} %"))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ratio = np.where(np.isfinite(levels), 100.0 * v_pcc / levels, -np.inf)
-    if v_pcc.size and float(np.max(ratio)) > 1.0:
-        jw = int(np.argmax(ratio))
-        worst, lv = 100.0 * float(v_pcc[jw]), float(levels[jw])
-        off_w = 100.0 * float(v_pcc_off[jw])
-        out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_v_individual", value=worst,
-                           limit=lv, order=int(h[jw]), unit="% of nominal voltage",
-                           source=vlim.source, value_bank_off=off_w,
-                           cause=distortion_cause(worst, off_w, lv),
-                           message=f"{tag}: harmonic {int(h[jw])} voltage at the PCC {worst:.2f} % exceeds the "
-                                   f"{ind_word} {lv:g} %"))
+    out += _voltage_findings("pcc", "at the PCC", tag, bank, step, scenario, h, v_pcc, v_pcc_off, vlim)
     tdd, tdd_off = float(np.sqrt(np.sum(i_pct**2))), float(np.sqrt(np.sum(i_off_pct**2)))
     if tdd > clim.tdd_pct:
         out.append(Finding(bank=bank, step=step, scenario=scenario, check="pcc_tdd", value=tdd, limit=clim.tdd_pct,
@@ -470,29 +451,31 @@ def bus_findings(bank: str, step: int, scenario: str, h: np.ndarray, v_bus: np.n
     IEC 61000-2-4:2002, tables 2 to 4 and THD (values from memory, see :mod:`resonance.standards.compat`).
     """
     tag = f"bank {bank} step {step} ({scenario_words(scenario)})"
+    return _voltage_findings("bus", "at the bank's bus", tag, bank, step, scenario, h, v_bus, v_bus_off, plant)
+
+
+def _voltage_findings(where: str, at: str, tag: str, bank: str, step: int, scenario: str, h: np.ndarray,
+                      v: np.ndarray, v_off: np.ndarray, vlim) -> list[Finding]:
+    """``<where>_thd_v`` and ``<where>_v_individual`` (the order furthest beyond its level) of one
+    step, against one limit set (:func:`voltage_levels`), each with its bank-off value and cause."""
+    thd_level, levels, (thd_word, ind_word) = voltage_levels(vlim, h)
     out = []
-    thd, thd_off = 100.0 * float(np.sqrt(np.sum(v_bus**2))), 100.0 * float(np.sqrt(np.sum(v_bus_off**2)))
-    if thd > plant.thd_pct:
-        out.append(Finding(bank=bank, step=step, scenario=scenario, check="bus_thd_v", value=thd,
-                           limit=plant.thd_pct, unit="% of nominal voltage", source=plant.source,
-                           value_bank_off=thd_off, cause=distortion_cause(thd, thd_off, plant.thd_pct),
-                           message=f"{tag}: voltage THD at the bank's bus {thd:.2f} % exceeds the in-plant level "
-                                   f"{plant.thd_pct:g} % ({plant.name})"))
-    worst = None
-    for j, hh in enumerate(h.astype(int)):
-        lv = plant.individual_pct.get(int(hh))
-        if lv is not None and 100.0 * v_bus[j] > lv:
-            excess = 100.0 * float(v_bus[j]) / lv
-            if worst is None or excess > worst[0]:
-                worst = (excess, j, lv)
-    if worst is not None:
-        _, j, lv = worst
-        val, off = 100.0 * float(v_bus[j]), 100.0 * float(v_bus_off[j])
-        out.append(Finding(bank=bank, step=step, scenario=scenario, check="bus_v_individual", value=val, limit=lv,
-                           order=int(h[j]), unit="% of nominal voltage", source=plant.source, value_bank_off=off,
-                           cause=distortion_cause(val, off, lv),
-                           message=f"{tag}: harmonic {int(h[j])} voltage at the bank's bus {val:.2f} % exceeds the "
-                                   f"in-plant level {lv:g} % ({plant.name})"))
+    thd, thd_off = 100.0 * float(np.sqrt(np.sum(v**2))), 100.0 * float(np.sqrt(np.sum(v_off**2)))
+    if thd > thd_level:
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check=f"{where}_thd_v", value=thd,
+                           limit=thd_level, unit="% of nominal voltage", source=vlim.source, value_bank_off=thd_off,
+                           cause=distortion_cause(thd, thd_off, thd_level),
+                           message=f"{tag}: voltage THD {at} {thd:.2f} % exceeds the {thd_word.format(thd_level)}"))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(np.isfinite(levels), 100.0 * v / levels, -np.inf)
+    if v.size and float(np.max(ratio)) > 1.0:
+        j = int(np.argmax(ratio))
+        val, lv, off = 100.0 * float(v[j]), float(levels[j]), 100.0 * float(v_off[j])
+        out.append(Finding(bank=bank, step=step, scenario=scenario, check=f"{where}_v_individual", value=val,
+                           limit=lv, order=int(h[j]), unit="% of nominal voltage", source=vlim.source,
+                           value_bank_off=off, cause=distortion_cause(val, off, lv),
+                           message=f"{tag}: harmonic {int(h[j])} voltage {at} {val:.2f} % exceeds the "
+                                   f"{ind_word.format(lv)}"))
     return out
 
 
@@ -509,11 +492,15 @@ def voltage_levels(vlim, h: np.ndarray) -> tuple[float, np.ndarray, tuple[str, s
     Returns
     -------
     (float, ndarray, (str, str))
-        THD level [%], the level of each order (NaN where the table has none) [%], and the words
-        for the THD and the individual limit in messages [unitless].
+        THD level [%], the level of each order (NaN where the table has none) [%], and the
+        templates naming the THD and the individual limit in messages (``str.format`` with the
+        level) [unitless].
     """
     h = np.asarray(h, float)
     if isinstance(vlim, InPlantLimits):
         lv = np.array([vlim.individual_pct.get(int(x), np.nan) for x in h], float)
-        return vlim.thd_pct, lv, (f"planning level ({vlim.name})", f"planning level ({vlim.name})")
-    return vlim.thd_pct, np.full(h.shape, float(vlim.individual_pct)), ("IEEE 519 limit", "IEEE 519 individual limit")
+        kind = "in-plant level" if vlim.name.startswith("iec61000-2-4") else "planning level"
+        word = f"{kind} {{:g}} % ({vlim.name})"
+        return vlim.thd_pct, lv, (word, word)
+    return (vlim.thd_pct, np.full(h.shape, float(vlim.individual_pct)),
+            ("IEEE 519 limit {:g} %", "IEEE 519 individual limit {:g} %"))

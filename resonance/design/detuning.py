@@ -38,7 +38,7 @@ from resonance.design.detuned_step import (DetunedStep, capacitor_rating_kv, det
 from resonance.errors import InputError, ModelError
 from resonance.memo import remember
 
-__all__ = ["run_variant", "propose_detuning", "recommended_case", "recommended_scans"]
+__all__ = ["run_variant", "propose_detuning", "recommended_scans"]
 
 # ----------------------------------------------------------------------------- evaluation of a study result
 
@@ -97,8 +97,8 @@ def _r(x, nd: int = 4):
 
 
 def _variant(case, bank, **update):
-    from resonance.inputs.case import Bank# noqa: PLC0415
-    from resonance.inputs.case_checks import check_case# noqa: PLC0415
+    from resonance.inputs.case import Bank  # noqa: PLC0415
+    from resonance.inputs.case_checks import check_case  # noqa: PLC0415
 
     data = bank.model_dump()
     data.update(update)
@@ -532,17 +532,6 @@ def propose_detuning(case, model, result) -> dict:
     return out
 
 
-def recommended_case(case, name: str, rec: dict):
-    """The case with bank ``name`` replaced by its recommended design ``rec`` (a proposal's
-    ``recommended`` entry: ``detuning_pct`` [%], ``rated_kv`` [kV], ``steps_kvar`` [kvar],
-    ``reactor_q`` [unitless]); the other banks and every setting unchanged."""
-    banks = [b.model_copy(update={"detuning_pct": rec["detuning_pct"], "rated_kv": rec["rated_kv"],
-                                  "steps_kvar": list(rec["steps_kvar"]),
-                                  "reactor_q": rec.get("reactor_q", b.reactor_q)}) if b.name == name else b
-             for b in case.bank]
-    return case.model_copy(update={"bank": banks})
-
-
 def recommended_scans(case, model, proposals: dict) -> dict:
     """Bank name -> nominal :class:`~resonance.assessment.study.BankScan` of its recommended design.
 
@@ -554,7 +543,10 @@ def recommended_scans(case, model, proposals: dict) -> dict:
         rec = (d or {}).get("recommended")
         if not rec:
             continue
-        sc = run_variant(recommended_case(case, name, rec), model).scans_for(name)
+        bank = next(b for b in case.bank if b.name == name)
+        variant = _variant(case, bank, detuning_pct=rec["detuning_pct"], rated_kv=rec["rated_kv"],
+                           steps_kvar=list(rec["steps_kvar"]), reactor_q=rec.get("reactor_q", bank.reactor_q))
+        sc = run_variant(variant, model).scans_for(name)
         if sc is not None:
             out[name] = sc
     return out
