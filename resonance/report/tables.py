@@ -455,13 +455,13 @@ _SITE_EFFECT = {"lowers": "lowers it", "raises": "raises it (bank finding)", "no
 def _site_table(bank: dict) -> Table | None:
     """The site's own distortion at the PCC: bank off against the bank's steps in (results.json
     ``site_distortion``), or None when the site is within every limit with the bank off."""
-    rows = tuple((e.get("scenario"), _SITE_QTY.get(e.get("check"), str(e.get("check"))).format(h=e.get("order")),
+    rows = tuple((scenario_words(str(e.get("scenario"))), _SITE_QTY.get(e.get("check"), str(e.get("check"))).format(h=e.get("order")),
                   e.get("unit"), e.get("limit"), e.get("bank_off"), e.get("with_steps_min"), e.get("with_steps_max"),
                   _SITE_EFFECT.get(e.get("effect"), e.get("effect")))
                  for e in bank.get("site_distortion") or [])
     if not rows:
         return None
-    cols = (Column("supply", "", _s, "left"), Column("quantity at the PCC", "", _s, "left"),
+    cols = (Column("scenario", "", _s, "left"), Column("quantity at the PCC", "", _s, "left"),
             Column("unit", "", _s, "left"), Column("limit", "", _f(1)), Column("bank off", "", _f(2)),
             Column("steps in, min", "", _f(2)), Column("steps in, max", "", _f(2)),
             Column("the bank", "", _s, "left"))

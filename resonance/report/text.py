@@ -136,11 +136,12 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
             by.setdefault(str(f.get("scenario", "nominal")), {}).setdefault(_check_word(str(f.get("check"))),
                                                                             set()).add(f.get("step"))
         parts = []
-        for scen in sorted(by, key=lambda x: (x != "nominal", x)):
+        order = [s.get("name") for s in data.get("scenarios", [])] + ["all"]
+        for scen in sorted(by, key=lambda x: order.index(x) if x in order else len(order)):
             items = ", ".join(f"{w} (step{'s' if len(k) > 1 else ''} "
                               f"{_steps_list(sorted(x for x in k if x is not None))})"
                               for w, k in sorted(by[scen].items()))
-            parts.append(f"{scen} supply - {items}")
+            parts.append(f"{scenario_words(scen)} - {items}")
         out.append(f"Verdict: the bank as specified does not pass the screening; {len(finds)} finding(s): "
                    + "; ".join(parts) + ".")
     else:
