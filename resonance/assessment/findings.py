@@ -28,6 +28,11 @@ CHECKS = {
     "detuning_tuning": "tuning order of a detuned bank against the lowest significant order",
     "bus_thd_v": "voltage THD at the bank's bus against the in-plant compatibility level",
     "bus_v_individual": "an individual harmonic voltage at the bank's bus against its in-plant level",
+    "inrush_peak": "peak inrush current of switching a step against the switching device's rating",
+    "inrush_frequency": "inrush frequency of switching a step against the switching device's rating",
+    "inrush_capacitor": "peak inrush current against the capacitor units' transient current capability",
+    "voltage_step": "bus voltage step on switching a stage in against its limit",
+    "energising_overvoltage": "peak capacitor voltage on energising a step against the units' transient capability",
 }
 
 #: whose a finding is: the bank's (it causes or worsens it) or the site's own emission

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 from resonance.assessment.verdict import site_effect
 
-__all__ = ["site_distortion"]
+__all__ = ["site_distortion", "limit_set_notes"]
 
 
 def _per_order(steps: list[dict], h: str):
@@ -67,4 +67,22 @@ def site_distortion(asm) -> list[dict]:
         if lim is not None:
             add("pcc_i_individual", int(h), "% of I_L",
                 site_effect(i_off, [r["i_supply_pct_of_il"] for r in rows], lim))
+    return out
+
+
+def limit_set_notes(case) -> list[str]:
+    """Which PCC voltage limit set was assumed, and why, where the case leaves it open."""
+    st = case.study
+    out = []
+    if case.frequency_hz == 50 and "pcc_voltage_limits" not in st.model_fields_set:
+        out.append("IEEE 519 voltage limits were assumed at the PCC (the default, the case names no set); a utility "
+                   "in a 50 Hz region often applies IEC 61000-3-6 planning levels at an MV or HV connection: set "
+                   "[study] pcc_voltage_limits = \"iec61000-3-6-mv\" or \"iec61000-3-6-hv\" where it does")
+    if st.in_plant_limits == "none":
+        out.append("no in-plant compatibility class named: the distortion at the bank buses is reported, not judged; "
+                   "set [study] in_plant_limits = \"iec61000-2-4-class1\", \"-class2\" or \"-class3\" to check it")
+    if st.pcc_voltage_limits != "ieee519":
+        out.append(f"PCC voltages are checked against {st.pcc_voltage_limits} planning levels; PCC currents stay "
+                   "checked against IEEE 519 (the emission limits a utility allocates under IEC 61000-3-6 are "
+                   "not modelled)")
     return out

@@ -18,6 +18,7 @@ from resonance.inputs.case_checks import case_hints
 from resonance.errors import InputError, InputProblem, ModelError
 from resonance.assessment.envelope import scenario_arrays, scenario_words, scenarios_of
 from resonance.assessment.findings import Finding
+from resonance.assessment.site import limit_set_notes
 from resonance.model.network import NetworkArrays
 from resonance.harmonics.scan import (ModelSettings, harmonic_grid, impedance_columns, impedance_columns_dh,
                                       step_peaks)
@@ -210,6 +211,8 @@ class StudyResult:
     supply: SupplyFigures | None = None
     #: the operating envelope the study ran in (:class:`resonance.assessment.envelope.Scenario`)
     scenarios: tuple = field(default_factory=tuple)
+    #: switching of every bank in every scenario (:class:`resonance.assessment.switching.BankSwitching`)
+    switching: tuple = field(default_factory=tuple)
 
     def assessment_for(self, bank: str, scenario: str = "nominal"):
         """Penetration and duty of one bank in one scenario (None if absent)."""
@@ -225,6 +228,10 @@ class StudyResult:
         from resonance.assessment.verdict import check_passes  # noqa: PLC0415
 
         return check_passes(self.findings, self.case.study.site_findings)
+
+    def switching_for(self, bank: str, scenario: str = "nominal"):
+        """Switching figures of one bank in one scenario (None if absent)."""
+        return next((x for x in self.switching if x.bank == bank and x.scenario == scenario), None)
 
     def scans_for(self, bank: str, scenario: str = "nominal") -> BankScan | None:
         """The scan of one bank in one scenario (None if absent)."""
@@ -474,7 +481,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     pattern = YPattern.build(arr)
     # likely input mistakes (case_checks.case_hints) travel with the results
     warnings_: list[str] = [f"input {hint.field}: {hint.problem}" for hint in case_hints(case)]
-    warnings_ += _limit_set_notes(case)
+    warnings_ += limit_set_notes(case)
     # fundamental voltage of every step from a load flow with that step in service
     vm: dict[tuple[str, str], np.ndarray] = {}
     full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
@@ -549,32 +556,18 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     from resonance.assessment.tuning import detuned_bank_findings  # noqa: PLC0415 - the proposals' own tuning rule
 
     findings.extend(detuned_bank_findings(case, sources, orders.characteristic, scans))
+    from resonance.assessment.switching import switching_study  # noqa: PLC0415
+
+    switching, sw_findings, sw_notes = switching_study(case, scans)
+    findings += sw_findings
     res = StudyResult(case=case, orders=orders, scans=tuple(scans), sc_mva_iec60909={}, pcc_bus=pcc_name,
-                       settings=settings, findings=tuple(findings), warnings=tuple(warnings_),
+                       settings=settings, findings=tuple(findings),
                        assessments=tuple(assessments), sc_mva_pcc=sc_pcc, sources=tuple(sources),
-                       scenarios=tuple(envelope),
+                       scenarios=tuple(envelope), switching=switching, warnings=tuple(warnings_ + sw_notes),
                        supply=SupplyFigures(bus=model.supply_bus, sc_mva=float(model.sc_mva_supply),
                                             x_r=float(model.x_r_supply), sc_mva_min=model.sc_mva_supply_min,
                                             pcc_kv=float(arr.bus_kv[pcc])))
     return with_cross_check(res, case, model) if cross_check else res
-
-
-def _limit_set_notes(case: Case) -> list[str]:
-    """Which PCC voltage limit set was assumed, and why, where the case leaves it open."""
-    st = case.study
-    out = []
-    if case.frequency_hz == 50 and "pcc_voltage_limits" not in st.model_fields_set:
-        out.append("IEEE 519 voltage limits were assumed at the PCC (the default, the case names no set); a utility "
-                   "in a 50 Hz region often applies IEC 61000-3-6 planning levels at an MV or HV connection: set "
-                   "[study] pcc_voltage_limits = \"iec61000-3-6-mv\" or \"iec61000-3-6-hv\" where it does")
-    if st.in_plant_limits == "none":
-        out.append("no in-plant compatibility class named: the distortion at the bank buses is reported, not judged; "
-                   "set [study] in_plant_limits = \"iec61000-2-4-class1\", \"-class2\" or \"-class3\" to check it")
-    if st.pcc_voltage_limits != "ieee519":
-        out.append(f"PCC voltages are checked against {st.pcc_voltage_limits} planning levels; PCC currents stay "
-                   "checked against IEEE 519 (the emission limits a utility allocates under IEC 61000-3-6 are "
-                   "not modelled)")
-    return out
 
 
 def iec60909_cross_check(case: Case, model) -> dict:

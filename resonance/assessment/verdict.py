@@ -8,8 +8,8 @@ A distortion finding (PCC voltage THD, an individual PCC harmonic voltage, TDD, 
 PCC harmonic current, a bus distortion) is the **bank's** when the quantity is within its
 limit with the bank off and beyond it with the step in, or beyond in both and the step makes
 it worse by more than the tolerance below; it is the **site's** when it is already beyond the
-limit with the bank off and the step does not make it worse.  Resonance, capacitor-duty and
-detuning-tuning findings are always the bank's.
+limit with the bank off and the step does not make it worse.  Resonance, capacitor-duty,
+detuning-tuning and switching findings are always the bank's.
 """
 
 from __future__ import annotations
@@ -29,7 +29,8 @@ CAUSE_REL_TOL = 0.01
 CAUSE_ABS_TOL_PCT = 0.01
 
 #: checks whose findings are always the bank's (they exist only because of the bank)
-BANK_CHECKS = ("resonance", "duty_v_rms", "duty_v_peak", "duty_i_rms", "duty_kvar", "detuning_tuning")
+BANK_CHECKS = ("resonance", "duty_v_rms", "duty_v_peak", "duty_i_rms", "duty_kvar", "detuning_tuning",
+               "inrush_peak", "inrush_frequency", "inrush_capacitor", "voltage_step", "energising_overvoltage")
 
 
 def distortion_cause(value_pct: float, value_off_pct: float, limit_pct: float) -> str:

@@ -218,6 +218,38 @@ class Bank(_Strict):
     steps_kvar: list[Num] = Field(min_length=1, max_length=64)
     detuning_pct: Num | None = Field(default=None, gt=0.0, lt=50.0)
     reactor_q: Num = Field(default=50.0, gt=1.0, le=1000.0)
+    #: switching (docs/case-file.md, "Switching"): inductance of each stage's own connection
+    #: between the stage and the bank's common bus [uH], one value for every stage or one per stage
+    step_inductance_uh: Union[Num, list[Num], None] = None
+    #: ... or the length of that connection [m] (one value or one per stage), at ``uh_per_m`` [uH/m]
+    bus_length_m: Union[Num, list[Num], None] = None
+    uh_per_m: Num | None = Field(default=None, gt=0.0, le=10.0)
+    #: an inrush-limiting reactor in series with every stage [uH]
+    inrush_reactor_uh: Num | None = Field(default=None, ge=0.0, le=100_000.0)
+    #: a pre-insertion (damping) resistor of the stage's switching device, per phase [ohm]
+    pre_insertion_ohm: Num | None = Field(default=None, gt=0.0, le=1000.0)
+    #: the switching device's rated transient inrush peak current [kA] and frequency [Hz]
+    device_inrush_peak_ka: Num | None = Field(default=None, gt=0.0, le=1000.0)
+    device_inrush_hz: Num | None = Field(default=None, gt=0.0, le=200_000.0)
+
+    @model_validator(mode="after")
+    def _switching(self) -> "Bank":
+        n = len(self.steps_kvar)
+        for key in ("step_inductance_uh", "bus_length_m"):
+            v = getattr(self, key)
+            vals = v if isinstance(v, list) else ([] if v is None else [v])
+            if isinstance(v, list) and len(v) != n:
+                raise ValueError(f"{key} has {len(v)} values for {n} stages; give one value for every stage "
+                                 "or one per stage")
+            hi = 100_000.0 if key == "step_inductance_uh" else 10_000.0
+            for x in vals:
+                if not math.isfinite(x) or x <= 0 or x > hi:
+                    raise ValueError(f"{key} value {x} must be > 0 and at most {hi:g}")
+        if self.step_inductance_uh is not None and self.bus_length_m is not None:
+            raise ValueError("give step_inductance_uh or bus_length_m, not both")
+        if self.uh_per_m is not None and self.bus_length_m is None:
+            raise ValueError("uh_per_m is given without bus_length_m")
+        return self
 
     @field_validator("steps_kvar")
     @classmethod
@@ -258,6 +290,8 @@ class StudySettings(_Strict):
     max_demand_kw: Num | None = Field(default=None, ge=1.0, le=1.0e7)
     #: at most 1 MA; the lower bound depends on the PCC voltage (:func:`bus_kv_problems`)
     max_demand_a: Num | None = Field(default=None, gt=0.0, le=1.0e6)
+    #: largest voltage step allowed on switching one stage [%] (common practice: 2-3 %)
+    voltage_step_limit_pct: Num = Field(default=3.0, ge=0.1, le=20.0)
 
 
 class DetuningTable(_Strict):
