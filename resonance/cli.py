@@ -193,7 +193,7 @@ def _check(args) -> int:
         result = dataclasses.replace(result, case_sha256=hashlib.sha256(case_path.read_bytes()).hexdigest())
         data = result.data
         _write_outputs(args, case_path, out, result)
-        rec_text = _recommended_case(case_path, out, result.proposals)
+        rec_text = _recommended_case(case_path, out, result.proposals, result.switching_proposals)
         written = out.commit()
     except BaseException:
         out.discard()
@@ -277,6 +277,14 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
                  f"{', '.join(f'{q:g}' for q in rec['steps_kvar'])} kvar")
         if d.get("reason") and (rec or d.get("status") == "proposed"):
             _say(f"  {d['reason']}")
+        sw = b.get("switching") or {}
+        if sw and not args.quiet:
+            _say(f"\nbank {b['name']}: switching: governing step {sw['governing_step']} "
+                 f"{sw['governing_peak_a'] / 1000:.2f} kA peak at {sw['governing_hz']:.0f} Hz; largest voltage step "
+                 f"{max(s_.get('voltage_step_pct') or 0.0 for s_ in b['steps']):.2f} %")
+        sp = b.get("switching_proposal") or {}
+        if sp.get("status") in ("proposed", "none_found"):
+            _say(f"bank {b['name']}: switching proposal: {sp.get('reason', '')}")
     if rec_text is not None:
         _say(f"\nthe recommended design as a case file, ready to check: {out.path / 'recommended_case.toml'}")
     for w in data["warnings"]:
@@ -287,12 +295,16 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         _say(f"\n{CAUTION}")
 
 
-def _recommended_case(case_path: Path, out, det: dict) -> str | None:
+def _recommended_case(case_path: Path, out, det: dict, switching: dict | None = None) -> str | None:
     """Stage ``recommended_case.toml`` when a bank has a recommended design; returns its text."""
     from resonance.design.recommend import RECOMMENDED_CASE, recommended_case_text  # noqa: PLC0415
 
     designs = {name: d["recommended"]["bank_table"] for name, d in det.items()
                if (d or {}).get("recommended")}
+    # a switching proposal goes in where the bank keeps its design and the re-check passes it whole
+    for name, d in (switching or {}).items():
+        if name not in designs and d.get("recommended") and (d.get("re_check") or {}).get("bank_passes"):
+            designs[name] = d["bank_table"]
     text = recommended_case_text(case_path.read_text(encoding="utf-8-sig"), case_path, out.path, designs,
                                  tool=f"resonance {__version__}")
     if text is not None:

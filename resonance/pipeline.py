@@ -62,6 +62,8 @@ class CheckResult:
     time_in_step: Mapping[str, dict] = field(default_factory=dict)
     detuned_scans: Mapping[str, BankScan] = field(default_factory=dict)
     case_sha256: str = ""
+    #: bank name -> switching proposal (:func:`resonance.design.switching_fix.propose_switching`)
+    switching_proposals: Mapping[str, dict] = field(default_factory=dict)
 
     # ------------------------------------------------------------------ the verdict
     @property
@@ -103,6 +105,10 @@ class CheckResult:
         from resonance.report.results_json import to_dict  # noqa: PLC0415
 
         extra: dict[Any, dict] = {("bank", name): {"detuning": d} for name, d in self.proposals.items()}
+        for b in self.case.bank:
+            sw = self.switching_proposals.get(b.name)
+            extra.setdefault(("bank", b.name), {})["switching_proposal"] = sw if sw is not None else {
+                "status": "not_needed", "reason": "every step switches within its limits in every scenario"}
         for name, t in self.time_in_step.items():
             extra.setdefault(("bank", name), {})["time_in_step"] = t
             extra[(name, "nominal")] = {k: {"time_fraction": round(f, 5), "hours_in_step": round(hh, 3)}
@@ -215,6 +221,7 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
     from resonance.assessment.study import run_study, with_cross_check  # noqa: PLC0415
     from resonance.design.demand import time_in_step  # noqa: PLC0415
     from resonance.design.detuning import propose_detuning, recommended_scans  # noqa: PLC0415
+    from resonance.design.switching_fix import propose_switching  # noqa: PLC0415
     from resonance.harmonics.engine import CHECK_WORKERS  # noqa: PLC0415
     from resonance.model import netmodel  # noqa: PLC0415
 
@@ -230,8 +237,9 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
             study = with_cross_check(study, checked, model)
             proposals = propose_detuning(checked, model, study)
             detuned = recommended_scans(checked, model, proposals)
+            switching = propose_switching(checked, model, study)
     finally:
         CHECK_WORKERS.reset(token)
     return CheckResult(case=checked, study=study, proposals=proposals, time_in_step=tis, detuned_scans=detuned,
-                       case_sha256=sha)
+                       case_sha256=sha, switching_proposals=switching)
 

@@ -477,6 +477,15 @@ def propose_detuning(case, model, result) -> dict:
         own = _bank_status(result, case, model, bank.name)
         entry = {"status": "proposed", "recommended": None, "reason": "", "candidates": [], "rearrangement": None,
                  "settings": settings_out, "bank_as_given": {"passes": own["passes"], "problems": own["problems"]}}
+        from resonance.assessment.switching import SWITCHING_CHECKS  # noqa: PLC0415
+        from resonance.assessment.verdict import bank_findings  # noqa: PLC0415
+
+        mine = bank_findings(result.findings, bank.name)
+        if mine and all(f.check in SWITCHING_CHECKS for f in mine):
+            entry.update({"status": "skipped", "reason": f"bank {bank.name}'s only findings are of switching; "
+                          "a detuned design is not needed for them (see the switching proposal)"})
+            out[bank.name] = entry
+            continue
         if bm.p > 0 and own["passes"]:
             entry.update({"status": "skipped", "reason": f"bank {bank.name} is already detuned "
                           f"(p = {100 * bm.p:g} %) and passes every step; no proposal needed"})

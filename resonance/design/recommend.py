@@ -20,7 +20,7 @@ __all__ = ["RECOMMENDED_CASE", "recommended_case_text"]
 RECOMMENDED_CASE = "recommended_case.toml"
 
 #: bank keys a proposal sets, in the order they are written when missing
-_BANK_KEYS = ("rated_kv", "steps_kvar", "detuning_pct", "reactor_q")
+_BANK_KEYS = ("rated_kv", "steps_kvar", "detuning_pct", "reactor_q", "inrush_reactor_uh", "pre_insertion_ohm")
 #: keys holding paths relative to the case's folder, by table
 _PATH_KEYS = {"network": "pandapower_json", "demand": "intervals_csv"}
 
@@ -122,7 +122,8 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
         Folder the new file will be written to [unitless].
     designs : dict
         Bank name -> the ``bank_table`` of its recommended design (keys ``rated_kv`` [kV],
-        ``steps_kvar`` [kvar], ``detuning_pct`` [%], ``reactor_q`` [unitless]) [unitless].
+        ``steps_kvar`` [kvar], ``detuning_pct`` [%], ``reactor_q`` [unitless], or the switching
+        proposal's ``inrush_reactor_uh`` [uH] / ``pre_insertion_ohm`` [ohm]) [unitless].
     tool : str
         Name and version written in the header [unitless].
 
@@ -184,15 +185,26 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
     text = "\n".join(new) + "\n"
     if not _holds(text, designs):  # a layout the line editor does not follow: say so, write nothing
         return None
-    desc = "; ".join(
-        f"bank {n}: detuned p = {designs[n]['detuning_pct']:g} %, capacitors {designs[n]['rated_kv']:g} kV, "
-        f"stages {', '.join(f'{q:g}' for q in designs[n]['steps_kvar'])} kvar" for n in replaced)
+    desc = "; ".join(f"bank {n}: {_describe(designs[n])}" for n in replaced)
     header = [f"# Recommended design written by {tool} from {Path(case_path).name}.",
               f"# Changed: {desc}.",
               "# Every other line is the original case; paths of other input files point back to it.",
               "# A screening aid: to be reviewed by a qualified engineer before any equipment is specified.",
               ""]
     return "\n".join(header) + "\n" + text
+
+
+def _describe(d: dict) -> str:
+    """One line on what a design changes (detuning, inrush reactor, pre-insertion resistor)."""
+    parts = []
+    if d.get("detuning_pct") is not None:
+        parts.append(f"detuned p = {d['detuning_pct']:g} %, capacitors {d['rated_kv']:g} kV, "
+                     f"stages {', '.join(f'{q:g}' for q in d['steps_kvar'])} kvar")
+    if d.get("inrush_reactor_uh") is not None:
+        parts.append(f"inrush reactor {d['inrush_reactor_uh']:g} uH per stage")
+    if d.get("pre_insertion_ohm") is not None:
+        parts.append(f"pre-insertion resistors {d['pre_insertion_ohm']:g} ohm")
+    return ", ".join(parts)
 
 
 def _holds(text: str, designs: dict) -> bool:

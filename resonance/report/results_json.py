@@ -47,9 +47,37 @@ def _r(x, nd=4):
     return round(v, nd) if math.isfinite(v) else None
 
 
-def _steps(sc: BankScan, extra_by_step: dict | None, assessment=None) -> list[dict]:
+def _switching_step(s) -> dict:
+    """The switching keys of one step (``inrush_peak_a`` and ``inrush_hz`` are contract names)."""
+    return {"inrush_peak_a": _r(s.peak_a, 1), "inrush_hz": _r(s.hz, 1), "inrush_kind": s.kind,
+            "inrush_peak_damped_a": _r(s.peak_damped_a, 1), "inrush_peak_times_hz": _r(s.peak_times_hz, 0),
+            "inrush_over_rated": _r(s.peak_a / s.rated_a, 2), "inrush_loop_uh": _r(s.l_loop_uh, 3),
+            "inrush_c_eq_uf": _r(s.c_eq_uf, 3), "voltage_step_pct": _r(s.voltage_step_pct, 4),
+            "energising_overvoltage_pu": _r(s.overvoltage_pu, 4),
+            "cap_energising_overvoltage_pu": _r(s.cap_overvoltage_pu, 4)}
+
+
+def switching_block(bs) -> dict:
+    """Bank-level switching data: the limits with their sources and the governing step."""
+    from resonance.standards import switching as sw  # noqa: PLC0415
+
+    g = bs.governing()
+    return {"device_inrush_peak_a": _r(bs.device.peak_a, 1), "device_inrush_hz": _r(bs.device.f_hz, 1),
+            "device_source": bs.device.source, "device_typical": bs.device.typical,
+            "stage_connection_uh": [_r(x, 4) for x in bs.loop_uh], "stage_connection_source": bs.loop_source,
+            "supply_inductance_uh": _r(bs.l_supply_uh, 3),
+            "capacitor_peak_limit_a": [_r(x, 1) for x in bs.cap_peak_limit_a],
+            "capacitor_peak_limit_source": sw.CAP_TRANSIENT_CURRENT_SOURCE,
+            "capacitor_overvoltage_limit_pu": sw.CAP_TRANSIENT_VOLTAGE_PU,
+            "capacitor_overvoltage_limit_source": sw.CAP_TRANSIENT_VOLTAGE_SOURCE,
+            "voltage_step_limit_pct": bs.voltage_step_limit_pct, "voltage_step_source": sw.VOLTAGE_STEP_SOURCE,
+            "governing_step": g.step, "governing_peak_a": _r(g.peak_a, 1), "governing_hz": _r(g.hz, 1)}
+
+
+def _steps(sc: BankScan, extra_by_step: dict | None, assessment=None, switching=None) -> list[dict]:
     out = []
     duty = {d.step: reported(d.fields) for d in assessment.steps} if assessment is not None else {}
+    sw_steps = {x.step: _switching_step(x) for x in switching.steps} if switching is not None else {}
     for s in sc.steps:
         d = {
             "step": s.step,
@@ -68,6 +96,7 @@ def _steps(sc: BankScan, extra_by_step: dict | None, assessment=None) -> list[di
             "peaks": [{"h": _r(h, 4), "z_ohm": _r(z, 6), "amplification": _r(a, 4)} for h, z, a in s.peaks],
         }
         d.update(duty.get(s.step, {}))
+        d.update(sw_steps.get(s.step, {}))
         if extra_by_step and s.step in extra_by_step:
             d.update(extra_by_step[s.step])
         out.append(d)
@@ -110,8 +139,11 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             "sc_mva": _r(sc.sc_mva, 4),
             "sc_mva_iec60909": _r(res.sc_mva_iec60909.get(b.bus), 4),
             "x_r_at_bus": _r(sc.x_r, 4),
-            "steps": _steps(sc, extra.get((b.name, "nominal")), res.assessment_for(b.name, "nominal")),
+            "steps": _steps(sc, extra.get((b.name, "nominal")), res.assessment_for(b.name, "nominal"),
+                            res.switching_for(b.name, "nominal")),
         }
+        if res.switching_for(b.name, "nominal") is not None:
+            entry["switching"] = switching_block(res.switching_for(b.name, "nominal"))
         asm = res.assessment_for(b.name, "nominal")
         if asm is not None:
             entry["bank_off"] = reported(asm.bank_off)
@@ -125,7 +157,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
         if weak is not None:
             entry["weak_supply"] = {"sc_mva": _r(weak.sc_mva, 4), "x_r_at_bus": _r(weak.x_r, 4),
                                     "steps": _steps(weak, extra.get((b.name, "weak")),
-                                                    res.assessment_for(b.name, "weak"))}
+                                                    res.assessment_for(b.name, "weak"), res.switching_for(b.name, "weak"))}
             wa = res.assessment_for(b.name, "weak")
             if wa is not None:
                 entry["weak_supply"]["bank_off"] = reported(wa.bank_off)
@@ -138,7 +170,7 @@ def to_dict(res: StudyResult, case_sha256: str = "", extra: dict | None = None) 
             oa = res.assessment_for(b.name, sn.name)
             entry["scenarios"][sn.name] = {
                 "sc_mva": _r(other.sc_mva, 4), "x_r_at_bus": _r(other.x_r, 4),
-                "steps": _steps(other, extra.get((b.name, sn.name)), oa),
+                "steps": _steps(other, extra.get((b.name, sn.name)), oa, res.switching_for(b.name, sn.name)),
                 "bank_off": reported(oa.bank_off) if oa is not None else None,
                 "limits": reported(oa.info) if oa is not None else None}
         entry.update(extra.get(("bank", b.name), {}))
