@@ -20,8 +20,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-__all__ = ["stage_capacitance_f", "crest_phase_v", "undamped_inrush", "damped_peak", "energising_overvoltage_pu",
-           "voltage_step_pct", "loop_inductance_for", "pre_insertion_peaks", "DeviceRating", "typical_device",
+import numpy as np
+
+__all__ = ["stage_capacitance_f", "crest_phase_v", "undamped_inrush", "inrush_two_sources", "damped_peak", "energising_overvoltage_pu",
+           "voltage_step_pct", "loop_inductance_for", "DeviceRating", "typical_device",
            "CAP_TRANSIENT_CURRENT_FACTOR", "CAP_TRANSIENT_CURRENT_SOURCE", "CAP_TRANSIENT_VOLTAGE_PU",
            "CAP_TRANSIENT_VOLTAGE_SOURCE", "VOLTAGE_STEP_SOURCE", "DEFAULT_LOOP_UH", "LOOP_UH_SOURCE",
            "UH_PER_M_DEFAULT", "UH_PER_M_SOURCE"]
@@ -112,6 +114,75 @@ def undamped_inrush(u_kv: float, c_f: float, l_h: float) -> tuple[float, float]:
     (REFERENCES.md "Switching inrush").
     """
     return crest_phase_v(u_kv) * math.sqrt(c_f / l_h), 1.0 / (2.0 * math.pi * math.sqrt(l_h * c_f))
+
+
+def inrush_two_sources(v0: float, l_s: float, r_s: float, l_on: float, r_on: float, c_on: float,
+                       l_new: float, r_new: float, c_new: float) -> tuple[float, float]:
+    """Peak [A] and frequency [Hz] of a stage's inrush fed at once by the supply and the stages in service.
+
+    Parameters
+    ----------
+    v0 : float
+        Crest phase voltage at closing [V] (held during the fast transient).
+    l_s, r_s : float
+        Supply inductance [H] and resistance [ohm] at the bank's bus (``l_s = inf``: no supply path).
+    l_on, r_on, c_on : float
+        The stages in service taken together: their connections' inductance in parallel [H],
+        resistance [ohm] and capacitance [F], charged to ``v0``.
+    l_new, r_new, c_new : float
+        The stage switched in: inductance [H], resistance [ohm], capacitance [F], uncharged.
+
+    Returns
+    -------
+    (float, float)
+        The largest ``|i_new(t)|`` [A] of the linear circuit's response, and the frequency of
+        the oscillation mode carrying most of it [Hz].
+
+    Notes
+    -----
+    The bus has no capacitance of its own, so the supply branch, the in-service branch and the
+    new branch share one node; with the source held at ``v0`` the state ``x = (i_on, v_on, i_new,
+    v_new)`` obeys ``dx/dt = A x + b v0`` and ``x(t) = x_ss + V e^(Lambda t) V^-1 (x0 - x_ss)``
+    (eigen-decomposition of ``A``).  With ``l_s`` infinite it is the back-to-back circuit of
+    :func:`undamped_inrush` (``C_eq``, ``l_on + l_new``); where the stages' own inductance is large
+    (detuned stages behind a stiff LV supply) the supply path carries the inrush instead, which
+    the two-capacitor formula misses.
+
+    References
+    ----------
+    IEEE Std C37.012-2005 (back-to-back switching, contributions of the source and of the banks
+    in service) [from memory]; state-space solution of a linear circuit (any circuit-theory text).
+    """
+    gs = 0.0 if not math.isfinite(l_s) else 1.0 / l_s
+    g_on, g_new = 1.0 / l_on, 1.0 / l_new
+    den = gs + g_on + g_new
+    # v_b = (gs (v0 - r_s i_s) + g_on (r_on i_on + v_on) + g_new (r_new i_new + v_new)) / den, i_s = i_on + i_new
+    rb = np.array([-gs * r_s + g_on * r_on, g_on, -gs * r_s + g_new * r_new, g_new]) / den
+    rb0 = gs / den
+    a = np.zeros((4, 4))
+    a[0] = (rb - np.array([r_on, 1.0, 0.0, 0.0])) * g_on
+    a[1, 0] = 1.0 / c_on
+    a[2] = (rb - np.array([0.0, 0.0, r_new, 1.0])) * g_new
+    a[3, 2] = 1.0 / c_new
+    b = np.array([rb0 * g_on, 0.0, rb0 * g_new, 0.0]) * v0
+    x0 = np.array([0.0, v0, 0.0, 0.0])
+    if gs > 0:
+        x_ss = np.array([0.0, v0, 0.0, v0])
+    else:  # the two stages share the charge
+        v_end = v0 * c_on / (c_on + c_new)
+        x_ss = np.array([0.0, v_end, 0.0, v_end])
+    del b  # the steady state carries the source term (x_ss solves A x_ss + b v0 = 0)
+    lam, vec = np.linalg.eig(a)
+    coef = np.linalg.solve(vec, (x0 - x_ss).astype(complex))
+    amp = vec[2] * coef  # i_new(t) = sum_k amp_k e^(lam_k t)
+    osc = np.abs(lam.imag) > 1e-9 * max(1.0, float(np.max(np.abs(lam))))
+    w = np.abs(lam.imag[osc]) if np.any(osc) else np.abs(lam.real)
+    w_fast, w_slow = float(np.max(w)), float(np.min(w[w > 0])) if np.any(w > 0) else float(np.max(w))
+    n = int(min(200_000, max(4000, 200.0 * w_fast / w_slow)))
+    t = np.linspace(0.0, 1.25 * 2.0 * math.pi / w_slow, n)
+    i_new = np.real(np.exp(np.outer(t, lam)) @ amp)
+    dominant = int(np.argmax(np.abs(amp) * osc)) if np.any(osc) else int(np.argmax(np.abs(amp)))
+    return float(np.max(np.abs(i_new))), float(abs(lam[dominant].imag)) / (2.0 * math.pi)
 
 
 def damped_peak(v0: float, l_h: float, c_f: float, r_ohm: float) -> float:
@@ -231,42 +302,6 @@ def loop_inductance_for(u_kv: float, c_eq_f: float, peak_a: float | None, f_hz: 
     if f_hz:
         need = max(need, 1.0 / ((2.0 * math.pi * f_hz) ** 2 * c_eq_f))
     return need
-
-
-def pre_insertion_peaks(u_kv: float, c_eq_f: float, l_h: float, r_ohm: float, c_new_f: float,
-                        f_sys_hz: float) -> tuple[float, float]:
-    """Peak currents of a step closed through a pre-insertion (damping) resistor [A].
-
-    Parameters
-    ----------
-    u_kv : float
-        Line-to-line voltage [kV].
-    c_eq_f, l_h : float
-        Capacitance [F] and inductance [H] of the inrush loop (see :func:`undamped_inrush`).
-    r_ohm : float
-        Pre-insertion resistance per phase [ohm].
-    c_new_f : float
-        Capacitance of the step switched in [F].
-    f_sys_hz : float
-        System frequency [Hz].
-
-    Returns
-    -------
-    (float, float)
-        The peak on insertion (:func:`damped_peak` with ``R``) and the peak when the resistor is
-        bypassed: the loop then closes onto the voltage left across the resistor in the
-        insertion's steady state, ``V_pk omega R C / sqrt(1 + (omega R C)^2)``, undamped.
-
-    References
-    ----------
-    IEEE Std C37.012-2005, pre-insertion resistors and inductors for capacitor switching
-    [from memory]; the two peaks follow from the series RLC step response [derived].
-    """
-    v0 = crest_phase_v(u_kv)
-    insertion = damped_peak(v0, l_h, c_eq_f, r_ohm)
-    x = 2.0 * math.pi * f_sys_hz * r_ohm * c_new_f
-    bypass = v0 * x / math.sqrt(1.0 + x * x) * math.sqrt(c_eq_f / l_h)
-    return insertion, bypass
 
 
 @dataclass(frozen=True)
