@@ -211,20 +211,19 @@ def bank_switching(bank, bm, sc, f_hz: float, limit_pct: float) -> BankSwitching
         c_new = c[k]
         v0 = sw.crest_phase_v(u)
         if k == 0:
-            c_on, c_eq = 0.0, c_new
+            c_on, c_eq, on, on_r = 0.0, c_new, None, None
             l_loop, r_loop = l_s + l_stage[0], r_s + r_det[0]
-            peak, hz = sw.undamped_inrush(u, c_eq, l_loop)
-            damped = sw.damped_peak(v0, l_loop, c_eq, r_loop + r_pre)
         else:
             c_on = sum(c[:k])
             c_eq = c_on * c_new / (c_on + c_new)
             l_on = 1.0 / sum(1.0 / x for x in l_stage[:k])
             r_on = 1.0 / sum(1.0 / x for x in r_det[:k]) if all(x > 0 for x in r_det[:k]) else 0.0
+            on, on_r = (l_on, 0.0, c_on), (l_on, r_on, c_on)
             # the new stage is fed by the stages in service and by the supply at once
             l_loop = l_stage[k] + 1.0 / (1.0 / l_s + 1.0 / l_on)
             r_loop = r_det[k] + r_on
-            peak, hz = sw.inrush_two_sources(v0, l_s, 0.0, l_on, 0.0, c_on, l_stage[k], 0.0, c_new)
-            damped = sw.inrush_two_sources(v0, l_s, r_s, l_on, r_on, c_on, l_stage[k], r_det[k] + r_pre, c_new)[0]
+        peak, hz = sw.inrush_transient(v0, f_hz, l_s, 0.0, on, (l_stage[k], 0.0, c_new))
+        damped = sw.inrush_transient(v0, f_hz, l_s, r_s, on_r, (l_stage[k], r_det[k] + r_pre, c_new))[0]
         if r_pre > 0:
             # insertion: the resistor in the loop; bypass: the loop closes onto the voltage left across it
             x = w * r_pre * c_new

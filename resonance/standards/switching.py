@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["stage_capacitance_f", "crest_phase_v", "undamped_inrush", "inrush_two_sources", "damped_peak", "energising_overvoltage_pu",
+__all__ = ["stage_capacitance_f", "crest_phase_v", "undamped_inrush", "inrush_transient", "damped_peak", "energising_overvoltage_pu",
            "voltage_step_pct", "loop_inductance_for", "DeviceRating", "typical_device",
            "CAP_TRANSIENT_CURRENT_FACTOR", "CAP_TRANSIENT_CURRENT_SOURCE", "CAP_TRANSIENT_VOLTAGE_PU",
            "CAP_TRANSIENT_VOLTAGE_SOURCE", "VOLTAGE_STEP_SOURCE", "DEFAULT_LOOP_UH", "LOOP_UH_SOURCE",
@@ -116,71 +116,102 @@ def undamped_inrush(u_kv: float, c_f: float, l_h: float) -> tuple[float, float]:
     return crest_phase_v(u_kv) * math.sqrt(c_f / l_h), 1.0 / (2.0 * math.pi * math.sqrt(l_h * c_f))
 
 
-def inrush_two_sources(v0: float, l_s: float, r_s: float, l_on: float, r_on: float, c_on: float,
-                       l_new: float, r_new: float, c_new: float) -> tuple[float, float]:
-    """Peak [A] and frequency [Hz] of a stage's inrush fed at once by the supply and the stages in service.
+def inrush_transient(v_pk: float, f_sys_hz: float | None, l_s: float, r_s: float, on, new) -> tuple[float, float]:
+    """Peak [A] and frequency [Hz] of a stage's inrush, fed by the supply and the stages in service.
 
     Parameters
     ----------
-    v0 : float
-        Crest phase voltage at closing [V] (held during the fast transient).
+    v_pk : float
+        Crest of the source's phase voltage [V]; the stage closes at that crest (t = 0).
+    f_sys_hz : float or None
+        System frequency [Hz]; None holds the source at its crest (the classic closed forms'
+        assumption, right when the inrush rings much faster than the system frequency).
     l_s, r_s : float
-        Supply inductance [H] and resistance [ohm] at the bank's bus (``l_s = inf``: no supply path).
-    l_on, r_on, c_on : float
+        Supply inductance [H] and resistance [ohm] at the bank's bus; ``l_s = inf``: no supply
+        path (the two-capacitor circuit of :func:`undamped_inrush`).
+    on : (float, float, float) or None
         The stages in service taken together: their connections' inductance in parallel [H],
-        resistance [ohm] and capacitance [F], charged to ``v0``.
-    l_new, r_new, c_new : float
+        resistance [ohm] and capacitance [F], in steady state before closing (charged to the
+        crest when ``f_sys_hz`` is None); None for the first step (isolated switching).
+    new : (float, float, float)
         The stage switched in: inductance [H], resistance [ohm], capacitance [F], uncharged.
 
     Returns
     -------
     (float, float)
         The largest ``|i_new(t)|`` [A] of the linear circuit's response, and the frequency of
-        the oscillation mode carrying most of it [Hz].
+        the natural mode carrying most of it [Hz].
 
     Notes
     -----
-    The bus has no capacitance of its own, so the supply branch, the in-service branch and the
-    new branch share one node; with the source held at ``v0`` the state ``x = (i_on, v_on, i_new,
-    v_new)`` obeys ``dx/dt = A x + b v0`` and ``x(t) = x_ss + V e^(Lambda t) V^-1 (x0 - x_ss)``
-    (eigen-decomposition of ``A``).  With ``l_s`` infinite it is the back-to-back circuit of
-    :func:`undamped_inrush` (``C_eq``, ``l_on + l_new``); where the stages' own inductance is large
-    (detuned stages behind a stiff LV supply) the supply path carries the inrush instead, which
-    the two-capacitor formula misses.
+    The bus has no capacitance of its own: the supply, the in-service stages and the new stage
+    share one node.  The state ``x`` (branch currents and capacitor voltages) obeys
+    ``dx/dt = A x + b v_s(t)``; its solution is the power-frequency steady state (a phasor) plus
+    ``V e^(Lambda t) c`` (eigen-decomposition of ``A``) fitted to the state at closing.  Where the
+    inrush rings only a few times faster than the system frequency (detuned stages) the source's
+    own motion and the power-frequency current add up to a third to the classic closed form; where
+    the stages' own inductance is large against the supply's, the supply carries the inrush of a
+    back-to-back step, which the two-capacitor formula misses.
 
     References
     ----------
-    IEEE Std C37.012-2005 (back-to-back switching, contributions of the source and of the banks
-    in service) [from memory]; state-space solution of a linear circuit (any circuit-theory text).
+    IEEE Std C37.012-2005 (isolated and back-to-back switching, source and bank contributions)
+    [from memory]; state-space solution of a linear circuit with a sinusoidal source (any
+    circuit-theory text, e.g. Nilsson and Riedel, *Electric Circuits*).
     """
+    l_new, r_new, c_new = new
     gs = 0.0 if not math.isfinite(l_s) else 1.0 / l_s
-    g_on, g_new = 1.0 / l_on, 1.0 / l_new
-    den = gs + g_on + g_new
-    # v_b = (gs (v0 - r_s i_s) + g_on (r_on i_on + v_on) + g_new (r_new i_new + v_new)) / den, i_s = i_on + i_new
-    rb = np.array([-gs * r_s + g_on * r_on, g_on, -gs * r_s + g_new * r_new, g_new]) / den
-    rb0 = gs / den
-    a = np.zeros((4, 4))
-    a[0] = (rb - np.array([r_on, 1.0, 0.0, 0.0])) * g_on
-    a[1, 0] = 1.0 / c_on
-    a[2] = (rb - np.array([0.0, 0.0, r_new, 1.0])) * g_new
-    a[3, 2] = 1.0 / c_new
-    b = np.array([rb0 * g_on, 0.0, rb0 * g_new, 0.0]) * v0
-    x0 = np.array([0.0, v0, 0.0, 0.0])
-    if gs > 0:
-        x_ss = np.array([0.0, v0, 0.0, v0])
-    else:  # the two stages share the charge
-        v_end = v0 * c_on / (c_on + c_new)
-        x_ss = np.array([0.0, v_end, 0.0, v_end])
-    del b  # the steady state carries the source term (x_ss solves A x_ss + b v0 = 0)
+    if on is None:
+        lt, rt = l_s + l_new, r_s + r_new
+        a = np.array([[-rt / lt, -1.0 / lt], [1.0 / c_new, 0.0]])
+        b = np.array([1.0 / lt, 0.0])
+        x0 = np.zeros(2)
+        k_new = 0
+    else:
+        l_on, r_on, c_on = on
+        g_on, g_new = 1.0 / l_on, 1.0 / l_new
+        den = gs + g_on + g_new
+        # v_b = (gs (v_s - r_s i_s) + g_on (r_on i_on + v_on) + g_new (r_new i_new + v_new)) / den, i_s = i_on + i_new
+        rb = np.array([-gs * r_s + g_on * r_on, g_on, -gs * r_s + g_new * r_new, g_new]) / den
+        a = np.zeros((4, 4))
+        a[0] = (rb - np.array([r_on, 1.0, 0.0, 0.0])) * g_on
+        a[1, 0] = 1.0 / c_on
+        a[2] = (rb - np.array([0.0, 0.0, r_new, 1.0])) * g_new
+        a[3, 2] = 1.0 / c_new
+        b = np.array([g_on, 0.0, g_new, 0.0]) * gs / den
+        k_new = 2
+        if f_sys_hz is None or gs == 0.0:
+            x0 = np.array([0.0, v_pk, 0.0, 0.0])
+        else:  # the in-service stages in their power-frequency steady state at the crest
+            w = 2.0 * math.pi * f_sys_hz
+            i_on = v_pk / (r_s + 1j * w * l_s + r_on + 1j * w * l_on + 1.0 / (1j * w * c_on))
+            x0 = np.array([i_on.real, (i_on / (1j * w * c_on)).real, 0.0, 0.0])
     lam, vec = np.linalg.eig(a)
-    coef = np.linalg.solve(vec, (x0 - x_ss).astype(complex))
-    amp = vec[2] * coef  # i_new(t) = sum_k amp_k e^(lam_k t)
+    if f_sys_hz is None or gs == 0.0 and on is not None:
+        # source held at the crest: the steady state is DC (charges shared, or charged to v_pk)
+        if gs == 0.0 and on is not None:
+            v_end = x0[1] * on[2] / (on[2] + c_new)
+            x_ss = np.array([0.0, v_end, 0.0, v_end])
+        else:
+            x_ss = np.zeros_like(x0)
+            x_ss[1::2] = v_pk
+        xp0, xp_new, w = x_ss, None, 0.0
+    else:
+        w = 2.0 * math.pi * f_sys_hz
+        phasor = np.linalg.solve(1j * w * np.eye(a.shape[0]) - a, b * v_pk)
+        xp0, xp_new = phasor.real, phasor[k_new]
+    coef = np.linalg.solve(vec, (x0 - xp0).astype(complex))
+    amp = vec[k_new] * coef
     osc = np.abs(lam.imag) > 1e-9 * max(1.0, float(np.max(np.abs(lam))))
-    w = np.abs(lam.imag[osc]) if np.any(osc) else np.abs(lam.real)
-    w_fast, w_slow = float(np.max(w)), float(np.min(w[w > 0])) if np.any(w > 0) else float(np.max(w))
-    n = int(min(200_000, max(4000, 200.0 * w_fast / w_slow)))
-    t = np.linspace(0.0, 1.25 * 2.0 * math.pi / w_slow, n)
+    wn = np.abs(lam.imag[osc]) if np.any(osc) else np.abs(lam.real)
+    w_fast = float(np.max(wn))
+    w_slow = float(np.min(wn[wn > 0])) if np.any(wn > 0) else w_fast
+    t_end = 1.25 * 2.0 * math.pi / w_slow
+    n = int(min(200_000, max(4000, 100.0 * w_fast * t_end / (2.0 * math.pi))))
+    t = np.linspace(0.0, t_end, n)
     i_new = np.real(np.exp(np.outer(t, lam)) @ amp)
+    if xp_new is not None:
+        i_new = i_new + np.real(xp_new * np.exp(1j * w * t))
     dominant = int(np.argmax(np.abs(amp) * osc)) if np.any(osc) else int(np.argmax(np.abs(amp)))
     return float(np.max(np.abs(i_new))), float(abs(lam[dominant].imag)) / (2.0 * math.pi)
 
