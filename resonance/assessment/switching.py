@@ -22,7 +22,9 @@ IEEE Std C37.99-2012; IEEE Std C37.012-2005 (REFERENCES.md "Switching inrush").
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+
+import numpy as np
 
 from resonance.assessment.envelope import scenario_words
 from resonance.assessment.findings import Finding
@@ -112,6 +114,9 @@ class BankSwitching:
         Voltage step limit [%].
     l_supply_uh : float
         Supply inductance at the bank's bus, per phase [uH].
+    wave_ms, wave_a : ndarray
+        Inrush current of the governing step (with the loop's resistance) [A] against time from
+        closing [ms], for the report's figure.
     """
 
     bank: str
@@ -123,6 +128,8 @@ class BankSwitching:
     cap_peak_limit_a: tuple
     voltage_step_limit_pct: float
     l_supply_uh: float
+    wave_ms: np.ndarray = field(default_factory=lambda: np.zeros(0), compare=False)
+    wave_a: np.ndarray = field(default_factory=lambda: np.zeros(0), compare=False)
 
     def governing(self) -> SwitchingStep:
         """The step with the highest peak inrush current."""
@@ -205,7 +212,7 @@ def bank_switching(bank, bm, sc, f_hz: float, limit_pct: float) -> BankSwitching
     l_s = z_s * xr / math.sqrt(1.0 + xr * xr) / w
     r_s = z_s / math.sqrt(1.0 + xr * xr)
     r_pre = bank.pre_insertion_ohm or 0.0
-    steps = []
+    steps, waves = [], []
     for k in range(n):
         u = bm.bus_kv * float(sc.steps[k].v_bus_pu)
         c_new = c[k]
@@ -223,7 +230,8 @@ def bank_switching(bank, bm, sc, f_hz: float, limit_pct: float) -> BankSwitching
             l_loop = l_stage[k] + 1.0 / (1.0 / l_s + 1.0 / l_on)
             r_loop = r_det[k] + r_on
         peak, hz = sw.inrush_transient(v0, f_hz, l_s, 0.0, on, (l_stage[k], 0.0, c_new))
-        damped = sw.inrush_transient(v0, f_hz, l_s, r_s, on_r, (l_stage[k], r_det[k] + r_pre, c_new))[0]
+        damped, _hz, t_s, i_a = sw.inrush_wave(v0, f_hz, l_s, r_s, on_r, (l_stage[k], r_det[k] + r_pre, c_new))
+        waves.append((t_s, i_a))
         if r_pre > 0:
             # insertion: the resistor in the loop; bypass: the loop closes onto the voltage left across it
             x = w * r_pre * c_new
@@ -240,7 +248,10 @@ def bank_switching(bank, bm, sc, f_hz: float, limit_pct: float) -> BankSwitching
             rated_a=float(bm.stages_kvar[k]) / (math.sqrt(3.0) * bm.rated_kv),
             voltage_step_pct=sw.voltage_step_pct(q_bus, sc.sc_mva), overvoltage_pu=ov,
             cap_overvoltage_pu=ov * u / bm.rated_kv / (1.0 - bm.p)))
+    g = max(range(n), key=lambda j: steps[j].peak_a)
+    keep = max(1, waves[g][0].size // 1500)  # a figure's worth of points
     return BankSwitching(bank=bm.name, scenario=sc.scenario, steps=tuple(steps), device=_device(bank, bm.bus_kv),
+                         wave_ms=waves[g][0][::keep] * 1e3, wave_a=waves[g][1][::keep],
                          loop_uh=tuple(wire), loop_source=wire_src,
                          cap_peak_limit_a=tuple(sw.CAP_TRANSIENT_CURRENT_FACTOR * s.rated_a for s in steps),
                          voltage_step_limit_pct=limit_pct, l_supply_uh=l_s * 1e6)

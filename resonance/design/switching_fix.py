@@ -156,19 +156,24 @@ def propose_switching(case, model, result) -> dict:
                      f"h = {min(h_sr):.0f} or higher, above the studied range)")
         else:
             entry["measure"] = "pre_insertion_resistor"
-            grid = np.unique([preferred_value(x) for x in np.geomspace(0.01, 100.0, 200)])
-            best, best_worst = None, math.inf
-            for r in grid:
-                b = bank.model_copy(update={"pre_insertion_ohm": float(r)})
+            def worst_of(r: float) -> float:
+                b = bank.model_copy(update={"pre_insertion_ohm": r})
                 worst = 0.0
                 for pbm, sc in pairs:
                     bs = bank_switching(b, pbm, sc, f_hz, lim)
                     for s, cap in zip(bs.steps, bs.cap_peak_limit_a):
-                        worst = max(worst, s.peak_a / cap)
-                        if bs.device.peak_a:
-                            worst = max(worst, s.peak_a / bs.device.peak_a)
-                if worst < best_worst - 1e-12:
-                    best, best_worst = float(r), worst
+                        worst = max(worst, s.peak_a / cap, s.peak_a / bs.device.peak_a if bs.device.peak_a else 0.0)
+                return worst
+
+            # the insertion peak falls and the bypass peak rises with R: a coarse 1-2-5 sweep, then
+            # every preferred value around the best of it
+            coarse = [m * 10.0**k for k in range(-2, 2) for m in (1.0, 2.0, 5.0)] + [100.0]
+            scores = {r: worst_of(r) for r in coarse}
+            r0 = min(scores, key=scores.get)
+            for r in {preferred_value(x) for x in np.geomspace(r0 / 2.5, r0 * 2.5, 12)} - set(scores):
+                scores[r] = worst_of(r)
+            best = min(scores, key=lambda r: (scores[r], r))
+            best_worst = scores[best]
             if best is None or best_worst > 1.0:
                 entry["reason"] = ("no pre-insertion resistor in 0.01-100 ohm brings the inrush within the limits "
                                    f"(best {best:g} ohm reaches {100 * best_worst:.0f} % of the limit)")

@@ -51,13 +51,14 @@ from resonance.report.specs import _fig_specs, _FigSpec, _step_pages, file_jobs 
 from resonance.report.tables import Column, Table, _fmt_any, _limits, _safe, report_tables  # noqa: E402
 from resonance.report.text import NOT_EVALUATED, _methods, _verdict  # noqa: E402
 from resonance.report.results_json import CAUTION  # noqa: E402
+from resonance.report.switching_report import switching_table, switching_words  # noqa: E402
 from resonance.assessment.study import StudyResult  # noqa: E402
 
 __all__ = ["write_report", "Table", "Column", "report_tables", "NOT_EVALUATED", "SECTIONS"]
 
 #: section headings in report order (tests look for them)
 SECTIONS = ("Summary", "Input data", "Frequency scans", "Detuned bank compared with the plain bank",
-            "Harmonic voltage distortion", "Capacitor duty", "Detuning recommendation",
+            "Harmonic voltage distortion", "Capacitor duty", "Switching", "Detuning recommendation",
             "Methods and assumptions", "References")
 
 REFERENCES = (
@@ -67,6 +68,9 @@ REFERENCES = (
     "IEC 60909-0:2016, Short-circuit currents in three-phase a.c. systems - Calculation of currents.",
     "IEC 60831-1, Shunt power capacitors of the self-healing type for a.c. systems up to 1000 V.",
     "IEC 61000-3-6, Assessment of emission limits for distorting installations (summation law).",
+    "IEEE Std C37.99-2012, Guide for the Protection of Shunt Capacitor Banks (inrush, back-to-back switching).",
+    "IEEE Std C37.012-2005, Application Guide for Capacitance Current Switching for AC High-Voltage Circuit Breakers.",
+    "ANSI C37.06-2000 back-to-back capacitor switching limits, as summarised in Siemens TechTopics No. 32.",
     "pandapower: L. Thurner et al., IEEE Trans. Power Systems 33(6), 2018 (load flow, IEC 60909).",
     "W. F. Tinney, C. E. Hart, Power Flow Solution by Newton's Method, IEEE Trans. PAS-86, 1967.",
 )
@@ -201,6 +205,7 @@ def _first_h(specs: list) -> float:
 
 def _write(res: StudyResult, data: dict, detuned: dict, out, date: str) -> list[str]:
     tables = report_tables(res, data)
+    tables += [t for t in (switching_table(b, data.get("findings", ())) for b in data["banks"]) if t is not None]
     specs = _fig_specs(res, data, detuned)
     jobs = file_jobs(res, specs)
     pdf_path = out.file("report.pdf")
@@ -281,7 +286,20 @@ def _pdf(res: StudyResult, data: dict, tables: list, specs: dict, date: str, pat
     else:
         doc.para(f"Capacitor duty (rms and crest voltage, rms current, reactive power): {NOT_EVALUATED}.")
 
-    doc.heading("7 Detuning recommendation", keep=_first_h(specs["band"]))
+    doc.heading("7 Switching", keep=1.2)
+    doc.para("Inrush current of every step on switching in, its frequency, the voltage step at the bus and the "
+             "transient voltage on the capacitors, against the switching device's and the capacitor units' limits "
+             "(sources in the table notes); red: beyond a limit.")
+    for b in data["banks"]:
+        t = tbl.get(f"table_switching_{_safe(b['name'])}.csv")
+        if t is not None:
+            doc.table(t, size=6.8)
+        doc.bullets(switching_words(res, b), size=8.0)
+        for spec in specs["switching"]:
+            if spec.bank == b["name"]:
+                place(spec)
+
+    doc.heading("8 Detuning recommendation", keep=_first_h(specs["band"]))
     det_tables = [t for t in tables if t.name.startswith("table_detuning_")]
     if specs["band"] or det_tables:
         for spec in specs["band"]:
@@ -291,7 +309,7 @@ def _pdf(res: StudyResult, data: dict, tables: list, specs: dict, date: str, pat
     else:
         doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
 
-    doc.heading("8 Methods and assumptions")
+    doc.heading("9 Methods and assumptions")
     meth, mem = _methods(res, data)
     doc.bullets(meth)
     doc.ensure(0.6)
@@ -299,7 +317,7 @@ def _pdf(res: StudyResult, data: dict, tables: list, specs: dict, date: str, pat
              weight="bold")
     doc.y += 0.22
     doc.bullets(mem)
-    doc.heading("9 References")
+    doc.heading("10 References")
     doc.bullets(REFERENCES)
 
     # contents on the cover (page numbers are known now)

@@ -20,7 +20,9 @@ from resonance.report import figures as rf
 from resonance.report.layout import INK, M_LEFT, M_TOP, PAGE_H, PAGE_W, TEXT_W, _Doc
 from resonance.report.tables import (DUTY_KEYS, _detuning, _get, _has_duty, _limits, _Limits, _num,
                             _safe, _spectrum, _thd_bus, _thd_pcc)
+from resonance.assessment.envelope import scenario_words
 from resonance.assessment.study import BankScan, StudyResult
+from resonance.report.switching_report import SWITCH_FIG_SIZE, draw_switching
 
 __all__ = ["FileJob", "file_jobs", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE"]
 
@@ -92,7 +94,7 @@ def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
 
 def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dict[str, list]:
     """Figure specs per report section (the per-step plots are handled apart, see :func:`_step_pages`)."""
-    specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": []}
+    specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": [], "switching": []}
     banks = {b["name"]: b for b in data["banks"]}
     for sc in res.scans:
         if sc.scenario != "nominal":
@@ -145,6 +147,14 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
                 f"fig_duty_{s}", (7.4, 5.2),
                 lambda fig, r, v=vals, n=nums, lm=lim: rf.draw_duty(_grid(fig, r, 2, 2), n, v, lm.duty, lm.duty_name),
                 5.2))
+        every = [x for x in res.switching if x.bank == b.name and x.wave_a.size]
+        if every:  # the governing step over every scenario
+            gov = max(every, key=lambda x: x.governing().peak_a)
+            ttl = f"Bank {b.name}: step {gov.governing().step} switched in, {scenario_words(gov.scenario)}"
+            specs["switching"].append(_FigSpec(
+                f"fig_switching_{s}", SWITCH_FIG_SIZE,
+                lambda fig, r, g=gov, t=ttl: draw_switching(*_grid(fig, r, 1, 2, (0.62, 0.2, 0.45, 0.35)), g, t),
+                SWITCH_FIG_SIZE[1], b.name))
         rec, _c = _detuning(bank)
         n_t = _num(_get(rec, "tuning_order")) if rec else None
         p_pct = _num(_get(rec, "detuning_pct")) if rec else None
@@ -249,7 +259,7 @@ def file_jobs(res: StudyResult, specs: dict[str, list]) -> list[FileJob]:
             continue
         jobs += [_spec_job(s) for s in specs["overlay"] if s.bank == sc.bank.name]
         jobs += _step_jobs(res, sc, res.scans_for(sc.bank.name, "weak"))
-    for sec in ("compare", "spectra", "duty", "band"):
+    for sec in ("compare", "spectra", "duty", "switching", "band"):
         jobs += [_spec_job(s) for s in specs[sec]]
     return jobs
 

@@ -228,7 +228,8 @@ class Table:
 #: short code of each check in the step tables' result column
 _CODE = {"resonance": "res", "duty_v_rms": "duty", "duty_v_peak": "duty", "duty_i_rms": "duty", "duty_kvar": "duty",
          "pcc_thd_v": "V", "pcc_v_individual": "V", "pcc_tdd": "I", "pcc_i_individual": "I",
-         "detuning_tuning": "tune", "bus_thd_v": "B", "bus_v_individual": "B"}
+         "detuning_tuning": "tune", "bus_thd_v": "B", "bus_v_individual": "B", "inrush_peak": "sw",
+         "inrush_frequency": "sw", "inrush_capacitor": "sw", "voltage_step": "sw", "energising_overvoltage": "sw"}
 
 
 def _codes(findings, step) -> list[str]:
@@ -293,7 +294,7 @@ def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits, findi
                  "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
                  "char characteristic). THD in % of nominal voltage, TDD in % of I_L, duty in % of the capacitor "
                  f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes (from the findings): res resonance, duty "
-                 "capacitor duty, V PCC voltage distortion, I PCC current distortion, tune detuned tuning, B in-plant "
+                 "capacitor duty, V PCC voltage distortion, I PCC current distortion, tune detuned tuning, sw switching (inrush, voltage step), B in-plant "
                  "level at the bank bus; 'pass (site ...)': beyond a limit already with the bank off and not made "
                  "worse by it (the site's own emission).", bad)
 

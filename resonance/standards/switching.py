@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["stage_capacitance_f", "crest_phase_v", "undamped_inrush", "inrush_transient", "damped_peak", "energising_overvoltage_pu",
+__all__ = ["stage_capacitance_f", "crest_phase_v", "undamped_inrush", "inrush_transient", "inrush_wave", "damped_peak", "energising_overvoltage_pu",
            "voltage_step_pct", "loop_inductance_for", "DeviceRating", "typical_device",
            "CAP_TRANSIENT_CURRENT_FACTOR", "CAP_TRANSIENT_CURRENT_SOURCE", "CAP_TRANSIENT_VOLTAGE_PU",
            "CAP_TRANSIENT_VOLTAGE_SOURCE", "VOLTAGE_STEP_SOURCE", "DEFAULT_LOOP_UH", "LOOP_UH_SOURCE",
@@ -117,6 +117,12 @@ def undamped_inrush(u_kv: float, c_f: float, l_h: float) -> tuple[float, float]:
 
 
 def inrush_transient(v_pk: float, f_sys_hz: float | None, l_s: float, r_s: float, on, new) -> tuple[float, float]:
+    """Peak [A] and frequency [Hz] of a stage's inrush (see :func:`inrush_wave`)."""
+    peak, hz, _t, _i = inrush_wave(v_pk, f_sys_hz, l_s, r_s, on, new)
+    return peak, hz
+
+
+def inrush_wave(v_pk: float, f_sys_hz: float | None, l_s: float, r_s: float, on, new):
     """Peak [A] and frequency [Hz] of a stage's inrush, fed by the supply and the stages in service.
 
     Parameters
@@ -138,9 +144,10 @@ def inrush_transient(v_pk: float, f_sys_hz: float | None, l_s: float, r_s: float
 
     Returns
     -------
-    (float, float)
-        The largest ``|i_new(t)|`` [A] of the linear circuit's response, and the frequency of
-        the natural mode carrying most of it [Hz].
+    (float, float, ndarray, ndarray)
+        The largest ``|i_new(t)|`` [A] of the linear circuit's response, the frequency of the
+        natural mode carrying most of it [Hz], and the current ``i_new`` [A] against time ``t``
+        [s] from closing over 1.25 periods of the slowest mode.
 
     Notes
     -----
@@ -207,13 +214,20 @@ def inrush_transient(v_pk: float, f_sys_hz: float | None, l_s: float, r_s: float
     w_fast = float(np.max(wn))
     w_slow = float(np.min(wn[wn > 0])) if np.any(wn > 0) else w_fast
     t_end = 1.25 * 2.0 * math.pi / w_slow
-    n = int(min(200_000, max(4000, 100.0 * w_fast * t_end / (2.0 * math.pi))))
+
+    def current(tt: np.ndarray) -> np.ndarray:
+        out = np.real(np.exp(np.outer(tt, lam)) @ amp)
+        return out + np.real(xp_new * np.exp(1j * w * tt)) if xp_new is not None else out
+
+    # 32 samples per period of the fastest mode, then the largest sample refined on a fine grid
+    n = int(min(100_000, max(400, 32.0 * w_fast * t_end / (2.0 * math.pi))))
     t = np.linspace(0.0, t_end, n)
-    i_new = np.real(np.exp(np.outer(t, lam)) @ amp)
-    if xp_new is not None:
-        i_new = i_new + np.real(xp_new * np.exp(1j * w * t))
+    i_new = current(t)
+    j = int(np.argmax(np.abs(i_new)))
+    fine = np.linspace(t[max(j - 1, 0)], t[min(j + 1, n - 1)], 129)
+    peak = max(float(np.max(np.abs(current(fine)))), float(abs(i_new[j])))
     dominant = int(np.argmax(np.abs(amp) * osc)) if np.any(osc) else int(np.argmax(np.abs(amp)))
-    return float(np.max(np.abs(i_new))), float(abs(lam[dominant].imag)) / (2.0 * math.pi)
+    return peak, float(abs(lam[dominant].imag)) / (2.0 * math.pi), t, i_new
 
 
 def damped_peak(v0: float, l_h: float, c_f: float, r_ohm: float) -> float:
