@@ -290,3 +290,44 @@ def test_bad_switching_keys_name_the_field(tmp_path):
         parse_case(raw, "bad.toml")
     text = str(e.value)
     assert "bad.toml" in text and "bank[0]" in text and "3 values for 2 stages" in text
+
+
+def test_recommended_case_with_the_reactor_passes_check(tmp_path):
+    # the round trip: a bank whose only findings are of switching gets the reactor written into
+    # recommended_case.toml, and `resonance check` on that file passes (exit 0), the original
+    # fails (exit 1); a detuned design is not proposed for a switching-only problem
+    case = tmp_path / "mv.toml"
+    case.write_text(MV_CASE + "\n[study]\nmargin_pct = 1.0\n", encoding="utf-8")
+    out = tmp_path / "out"
+
+    def check(path, where):
+        return subprocess.run([sys.executable, "-m", "resonance", "check", str(path), "--out", str(where),
+                               "--no-report", "--no-plots", "--quiet"], capture_output=True, text=True, check=False)
+
+    first = check(case, out)
+    assert first.returncode == 1, first.stderr
+    data = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    bank = data["banks"][0]
+    assert {f["check"] for f in data["findings"]} <= {"inrush_peak", "inrush_frequency", "inrush_capacitor"}
+    assert bank["detuning"]["status"] == "skipped"
+    l_r = bank["switching_proposal"]["recommended"]["inrush_reactor_uh"]
+    text = (out / "recommended_case.toml").read_text(encoding="utf-8")
+    assert f"inrush_reactor_uh = {l_r!r}" in text
+    again = check(out / "recommended_case.toml", tmp_path / "out2")
+    assert again.returncode == 0, again.stdout + again.stderr
+    data2 = json.loads((tmp_path / "out2" / "results.json").read_text(encoding="utf-8"))
+    assert data2["passed"] and data2["banks"][0]["steps"][1]["inrush_peak_a"] <= 10_000.0
+
+
+def test_a_voltage_step_beyond_its_limit_is_a_finding_no_series_element_clears():
+    # dV = Q / S_sc (IEEE Std 1036 [from memory]): 4.78 Mvar on 250 MVA -> 1.9 %, over a 1.5 % limit
+    from resonance.pipeline import run_check
+    import tomllib
+
+    raw = tomllib.loads(MV_CASE)
+    raw["study"] = {"voltage_step_limit_pct": 1.5}
+    res = run_check(raw)
+    vs = [f for f in res.findings if f.check == "voltage_step" and f.scenario == "nominal"]
+    assert vs and vs[0].value == pytest.approx(100 * 4780.6 / 250_000.0 * (1 / 1.0), rel=0.05)
+    prop = res.switching_proposals["C1"]
+    assert any("voltage" in m for m in prop["not_addressed"])
