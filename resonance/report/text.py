@@ -213,8 +213,25 @@ def _methods(res: StudyResult, data: dict) -> tuple[list[str], list[str]]:
         "Summation of several sources: " + ("arithmetic sum of magnitudes (worst case)." if st.get("summation") ==
                                             "arithmetic" else "IEC 61000-3-6 summation law, exponents 1 (h < 5), "
                                             "1.4 (5-10), 2 (h > 10) (from memory)."),
+        "Switching: each step closed at the voltage crest, uncharged; step 1 from the supply alone (isolated), "
+        "later steps with the earlier ones in service (back-to-back). Peak and frequency from the transient "
+        "solution of the per-phase circuit (supply L and R at the bank bus, each stage's connection, inrush and "
+        "detuning reactors) with the power-frequency source; for plain stages behind a weak supply this is the "
+        "IEEE C37.99 / C37.012 formula I_pk = sqrt(2/3) V sqrt(C_eq / L_eq) plus a few percent. Voltage step "
+        "Q_step / S_sc; energising overvoltage 1 + C_new / (C_on + C_new), damped by the supply.",
     ]
     mem = []
+    sw = next((b.get("switching") for b in data["banks"] if b.get("switching")), None)
+    if sw:
+        mem.append(f"Capacitor units' switching current: {sw.get('capacitor_peak_limit_source')}.")
+        mem.append(f"Capacitor transient voltage: {sw.get('capacitor_overvoltage_limit_source')}.")
+        mem.append(f"Voltage step limit: {sw.get('voltage_step_source')}.")
+        for b in data["banks"]:
+            x = b.get("switching") or {}
+            if x.get("device_typical") and x.get("device_inrush_peak_a"):
+                mem.append(f"Bank {b['name']} switching device: {x.get('device_source')}.")
+            if "assumed" in str(x.get("stage_connection_source")) or "memory" in str(x.get("stage_connection_source")):
+                mem.append(f"Bank {b['name']} stage connection inductance: {x.get('stage_connection_source')}.")
     if dl:
         for q, src in (("rms voltage", dl.v_rms_source), ("crest voltage", dl.v_peak_source),
                        ("rms current", dl.i_rms_source), ("reactive power", dl.q_source)):
