@@ -10,7 +10,7 @@ by the modules that need them (``model/``, ``report/``).  The entry for Python u
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "run_check", "load_case", "run_study", "InputError", "ResonanceError"]
+__all__ = ["__version__", "run_check", "batch", "load_case", "run_study", "InputError", "ResonanceError"]
 
 
 def __getattr__(name):  # lazy re-exports keep `resonance --help` fast
@@ -18,6 +18,10 @@ def __getattr__(name):  # lazy re-exports keep `resonance --help` fast
         from resonance.pipeline import run_check
 
         return run_check
+    if name == "batch":
+        from resonance.batch_run import batch
+
+        return batch
     if name == "load_case":
         from resonance.inputs.case_load import load_case
 

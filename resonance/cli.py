@@ -109,6 +109,26 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--no-plots", action="store_true", help="write results.json and tables only")
     c.add_argument("--no-report", action="store_true", help="skip the PDF report")
     c.add_argument("--quiet", action="store_true", help="print only findings")
+    bt = sub.add_parser("batch", help="check many case rows (files, folders, manifest CSVs) on a Dask cluster",
+                        description="Check every case row on a Dask cluster (a local one by default); writes "
+                                    "DIR/summary.csv, DIR/summary.json, DIR/errors.csv and DIR/cases/<id>/results.json. "
+                                    "Re-running the same command skips rows already finished with the same inputs.")
+    bt.add_argument("inputs", metavar="INPUT", nargs="+", help="case file, folder of case files, or manifest CSV")
+    bt.add_argument("--out", metavar="DIR", required=True, help="output directory (created if missing)")
+    bt.add_argument("--scheduler", metavar="ADDRESS", help="run on an existing Dask scheduler (tcp://host:8786)")
+    bt.add_argument("--workers", metavar="N", type=int, help="worker processes of the local cluster (default: CPUs)")
+    bt.add_argument("--max-rows", metavar="N", type=int, help="run at most N unfinished rows now (resume later)")
+    bt.add_argument("--quiet", action="store_true", help="no progress bar")
+    bt.set_defaults(run=_batch)
+    sw = sub.add_parser("sweep", help="write a manifest CSV that sweeps one key of a case over a range",
+                        description="Write a manifest for `resonance batch` sweeping one key (table.key) of a case.")
+    sw.add_argument("case", metavar="CASE", help="case file (TOML)")
+    sw.add_argument("--key", required=True, help="the key to sweep, e.g. supply.sc_mva or bank.PFC-1.rated_kv")
+    sw.add_argument("--from", dest="lo", type=float, required=True, help="first value")
+    sw.add_argument("--to", dest="hi", type=float, required=True, help="last value")
+    sw.add_argument("--steps", type=int, required=True, help="number of rows (>= 2)")
+    sw.add_argument("--manifest", required=True, help="manifest CSV to write (not overwritten if it exists)")
+    sw.set_defaults(run=_sweep)
     try:
         from resonance.sizing_cli import add_parser as _add_size  # noqa: PLC0415
     except ImportError:  # pragma: no cover - sizing is optional at import time
@@ -202,6 +222,47 @@ def _check(args) -> int:
         _STATE["out"] = None
     _tell(args, data, out, written, rec_text)
     return EXIT_OK if result.passed else EXIT_FINDING
+
+
+def _batch(args) -> int:
+    """``resonance batch``: rows -> Dask -> summary files -> exit status (0, 1, or 2 when rows failed)."""
+    from resonance.batch_run import _progress_bar, run_batch  # noqa: PLC0415
+
+    if args.workers is not None and args.workers < 1:
+        _say("error: --workers: must be a whole number >= 1", sys.stderr)
+        return EXIT_INPUT
+    if args.max_rows is not None and args.max_rows < 0:
+        _say("error: --max-rows: must be >= 0", sys.stderr)
+        return EXIT_INPUT
+    res = run_batch(args.inputs, args.out, scheduler=args.scheduler, workers=args.workers,
+                    max_rows=args.max_rows, progress=None if args.quiet else _progress_bar)
+    n_bank = sum(1 for r in res.summary if not r["passed"])
+    _say(f"{len(res.summary)} bank rows checked ({res.skipped} case rows finished before, {res.submitted} run now): "
+         f"{n_bank} with findings; {len(res.errors)} rows could not be run"
+         + (f"; {res.pending} rows left for a later run" if res.pending else "") + f"; see {args.out}/summary.csv")
+    for e in res.errors:
+        _say(f"error: {e['file']}: {e['field']}: {e['message']}", sys.stderr)
+    return res.exit_status
+
+
+def _sweep(args) -> int:
+    """``resonance sweep``: write a manifest sweeping one key (never over an existing file)."""
+    from resonance.batch_run import sweep_manifest  # noqa: PLC0415
+
+    target = Path(args.manifest)
+    if target.exists():
+        _say(f"error: --manifest: {target} exists; it is not overwritten", sys.stderr)
+        return EXIT_INPUT
+    if "." not in args.key:
+        _say("error: --key: give table.key, e.g. supply.sc_mva", sys.stderr)
+        return EXIT_INPUT
+    if not Path(args.case).is_file():
+        _say(f"error: {args.case}: no such case file", sys.stderr)
+        return EXIT_INPUT
+    text = sweep_manifest(args.case, args.key, args.lo, args.hi, args.steps, target)
+    target.write_text(text, encoding="utf-8")
+    _say(f"wrote {target} ({args.steps} rows of {args.key} from {args.lo:g} to {args.hi:g})")
+    return EXIT_OK
 
 
 def _write_outputs(args, case_path: Path, out, result) -> None:

@@ -23,7 +23,7 @@ LAYERS = (
     ("resonance.assessment",),
     ("resonance.design",),
     ("resonance.report",),
-    ("resonance.pipeline",),
+    ("resonance.pipeline", "resonance.batch_run"),
     ("resonance.cli", "resonance.sizing_cli", "resonance.docgen", "resonance.__main__"),
 )
 
