@@ -33,7 +33,7 @@ __all__ = ["Row", "BatchResult", "batch", "read_rows", "run_batch", "summary_row
 SUMMARY_COLUMNS = ("id", "case", "bank", "passed")
 _TAIL_COLUMNS = ("site_passed", "bank_findings", "worst_step", "worst_scenario", "governing_check",
                  "governing_value", "governing_limit", "governing_unit", "lowest_margin_pct",
-                 "inrush_peak_max_a", "recommended")
+                 "h_scan_at_lowest_margin", "duty_margin_min_pct", "inrush_peak_max_a", "recommended")
 ERROR_COLUMNS = ("id", "case", "file", "field", "message")
 
 
@@ -268,9 +268,11 @@ def summary_rows(row: Row, data: dict) -> list[dict]:
     for b in data["banks"]:
         own = [f for f in data["findings"] if f["bank"] == b["name"] and f.get("cause") == "bank"]
         worst = max(own, key=lambda f: _excess(f), default=None)
-        margins = [abs(s["margin_pct"]) for s in b["steps"] if s.get("margin_pct") is not None]
-        for sc in (b.get("scenarios") or {}).values():
-            margins += [abs(s["margin_pct"]) for s in sc["steps"] if s.get("margin_pct") is not None]
+        every = list(b["steps"]) + [s for sc in (b.get("scenarios") or {}).values() for s in sc["steps"]]
+        margins = [abs(s["margin_pct"]) for s in every if s.get("margin_pct") is not None]
+        tight = min((s for s in every if s.get("margin_pct") is not None), key=lambda s: abs(s["margin_pct"]),
+                    default=None)
+        duty = [min(s["duty_margins_pct"].values()) for s in every if s.get("duty_margins_pct")]
         rec = (b.get("detuning") or {}).get("recommended")
         sw = (b.get("switching_proposal") or {}).get("recommended")
         recommended = (f"detuned p = {rec['detuning_pct']:g} %, {rec['rated_kv']:g} kV" if rec else
@@ -285,6 +287,8 @@ def summary_rows(row: Row, data: dict) -> list[dict]:
                     "governing_limit": worst["limit"] if worst else None,
                     "governing_unit": worst["unit"] if worst else None,
                     "lowest_margin_pct": min(margins) if margins else None,
+                    "h_scan_at_lowest_margin": tight["h_scan"] if tight else None,
+                    "duty_margin_min_pct": min(duty) if duty else None,
                     "inrush_peak_max_a": max((s.get("inrush_peak_a") or 0.0) for s in b["steps"]),
                     "recommended": recommended})
     return out
@@ -441,7 +445,7 @@ def _run_on_dask(todo, out: Path, results: dict, scheduler, workers, progress) -
         client = Client(scheduler, timeout="30s")
     else:
         n = workers or os.cpu_count() or 1
-        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=":0",
                                silence_logs=40)
         client = Client(cluster)
     try:
@@ -495,6 +499,13 @@ def _write_summary(out: Path, rows, summary: list, errors: list) -> None:
     for e in errors:
         w.writerow([csv_text_cell(_cell(e.get(c))) for c in ERROR_COLUMNS])
     _atomic(out / "errors.csv", buf.getvalue())
+    if summary:
+        from resonance.report.batch_figure import summary_figure  # noqa: PLC0415
+
+        fig = summary_figure(summary, over)
+        tmp = out / f".summary.png.partial-{os.getpid()}"
+        fig.savefig(tmp, dpi=110, format="png", metadata={"Software": None})
+        os.replace(tmp, out / "summary.png")
 
 
 def _cell(v):

@@ -101,6 +101,10 @@ def test_resume_skips_finished_rows_and_ends_as_an_uninterrupted_run(tmp_path):
           for k in range(3)]
     assert sc == [120.0, 180.0, 250.0]
     assert whole.table().shape[0] == 3
+    # a sweep gets the summary figure against the swept value
+    assert (tmp_path / "whole" / "summary.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    rows = json.loads((tmp_path / "whole" / "summary.json").read_text())
+    assert all(r["h_scan_at_lowest_margin"] and r["duty_margin_min_pct"] is not None for r in rows)
 
 
 def test_sweep_command_writes_a_manifest_batch_reads(tmp_path):
