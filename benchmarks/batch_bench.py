@@ -31,7 +31,7 @@ def main() -> None:
         for name in ("demo_plant.toml", "demo_plant_intervals.csv"):
             shutil.copy(ROOT / "cases" / name, tmp / name)
         manifest = tmp / "sweep.csv"
-        manifest.write_text(sweep_manifest(str(tmp / "demo_plant.toml"), "supply.sc_mva", 100.0, 500.0, args.rows,
+        manifest.write_text(sweep_manifest(str(tmp / "demo_plant.toml"), "supply.sc_mva", 150.0, 500.0, args.rows,
                                            manifest), encoding="utf-8")
         rows, _ = read_rows([manifest])
         run_row(rows[0])  # imports and first-call costs out of the serial loop's timing

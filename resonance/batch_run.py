@@ -57,6 +57,8 @@ class Row:
     case: str
     overrides: dict = field(default_factory=dict)
     source: str = ""
+    #: write the PDF report, the scan tables and the figures into ``report_dir`` (on the worker)
+    report_dir: str = ""
 
 
 def _safe_id(text: str) -> str:
@@ -207,6 +209,7 @@ def _input_bytes(row: Row) -> bytes:
             f = p.parent / name
             h.update(f.read_bytes() if f.is_file() else b"(missing)")
     h.update(json.dumps(row.overrides, sort_keys=True).encode())
+    h.update(b"report" if row.report_dir else b"")
     h.update(__version__.encode())
     return h.digest()
 
@@ -249,6 +252,8 @@ def run_row(row: Row) -> dict:
         res = run_check(case, workers=1)
         res = dataclasses.replace(res, case_sha256=hashlib.sha256(path.read_bytes()).hexdigest())
         data = res.data
+        if row.report_dir:
+            _write_report(res, row, path)
         return {"id": row.id, "status": "ok", "results_json": json.dumps(data, indent=2, sort_keys=False) + "\n",
                 "summary": summary_rows(row, data)}
     except InputError as e:
@@ -260,6 +265,22 @@ def run_row(row: Row) -> dict:
     except Exception as e:  # noqa: BLE001 - a crash of one row becomes an error row
         return {"id": row.id, "status": "error", "file": row.case, "field": "DEFECT",
                 "message": f"{type(e).__name__}: {e}"}
+
+
+def _write_report(res, row: Row, path: Path) -> None:
+    """The row's report, scan tables and figures into ``row.report_dir`` (atomically, as ``check``)."""
+    from resonance.outputs import OutputDir  # noqa: PLC0415
+    from resonance.report.document import write_report  # noqa: PLC0415
+    from resonance.report.scan_tables import write_scan_tables  # noqa: PLC0415
+
+    out = OutputDir(row.report_dir, protect=[path], last=("report.pdf",))
+    try:
+        write_scan_tables(res.study, out)
+        write_report(res, out)
+        out.commit()
+    except BaseException:
+        out.discard()
+        raise
 
 
 def summary_rows(row: Row, data: dict) -> list[dict]:
@@ -358,7 +379,7 @@ class BatchResult:
 
 
 def run_batch(inputs, out, *, scheduler: str | None = None, workers: int | None = None,
-              max_rows: int | None = None, progress=None) -> BatchResult:
+              max_rows: int | None = None, progress=None, report: bool = False) -> BatchResult:
     """Run every row of a batch on Dask and write the outputs.
 
     Parameters
@@ -376,6 +397,9 @@ def run_batch(inputs, out, *, scheduler: str | None = None, workers: int | None 
         Run at most this many unfinished rows, leaving the rest for a later run (resume) [unitless].
     progress : callable, optional
         ``progress(done, total, eta_s)`` after each finished row.
+    report : bool
+        Also write each row's PDF report, scan tables and figures to ``DIR/cases/<id>/report/``
+        (on the worker: the output folder must be reachable from every worker).
 
     Returns
     -------
@@ -390,6 +414,10 @@ def run_batch(inputs, out, *, scheduler: str | None = None, workers: int | None 
     if not rows:
         raise InputError(probs or [InputProblem("INPUT", "INPUT", "no case rows given")])
     out = Path(out)
+    if report:
+        import dataclasses  # noqa: PLC0415
+
+        rows = [dataclasses.replace(r, report_dir=str((out / "cases" / r.id / "report").absolute())) for r in rows]
     (out / "cases").mkdir(parents=True, exist_ok=True)
     errors = [{"id": "", "case": "", "file": p.file, "field": p.field, "message": p.problem} for p in probs]
     results: dict[str, dict] = {}
@@ -425,13 +453,14 @@ def run_batch(inputs, out, *, scheduler: str | None = None, workers: int | None 
     return BatchResult(summary=summary, errors=errors, submitted=len(todo), skipped=skipped, pending=pending)
 
 
-def batch(inputs, out, *, scheduler: str | None = None, workers: int | None = None, max_rows: int | None = None):
+def batch(inputs, out, *, scheduler: str | None = None, workers: int | None = None, max_rows: int | None = None,
+          report: bool = False):
     """Python API of ``resonance batch``: the summary as a pandas DataFrame (one row per case row and bank).
 
     Parameters are those of :func:`run_batch`.  The DataFrame's ``attrs`` hold ``errors`` (the
     rows that could not be run), ``submitted``, ``skipped`` and ``exit_status``.
     """
-    res = run_batch(inputs, out, scheduler=scheduler, workers=workers, max_rows=max_rows)
+    res = run_batch(inputs, out, scheduler=scheduler, workers=workers, max_rows=max_rows, report=report)
     df = res.table()
     df.attrs.update(errors=res.errors, submitted=res.submitted, skipped=res.skipped, exit_status=res.exit_status)
     return df

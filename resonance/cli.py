@@ -118,6 +118,8 @@ def build_parser() -> argparse.ArgumentParser:
     bt.add_argument("--scheduler", metavar="ADDRESS", help="run on an existing Dask scheduler (tcp://host:8786)")
     bt.add_argument("--workers", metavar="N", type=int, help="worker processes of the local cluster (default: CPUs)")
     bt.add_argument("--max-rows", metavar="N", type=int, help="run at most N unfinished rows now (resume later)")
+    bt.add_argument("--report", action="store_true",
+                    help="also write each row's PDF report and figures to DIR/cases/<id>/report/ (they dominate the cost)")
     bt.add_argument("--quiet", action="store_true", help="no progress bar")
     bt.set_defaults(run=_batch)
     sw = sub.add_parser("sweep", help="write a manifest CSV that sweeps one key of a case over a range",
@@ -235,7 +237,7 @@ def _batch(args) -> int:
         _say("error: --max-rows: must be >= 0", sys.stderr)
         return EXIT_INPUT
     res = run_batch(args.inputs, args.out, scheduler=args.scheduler, workers=args.workers,
-                    max_rows=args.max_rows, progress=None if args.quiet else _progress_bar)
+                    max_rows=args.max_rows, progress=None if args.quiet else _progress_bar, report=args.report)
     n_bank = sum(1 for r in res.summary if not r["passed"])
     _say(f"{len(res.summary)} bank rows checked ({res.skipped} case rows finished before, {res.submitted} run now): "
          f"{n_bank} with findings; {len(res.errors)} rows could not be run"

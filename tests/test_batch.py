@@ -152,3 +152,16 @@ def test_a_real_scheduler_and_two_workers(tmp_path):
                 p.wait(timeout=20)
             except subprocess.TimeoutExpired:
                 p.kill()
+
+
+def test_report_per_row_on_request(tmp_path):
+    from resonance.batch_run import run_batch
+
+    m = _manifest(tmp_path, ["r0,cold.toml,200.0"])
+    plain = run_batch([m], tmp_path / "o", workers=1)
+    assert plain.submitted == 1 and not (tmp_path / "o" / "cases" / "r0" / "report").exists()
+    with_report = run_batch([m], tmp_path / "o", workers=1, report=True)  # the flag is part of the checksum
+    assert with_report.submitted == 1
+    pdf = tmp_path / "o" / "cases" / "r0" / "report" / "report.pdf"
+    assert pdf.read_bytes()[:5] == b"%PDF-"
+    assert (tmp_path / "o" / "cases" / "r0" / "report" / "scan_APFC-1.csv").is_file()
