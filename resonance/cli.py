@@ -278,27 +278,14 @@ def _write_outputs(args, case_path: Path, out, result) -> None:
     import matplotlib  # noqa: PLC0415
 
     matplotlib.use("Agg")  # the one place a backend is chosen: files, no screen (the edge)
-    import matplotlib.pyplot as plt  # noqa: PLC0415
-    from resonance.report.plots import scan_figure  # noqa: PLC0415
-
-    res = result.study
-    for sc in res.scans:
-        if sc.scenario != "nominal":
-            continue
-        weak = res.scans_for(sc.bank.name, "weak")
-        fig = scan_figure(res, sc)
-        safe = _safe(sc.bank.name)
-        fig.savefig(out.file(f"scan_{safe}.png"))
-        fig.savefig(out.file(f"scan_{safe}.svg"))
-        plt.close(fig)
-        if weak is not None:
-            fig = scan_figure(res, weak)
-            fig.savefig(out.file(f"scan_{safe}_weak.png"))
-            plt.close(fig)
     if not args.no_report:
         from resonance.report.document import write_report  # noqa: PLC0415
 
-        write_report(result, out)
+        write_report(result, out)  # the scan figures are among the report's files
+        return
+    from resonance.report.document import write_scan_figures  # noqa: PLC0415
+
+    write_scan_figures(result, out)
 
 
 def _tell(args, data: dict, out, written, rec_text) -> None:

@@ -64,6 +64,12 @@ class CheckResult:
     case_sha256: str = ""
     #: bank name -> switching proposal (:func:`resonance.design.switching_fix.propose_switching`)
     switching_proposals: Mapping[str, dict] = field(default_factory=dict)
+    #: bank name -> :class:`CheckResult` of the re-check that accepted its recommended design
+    #: (the variant case and its study; the report's section on the proposed design reads it)
+    rechecks: Mapping[str, "CheckResult"] = field(default_factory=dict)
+    #: the studied network as plain data for the one-line diagram
+    #: (:func:`resonance.model.topology.one_line_data`), None where it could not be drawn
+    one_line: Any = None
 
     # ------------------------------------------------------------------ the verdict
     @property
@@ -220,7 +226,7 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
     """
     from resonance.assessment.study import run_study, with_cross_check  # noqa: PLC0415
     from resonance.design.demand import time_in_step  # noqa: PLC0415
-    from resonance.design.detuning import propose_detuning, recommended_scans  # noqa: PLC0415
+    from resonance.design.detuning import propose_detuning, recommended_studies  # noqa: PLC0415
     from resonance.design.switching_fix import propose_switching  # noqa: PLC0415
     from resonance.harmonics.engine import CHECK_WORKERS  # noqa: PLC0415
     from resonance.model import netmodel  # noqa: PLC0415
@@ -236,10 +242,22 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
             tis = time_in_step(checked, study)
             study = with_cross_check(study, checked, model)
             proposals = propose_detuning(checked, model, study)
-            detuned = recommended_scans(checked, model, proposals)
+            studies = recommended_studies(checked, model, proposals)
+            detuned = {n: r.scans_for(n) for n, (_c, r) in studies.items() if r.scans_for(n) is not None}
+            rechecks = {n: CheckResult(case=c, study=r) for n, (c, r) in studies.items()}
             switching = propose_switching(checked, model, study)
+            one_line = _one_line(model, checked)
     finally:
         CHECK_WORKERS.reset(token)
     return CheckResult(case=checked, study=study, proposals=proposals, time_in_step=tis, detuned_scans=detuned,
-                       case_sha256=sha, switching_proposals=switching)
+                       case_sha256=sha, switching_proposals=switching, rechecks=rechecks, one_line=one_line)
+
+
+def _one_line(model, case):
+    """The one-line diagram's data (:func:`resonance.model.topology.one_line_data`)."""
+    try:
+        from resonance.model.topology import one_line_data  # noqa: PLC0415
+    except ImportError:  # TEMP until the topology module lands
+        return None
+    return one_line_data(model, case)
 

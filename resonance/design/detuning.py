@@ -541,11 +541,10 @@ def propose_detuning(case, model, result) -> dict:
     return out
 
 
-def recommended_scans(case, model, proposals: dict) -> dict:
-    """Bank name -> nominal :class:`~resonance.assessment.study.BankScan` of its recommended design.
-
-    The scan comes from the re-check that accepted the design (:func:`run_variant`, memoised), so
-    the side-by-side plot shows the very study the proposal was judged on.
+def recommended_studies(case, model, proposals: dict) -> dict:
+    """Bank name -> (variant case, re-check :class:`~resonance.assessment.study.StudyResult`) of
+    its recommended design: the very study the proposal was accepted on (:func:`run_variant`,
+    memoised), every scenario, for the report's section on the proposed design.
     """
     out = {}
     for name, d in proposals.items():
@@ -555,7 +554,19 @@ def recommended_scans(case, model, proposals: dict) -> dict:
         bank = next(b for b in case.bank if b.name == name)
         variant = _variant(case, bank, detuning_pct=rec["detuning_pct"], rated_kv=rec["rated_kv"],
                            steps_kvar=list(rec["steps_kvar"]), reactor_q=rec.get("reactor_q", bank.reactor_q))
-        sc = run_variant(variant, model).scans_for(name)
+        out[name] = (variant, run_variant(variant, model))
+    return out
+
+
+def recommended_scans(case, model, proposals: dict) -> dict:
+    """Bank name -> nominal :class:`~resonance.assessment.study.BankScan` of its recommended design.
+
+    The scan comes from the re-check that accepted the design (:func:`recommended_studies`), so
+    the side-by-side plot shows the very study the proposal was judged on.
+    """
+    out = {}
+    for name, (_variant_case, res) in recommended_studies(case, model, proposals).items():
+        sc = res.scans_for(name)
         if sc is not None:
             out[name] = sc
     return out

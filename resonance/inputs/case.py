@@ -365,6 +365,22 @@ class DemandLink(_Strict):
     min_time_between_ops_min: Num = Field(default=5.0, ge=0.0, le=1440.0)
 
 
+class Project(_Strict):
+    """Optional ``[project]``: the submittal's identity, printed on the report's cover and footers.
+
+    ``paper`` picks the report's page size; unset, it follows the case: ``letter`` for a 60 Hz
+    system (North American practice), ``a4`` for 50 Hz (ISO 216), and the report says which.
+    """
+
+    number: str = Field(default="", max_length=60)
+    revision: str = Field(default="", max_length=20)
+    prepared_by: str = Field(default="", max_length=80)
+    checked_by: str = Field(default="", max_length=80)
+    client: str = Field(default="", max_length=120)
+    site: str = Field(default="", max_length=120)
+    paper: Literal["letter", "a4"] | None = None
+
+
 class Case(_Strict):
     """A whole study case as read from one TOML file."""
 
@@ -381,10 +397,16 @@ class Case(_Strict):
     detuning: DetuningTable | None = None
     demand: DemandLink | None = None
     envelope: Envelope = Field(default_factory=Envelope)
+    project: Project = Field(default_factory=Project)
     #: path of the file the case came from (set by :func:`load_case`)
     source_file: str = ""
     #: directory that relative paths in the case are resolved against
     base_dir: str = ""
+
+    @property
+    def paper(self) -> str:
+        """Report paper size: ``project.paper``, else ``letter`` at 60 Hz and ``a4`` at 50 Hz."""
+        return self.project.paper or ("letter" if self.frequency_hz == 60 else "a4")
 
     @property
     def pcc_bus(self) -> str:

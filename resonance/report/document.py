@@ -38,7 +38,6 @@ the check's ``detuned_scans``:
 from __future__ import annotations
 
 import datetime as _dt
-import textwrap
 
 import matplotlib
 
@@ -46,20 +45,21 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 
 from resonance import __version__  # noqa: E402
 from resonance.report import figures as rf  # noqa: E402
-from resonance.report.layout import INK, M_BOTTOM, M_LEFT, M_RIGHT, PAGE_H, PAGE_W, TEXT_W, _Doc, _hline, _rect  # noqa: E402
+from resonance.report import proposed as rp  # noqa: E402
+from resonance.report.layout import GREY, M_BOTTOM, M_LEFT, M_RIGHT, _Doc  # noqa: E402
 from resonance.report.specs import _fig_specs, _FigSpec, _step_pages, file_jobs  # noqa: E402
-from resonance.report.tables import Column, Table, _fmt_any, _limits, _safe, report_tables  # noqa: E402
+from resonance.report.tables import (Column, Table, _fmt_any, _limits, _safe, limit_set_words,  # noqa: E402
+                                     report_tables)
 from resonance.report.text import NOT_EVALUATED, _methods, _verdict  # noqa: E402
 from resonance.report.results_json import CAUTION  # noqa: E402
 from resonance.report.switching_report import switching_table, switching_words  # noqa: E402
 from resonance.assessment.study import StudyResult  # noqa: E402
 
-__all__ = ["write_report", "Table", "Column", "report_tables", "NOT_EVALUATED", "SECTIONS"]
+__all__ = ["write_report", "layout_report", "Table", "Column", "report_tables", "NOT_EVALUATED", "SECTIONS"]
 
 #: section headings in report order (tests look for them)
-SECTIONS = ("Summary", "Input data", "Frequency scans", "Detuned bank compared with the plain bank",
-            "Harmonic voltage distortion", "Capacitor duty", "Switching", "Detuning recommendation",
-            "Methods and assumptions", "References")
+SECTIONS = ("Summary", "Network and input data", "Frequency scans", "Harmonic distortion", "Capacitor duty",
+            "Switching", "Proposed design", "Methods and assumptions", "References", "Appendix A")
 
 REFERENCES = (
     "IEEE Std 18-2002, IEEE Standard for Shunt Power Capacitors (continuous operating limits).",
@@ -84,11 +84,11 @@ def write_report(result, out, *, date: str | None = None) -> list[str]:
     result : CheckResult
         The check's typed result (:func:`resonance.pipeline.run_check`); the report reads
         nothing else (no pandapower model, no recomputation): its study, its ``data`` (the
-        results.json layout) and the scans of the recommended designs.
+        results.json layout), the re-checks of the recommended designs and the one-line data.
     out : OutputDir
         Output directory; files are staged with ``out.file(name)``.
     date : str, optional
-        Date printed on the cover (today, ISO format, when None) [unitless].
+        Date printed on the cover and in every footer (today, ISO format, when None) [unitless].
 
     Returns
     -------
@@ -97,240 +97,373 @@ def write_report(result, out, *, date: str | None = None) -> list[str]:
 
     Notes
     -----
-    The PDF carries no creation date and SVGs use a fixed id salt, so the same
-    input gives the same content apart from the cover date.  The PDF is written
-    first, then every stand-alone figure file, each drawn once on its own
-    figure and saved as PNG and SVG from it (all in this process: a forked pool
-    gained nothing measurable, see ``docs/performance.md``).
+    The PDF carries no creation date and SVGs use a fixed id salt, so the same input gives
+    the same content apart from the date.  The PDF is written first, then every stand-alone
+    figure file, each drawn once on its own figure (the whole-bank figures as PNG and SVG, the
+    per-step scans as PNG).
     """
     with matplotlib.rc_context(rf.RC):
-        return _write(result.study, result.data, dict(result.detuned_scans), out,
-                      date or _dt.date.today().isoformat())
+        book = _Book(result, date or _dt.date.today().isoformat())
+        doc = book.layout()
+        pdf_path = out.file("report.pdf")
+        jobs = file_jobs(result.study, book.specs, book.stamp)
+        paths = [tuple(out.file(n) for n in job.names) for job in jobs]
+        book.save(doc, pdf_path)
+        for job, p in zip(jobs, paths):
+            job.render(p)
+        for t in book.tables:
+            out.write_text(t.name, t.csv())
+    return ["report.pdf"] + [n for job in jobs for n in job.names] + [t.name for t in book.tables]
 
 
-def _cover(doc: _Doc, data: dict, date: str) -> float:
-    title = data["case"]["title"]
-    doc.new_page()
-    doc.y = 1.3
-    doc.text(M_LEFT, doc.y, "Capacitor bank harmonic screening study", fontsize=11, color="#6b7785")
-    doc.y += 0.3
-    for line in textwrap.wrap(title, 48):
-        doc.text(M_LEFT, doc.y, line, fontsize=19, weight="bold")
-        doc.y += 0.38
-    doc.y += 0.25
-    n_find = sum(1 for f in data.get("findings", []) if f.get("cause") != "site")
-    doc.kv([("Case file", str(data["case"].get("file") or "-")),
-            ("SHA-256", str(data["case"].get("sha256") or "-")),
-            ("Tool", f"{data['tool']['name']} {data['tool']['version']}"),
-            ("Date of report", date),
-            ("System frequency", f"{data['case']['frequency_hz']} Hz"),
-            ("Banks", ", ".join(f"{b['name']} ({b['bus']}, {sum(b['stages_kvar']):g} kvar)" for b in data["banks"])),
-            ("PCC", str(data.get("pcc_bus"))),
-            ("Screening result", "every check evaluated passes" if data.get("passed") else
-             f"{n_find} finding(s) beyond a limit - see the summary")],
-           mono_keys=("SHA-256",))
-    doc.y += 0.35
-    for label, y_off in (("Engineer:", 0.0), ("Signature:", 0.45)):
-        doc.text(M_LEFT, doc.y + y_off, label, fontsize=10, weight="bold")
-        doc.fig.add_artist(_hline(M_LEFT + 1.0, M_LEFT + 4.2, doc.y + y_off + 0.2, 0.6))
-    doc.text(M_LEFT + 4.5, doc.y, "Date:", fontsize=10, weight="bold")
-    doc.fig.add_artist(_hline(M_LEFT + 5.0, PAGE_W - M_RIGHT, doc.y + 0.2, 0.6))
-    doc.y += 1.0
-    box_top = doc.y
-    doc.y += 0.12
-    doc.para(CAUTION, size=9.5, weight="bold", indent=0.12)
-    doc.fig.add_artist(_rect(M_LEFT, box_top, TEXT_W, doc.y - box_top + 0.02, "#fbf1dc"))
-    doc.y += 0.35
-    return doc.y
+def write_scan_figures(result, out, *, date: str | None = None) -> list[str]:
+    """Stage only the whole-bank scan figures (``scan_<bank>*.png`` / ``.svg``), for a check
+    without the report; the same files the report writes.
+
+    Parameters
+    ----------
+    result : CheckResult
+        The check's typed result.
+    out : OutputDir
+        Output directory.
+    date : str, optional
+        Date in the figures' footers (today when None) [unitless].
+    """
+    from resonance.report.specs import _spec_job  # noqa: PLC0415
+
+    with matplotlib.rc_context(rf.RC):
+        book = _Book(result, date or _dt.date.today().isoformat(), tables=False)
+        names = []
+        for spec in book.specs["overlay"]:
+            job = _spec_job(spec, book.stamp)
+            job.render(tuple(out.file(n) for n in job.names))
+            names += job.names
+    return names
 
 
-def _summary_pages(doc: _Doc, res: StudyResult, data: dict, tbl: dict) -> None:
-    for b in data["banks"]:
-        lim = _limits(res, data, b)
+def layout_report(result, date: str = "2000-01-01") -> _Doc:
+    """Lay out every page of the report without writing it (the tests render and measure it).
+
+    Parameters
+    ----------
+    result : CheckResult
+        The check's typed result.
+    date : str
+        Date on the cover and in the footers [unitless].
+
+    Returns
+    -------
+    _Doc
+        The pages, the registered text boxes and figure regions (:meth:`_Doc.overflows`).
+    """
+    with matplotlib.rc_context(rf.RC):
+        book = _Book(result, date)
+        doc = book.layout()
+        book.decorate(doc)
+    return doc
+
+
+def project_lines(case) -> list[tuple[str, str]]:
+    """The ``[project]`` fields that are given, as (label, value) pairs for the cover."""
+    p = case.project
+    pairs = [("Client", p.client), ("Site", p.site), ("Project number", p.number), ("Revision", p.revision),
+             ("Prepared by", p.prepared_by), ("Checked by", p.checked_by)]
+    return [(k, v) for k, v in pairs if v]
+
+
+class _Book:
+    """One report: the result, its tables and figure specs, laid out section by section."""
+
+    def __init__(self, result, date: str, tables: bool = True):
+        self.result, self.date = result, date
+        self.res: StudyResult = result.study
+        self.data: dict = result.data
+        case = result.case
+        self.paper = case.paper
+        self.rechecks = dict(getattr(result, "rechecks", {}) or {})
+        tables = report_tables(self.res, self.data) if tables else []
+        tables += [t for t in (switching_table(b, self.data.get("findings", ())) for b in self.data["banks"])
+                   if t is not None and tables]
+        for name, rc in (self.rechecks.items() if tables else ()):
+            tables += rp.proposed_tables(rc, name)
+            bank = next((b for b in self.data["banks"] if b["name"] == name), None)
+            rec = ((bank or {}).get("detuning") or {}).get("recommended")
+            rt = rp.reactor_table(rec, name) if rec else None
+            if rt is not None:
+                tables.append(rt)
+        self.tables = tables
+        self.tbl = {t.name: t for t in tables}
+        self.specs = _fig_specs(self.res, self.data, dict(result.detuned_scans), self.rechecks,
+                                getattr(result, "one_line", None))
+        p = case.project
+        ident = " ".join(x for x in (p.number and f"Project {p.number}", p.revision and f"rev. {p.revision}") if x)
+        self.ident = ident
+        self.stamp = "  |  ".join(x for x in (case.title, ident, self.date, f"resonance {__version__}",
+                                              "screening aid, see the report's caution") if x)
+
+    # ------------------------------------------------------------------------------------
+    def layout(self) -> _Doc:
+        """Every page in report order (long on purpose: the sections in order, each a short block)."""
+        res, data, tbl, specs = self.res, self.data, self.tbl, self.specs
+        doc = _Doc(data["case"]["title"], self.paper, self.ident)
+        self.doc = doc
+
+        def place(spec: _FigSpec) -> None:
+            fig, rect = doc.region(spec.page_h)
+            spec.draw(fig, rect)
+
+        self.toc_y = self._cover(doc)
+        self.cover = doc.fig
         doc.new_page()
-        doc.heading(f"1 Summary - bank {b['name']}")
-        pairs = [("Bus", f"{b['bus']}, {b['bus_kv']:g} kV"),
-                 ("Capacitors", f"{len(b['stages_kvar'])} stages, {_fmt_any(b['stages_kvar'])} kvar at "
-                                f"{b['rated_kv']:g} kV ({sum(b['stages_kvar']):g} kvar)"),
-                 ("Detuning", f"p = {b['detuning_pct']:g} %, tuning order {b['tuning_order']:.2f}"
-                  if b.get("detuning_pct") else "none (plain bank)"),
-                 ("S_sc at the bus", f"{b['sc_mva']:.2f} MVA (IEC 60909: "
-                  + (f"{b['sc_mva_iec60909']:.2f} MVA" if b.get("sc_mva_iec60909") else "-") + "), X/R "
-                  + (f"{b['x_r_at_bus']:.2f}" if b.get("x_r_at_bus") else "-"))]
-        if b.get("weak_supply"):
-            pairs.append(("Weak supply", f"S_sc {b['weak_supply']['sc_mva']:.2f} MVA at the bus"))
-        doc.kv(pairs, size=8.5, key_w=1.35)
-        doc.y += 0.1
-        doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.0)
-        if b.get("weak_supply"):
-            doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.0)
-        for scen in (b.get("scenarios") or {}):
-            extra_t = tbl.get(f"table_summary_{_safe(b['name'])}_{scen}.csv")
-            if scen != "weak" and extra_t is not None:
-                doc.table(extra_t, size=7.0)
-        site = tbl.get(f"table_site_{_safe(b['name'])}.csv")
-        if site is not None:
-            doc.table(site, size=7.0)
-        doc.ensure(0.6)
-        doc.text(M_LEFT, doc.y, "Verdict", fontsize=9.5, weight="bold")
+        self._summary(doc)
+
+        doc.heading("2 Network and input data", keep=_first_h(specs["one_line"]))
+        for spec in specs["one_line"]:
+            place(spec)
+        doc.para(f"As read from {data['case'].get('file')}; units in brackets; bus voltages line-to-line.")
+        if res.case.network is not None:
+            doc.para(f"Network elements beyond the tables below come from the pandapower file "
+                     f"{res.case.network.pandapower_json}.")
+        for t in self.tables:
+            if t.name.startswith("table_input_") and t.rows:
+                doc.table(t)
+
+        doc.heading("3 Frequency scans", keep=_first_h(specs["overlay"]))
+        doc.para("Driving-point impedance magnitude at the bank bus against harmonic order. Shaded: the "
+                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern, which are the "
+                 "ticks of the h axis (red, solid line: injected or background order; grey, dashed: characteristic "
+                 "order only). Markers: resonance of each step (X: inside a band). Dotted: bank off. Steps differ "
+                 "by colour and line style. One plot per step: Appendix A.")
+        for spec in specs["overlay"]:
+            place(spec)
+
+        doc.heading("4 Harmonic distortion", keep=_first_h(specs["spectra"]))
+        if specs["spectra"]:
+            doc.para("Bars: harmonic value of the step with the highest distortion (red: beyond its limit); grey "
+                     "ticks: highest value over all steps; amber dashes or ticks: the IEEE 519 limit. Nominal supply; "
+                     "the other scenarios are in the step tables of the summary.")
+            for spec in specs["spectra"]:
+                place(spec)
+        else:
+            doc.para(f"Harmonic voltage spectra at the bank bus and the PCC: {NOT_EVALUATED}.")
+        for t in self.tables:
+            if t.name.startswith("table_spectrum_"):
+                doc.table(t, size=6.8)
+
+        doc.heading("5 Capacitor duty", keep=_first_h(specs["duty"]))
+        if specs["duty"]:
+            doc.para("Continuous duty of the capacitors per step against the limits named (amber dashes). Bars: "
+                     "nominal supply; markers: the other scenarios of the operating envelope, filled red where "
+                     "beyond a limit, so a limit that is exceeded only in one scenario shows here.")
+            for spec in specs["duty"]:
+                place(spec)
+        else:
+            doc.para(f"Capacitor duty (rms and crest voltage, rms current, reactive power): {NOT_EVALUATED}.")
+
+        doc.heading("6 Switching", keep=1.2)
+        doc.para("Inrush current of every step on switching in, its frequency, the voltage step at the bus and the "
+                 "transient voltage on the capacitors, against the switching device's and the capacitor units' "
+                 "limits (sources in the table notes); red: beyond a limit.")
+        for b in data["banks"]:
+            t = tbl.get(f"table_switching_{_safe(b['name'])}.csv")
+            if t is not None:
+                doc.table(t, size=6.8)
+            doc.bullets(switching_words(res, b), size=8.0)
+            for spec in specs["switching"]:
+                if spec.bank == b["name"]:
+                    place(spec)
+
+        self._proposed(doc, place)
+
+        doc.heading("8 Methods and assumptions")
+        meth, mem = _methods(res, data)
+        doc.bullets(meth, size=8.0)
+        doc.subheading("Taken from memory or common practice (verify against the documents)")
+        doc.bullets(mem, size=8.0)
+        doc.heading("9 References")
+        doc.bullets(REFERENCES, size=8.0)
+
+        first = True
+        for sc in res.scans:
+            if sc.scenario != "nominal":
+                continue
+            _step_pages(doc, res, sc, res.scans_for(sc.bank.name, "weak"),
+                        "Appendix A  Frequency scan of each step" if first else "")
+            first = False
+        self._contents(doc)
+        return doc
+
+    # ------------------------------------------------------------------------------------
+    def _cover(self, doc: _Doc) -> float:
+        data, case = self.data, self.result.case
+        doc.new_page()
+        doc.y = 1.2
+        doc.text(M_LEFT, doc.y, "Capacitor bank harmonic screening study", fontsize=11, color=GREY)
+        doc.y += 0.3
+        for line in doc.meter.wrap(data["case"]["title"], doc.tw, 18, "bold"):
+            doc.text(M_LEFT, doc.y, line, fontsize=18, weight="bold")
+            doc.y += 0.34
         doc.y += 0.2
-        doc.bullets(_verdict(b, data, lim), size=8.0)
-        tis = b.get("time_in_step")
-        if tis:
-            doc.ensure(0.6)
-            doc.text(M_LEFT, doc.y, "Time in each step (metered demand)", fontsize=9.5, weight="bold")
-            doc.y += 0.2
-            shares = ", ".join(f"step {k}: {100 * f:.1f} %" for k, f in enumerate(tis["fraction"]) if f > 0)
-            doc.bullets([
-                f"Stage controller replayed against {tis['source']} ({tis['total_hours']:.0f} h of intervals, "
-                f"target PF in the [demand] table): achieved period PF {tis['pf_achieved_period']:.3f}, "
-                f"{tis['switching_ops_per_day']:g} switching operations per day.",
-                f"Time in service: {shares}.",
-                f"The plant spends {tis['time_with_findings_pct']:.1f} % of the time on steps with findings "
-                "(nominal supply)."], size=8.0)
-        notes = [w for w in data.get("warnings", []) if f"bank {b['name']} " in w]
-        if notes:
-            doc.ensure(0.5)
-            doc.text(M_LEFT, doc.y, "Notes", fontsize=9, weight="bold")
-            doc.y += 0.2
-            doc.bullets(notes, size=7.2)
-    other = [w for w in data.get("warnings", []) if not any(f"bank {b['name']} " in w for b in data["banks"])]
-    if other:
-        doc.bullets(other, size=7.2)
+        doc.kv(project_lines(case) + [("Date of report", self.date)], size=9.5, key_w=1.5)
+        doc.y += 0.12
+        n_find = sum(1 for f in data.get("findings", []) if f.get("cause") != "site")
+        paper_note = ("as the [project] table sets it" if case.project.paper else
+                      f"following the case's {case.frequency_hz} Hz system; set [project] paper to change it")
+        doc.kv([("Case file", str(data["case"].get("file") or "-")),
+                ("SHA-256", str(data["case"].get("sha256") or "-")),
+                ("Tool", f"{data['tool']['name']} {data['tool']['version']}"),
+                ("System frequency", f"{data['case']['frequency_hz']} Hz"),
+                ("Paper", f"{'US letter' if self.paper == 'letter' else 'A4'} ({paper_note})"),
+                ("Banks", ", ".join(f"{b['name']} ({b['bus']}, {sum(b['stages_kvar']):g} kvar)" for b in data["banks"])),
+                ("PCC", str(data.get("pcc_bus"))),
+                ("Duty limits", limit_set_words(data["settings"].get("duty_limits"))),
+                ("Screening result", "every check evaluated passes" if data.get("passed") else
+                 f"{n_find} finding(s) of the bank's beyond a limit - see the summary")],
+               size=8.5, key_w=1.5, mono_keys=("SHA-256",))
+        doc.y += 0.3
+        x2 = M_LEFT + doc.tw / 2 + 0.1
+        for row, (label, who) in enumerate((("Prepared by:", case.project.prepared_by),
+                                            ("Checked by:", case.project.checked_by))):
+            y = doc.y + row * 0.42
+            doc.text(M_LEFT, y, label, fontsize=9.5, weight="bold")
+            if who:
+                doc.text(M_LEFT + 1.05, y, who, fontsize=9.5)
+            doc.hline(M_LEFT + 1.0, x2 - 0.3, y + 0.2, 0.6)
+            doc.text(x2, y, "Signature / date:", fontsize=9.5, weight="bold")
+            doc.hline(x2 + 1.35, doc.pw - M_RIGHT, y + 0.2, 0.6)
+        doc.y += 0.95
+        box_top = doc.y
+        doc.y += 0.1
+        doc.para(CAUTION, size=9.5, weight="bold", indent=0.12, width=doc.tw - 0.12)
+        doc.rect(M_LEFT, box_top, doc.tw, doc.y - box_top + 0.04, "#fbf1dc", edge="#c9a45c")
+        doc.y += 0.3
+        return doc.y
+
+    def _contents(self, doc: _Doc) -> None:
+        y = self.toc_y
+        fig = self.cover
+        doc.text(M_LEFT, y, "Contents", fig=fig, fontsize=10, weight="bold")
+        y += 0.24
+        for head, page in doc.toc:
+            if y > doc.ph - M_BOTTOM - 0.2:
+                break
+            doc.text(M_LEFT + 0.1, y, doc.meter.wrap(head, doc.tw - 0.8, 8.5)[0], fig=fig, fontsize=8.5)
+            doc.text(doc.pw - M_RIGHT, y, str(page), fig=fig, fontsize=8.5, ha="right")
+            y += 0.18
+
+    def _summary(self, doc: _Doc) -> None:
+        res, data, tbl = self.res, self.data, self.tbl
+        for b in data["banks"]:
+            lim = _limits(res, data, b)
+            doc.heading(f"1 Summary - bank {b['name']}", keep=2.0)
+            pairs = [("Bus", f"{b['bus']}, {b['bus_kv']:g} kV"),
+                     ("Capacitors", f"{len(b['stages_kvar'])} stages, {_fmt_any(b['stages_kvar'])} kvar at "
+                                    f"{b['rated_kv']:g} kV ({sum(b['stages_kvar']):g} kvar)"),
+                     ("Detuning", f"p = {b['detuning_pct']:g} %, tuning order {b['tuning_order']:.2f}"
+                      if b.get("detuning_pct") else "none (plain bank)"),
+                     ("S_sc at the bus", f"{b['sc_mva']:.2f} MVA (IEC 60909: "
+                      + (f"{b['sc_mva_iec60909']:.2f} MVA" if b.get("sc_mva_iec60909") else "-") + "), X/R "
+                      + (f"{b['x_r_at_bus']:.2f}" if b.get("x_r_at_bus") else "-"))]
+            if b.get("weak_supply"):
+                pairs.append(("Weak supply", f"S_sc {b['weak_supply']['sc_mva']:.2f} MVA at the bus"))
+            doc.kv(pairs, size=8.5, key_w=1.35)
+            doc.y += 0.05
+            doc.subheading("Verdict", keep=0.5)
+            doc.bullets(_verdict(b, data, lim), size=8.0)
+            doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.0)
+            if b.get("weak_supply"):
+                doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.0)
+            for scen in (b.get("scenarios") or {}):
+                extra_t = tbl.get(f"table_summary_{_safe(b['name'])}_{scen}.csv")
+                if scen != "weak" and extra_t is not None:
+                    doc.table(extra_t, size=7.0)
+            site = tbl.get(f"table_site_{_safe(b['name'])}.csv")
+            if site is not None:
+                doc.table(site, size=7.0)
+            tis = b.get("time_in_step")
+            if tis:
+                doc.subheading("Time in each step (metered demand)")
+                shares = ", ".join(f"step {k}: {100 * f:.1f} %" for k, f in enumerate(tis["fraction"]) if f > 0)
+                doc.bullets([
+                    f"Stage controller replayed against {tis['source']} ({tis['total_hours']:.0f} h of intervals, "
+                    f"target PF in the [demand] table): achieved period PF {tis['pf_achieved_period']:.3f}, "
+                    f"{tis['switching_ops_per_day']:g} switching operations per day.",
+                    f"Time in service: {shares}.",
+                    f"The plant spends {tis['time_with_findings_pct']:.1f} % of the time on steps with findings "
+                    "(nominal supply)."], size=8.0)
+            notes = [w for w in data.get("warnings", []) if f"bank {b['name']} " in w]
+            if notes:
+                doc.subheading("Notes", size=9)
+                doc.bullets(notes, size=7.2)
+        other = [w for w in data.get("warnings", []) if not any(f"bank {b['name']} " in w for b in data["banks"])]
+        if other:
+            doc.bullets(other, size=7.2)
+
+    def _proposed(self, doc: _Doc, place) -> None:
+        """Section 7: the proposed design, its proof from its own re-check, the candidates."""
+        data, specs, tbl = self.data, self.specs, self.tbl
+        doc.heading("7 Proposed design", keep=1.0)
+        any_rec = False
+        for b in data["banks"]:
+            name = b["name"]
+            det = (b.get("detuning") or {})
+            rec = det.get("recommended")
+            rc = self.rechecks.get(name)
+            t_rec = tbl.get(f"table_detuning_recommended_{_safe(name)}.csv")
+            if rec and rc is not None:
+                any_rec = True
+                verdict = ("passes every check of the bank in every scenario" if not rc.bank_findings else
+                           f"leaves {len(rc.bank_findings)} finding(s) of the bank's")
+                doc.para(f"Bank {name}: a detuned bank with tuning order n = {rec['tuning_order']:.2f} "
+                         f"(p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV, stages "
+                         f"{_fmt_any(rec['steps_kvar'])} kvar at rated voltage. The proposal was re-checked by the "
+                         f"same assessment as the plain bank: it {verdict}. The tables and figures below are that "
+                         "re-check (the numbers 'resonance check' gives for recommended_case.toml).", size=8.5)
+                if t_rec is not None:
+                    doc.table(t_rec, size=7.0)
+                for t in self.tables:
+                    if t.name.startswith(f"table_proposed_{_safe(name)}") and t.name != \
+                            f"table_proposed_reactor_{_safe(name)}.csv":
+                        doc.table(t, size=7.0)
+                for spec in specs["compare"] + specs["proposed"] + specs["band"]:
+                    if spec.bank == name:
+                        place(spec)
+                rt = tbl.get(f"table_proposed_reactor_{_safe(name)}.csv")
+                if rt is not None:
+                    doc.table(rt, size=7.0)
+            elif det:
+                doc.para(f"Bank {name}: no detuned design is proposed. {det.get('reason') or det.get('status') or ''}",
+                         size=8.5)
+            t_c = tbl.get(f"table_detuning_candidates_{_safe(name)}.csv")
+            if t_c is not None:
+                doc.table(t_c, size=6.8)
+        if not any_rec and not any((b.get("detuning") or {}) for b in data["banks"]):
+            doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
+
+    # ------------------------------------------------------------------------------------
+    def decorate(self, doc: _Doc) -> None:
+        """Header, footer and caution on every page (also done by :meth:`save`)."""
+        for i, (fig, _u) in enumerate(doc.pages, start=1):
+            if not getattr(fig, "_decorated", False):
+                doc.decorate(fig, i, self.footer_left(), self.footer_right(), CAUTION)
+                fig._decorated = True
+
+    def footer_left(self) -> str:
+        sha = str(self.data["case"].get("sha256") or "")
+        return f"{self.data['case'].get('file')}  sha256 {sha[:12]}  |  {self.date}"
+
+    def footer_right(self) -> str:
+        p = self.result.case.project
+        who = ", ".join(x for x in (p.prepared_by and f"prepared {p.prepared_by}",
+                                    p.checked_by and f"checked {p.checked_by}") if x)
+        return who
+
+    def save(self, doc: _Doc, path) -> None:
+        title = self.data["case"]["title"]
+        with PdfPages(path, metadata={"CreationDate": None, "Creator": f"resonance {__version__}",
+                                      "Producer": None, "Title": title}) as pdf:
+            doc.save(pdf, self.footer_left(), self.footer_right(), CAUTION)
 
 
 def _first_h(specs: list) -> float:
     return specs[0].page_h + 0.5 if specs else 0.0
-
-
-def _write(res: StudyResult, data: dict, detuned: dict, out, date: str) -> list[str]:
-    tables = report_tables(res, data)
-    tables += [t for t in (switching_table(b, data.get("findings", ())) for b in data["banks"]) if t is not None]
-    specs = _fig_specs(res, data, detuned)
-    jobs = file_jobs(res, specs)
-    pdf_path = out.file("report.pdf")
-    paths = [tuple(out.file(n) for n in job.names) for job in jobs]
-    _pdf(res, data, tables, specs, date, pdf_path)
-    for job, p in zip(jobs, paths):
-        job.render(p)
-    for t in tables:
-        out.write_text(t.name, t.csv())
-    return ["report.pdf"] + [n for job in jobs for n in job.names] + [t.name for t in tables]
-
-
-def _pdf(res: StudyResult, data: dict, tables: list, specs: dict, date: str, path) -> None:
-    """Lay out every page and write the PDF to ``path`` (long on purpose: the sections in
-    report order, each a short block)."""
-    title = data["case"]["title"]
-    doc = _Doc(title)
-    tbl = {t.name: t for t in tables}
-
-    def place(spec: _FigSpec) -> None:
-        fig, rect = doc.region(spec.page_h)
-        spec.draw(fig, rect)
-
-    toc_y = _cover(doc, data, date)
-    cover = doc.fig
-    _summary_pages(doc, res, data, tbl)
-
-    doc.new_page()
-    doc.heading("2 Input data")
-    doc.para(f"As read from {data['case'].get('file')}; units in brackets; bus voltages line-to-line.")
-    if res.case.network is not None:
-        doc.para(f"Network elements beyond the tables below come from the pandapower file "
-                 f"{res.case.network.pandapower_json}.")
-    for t in tables:
-        if t.name.startswith("table_input_"):
-            doc.table(t)
-
-    for sc in res.scans:
-        if sc.scenario != "nominal":
-            continue
-        weak = res.scans_for(sc.bank.name, "weak")
-        doc.new_page()
-        doc.heading(f"3 Frequency scans - bank {sc.bank.name}")
-        doc.para("Driving-point impedance magnitude at the bank bus against harmonic order. Shaded: the "
-                 f"+-{res.case.study.margin_pct:g} % screening band around each order of concern, which are the "
-                 "ticks of the h axis (red, solid line: injected or background order; grey, dashed: characteristic "
-                 "order only). Markers: resonance of each step (X: inside a band). Dotted: bank off.")
-        for spec in specs["overlay"]:
-            if spec.bank == sc.bank.name:
-                place(spec)
-        _step_pages(doc, res, sc, weak)
-
-    doc.heading("4 Detuned bank compared with the plain bank", keep=_first_h(specs["compare"]))
-    if specs["compare"]:
-        for spec in specs["compare"]:
-            place(spec)
-    else:
-        doc.para(f"Scan of a detuned candidate beside the plain bank: {NOT_EVALUATED}.")
-
-    doc.heading("5 Harmonic voltage distortion", keep=_first_h(specs["spectra"]))
-    if specs["spectra"]:
-        doc.para("Bars: harmonic value of the step with the highest distortion; grey ticks: highest value over all "
-                 "steps; red dashes: the IEEE 519 limit (red bars exceed it). Nominal supply.")
-        for spec in specs["spectra"]:
-            place(spec)
-    else:
-        doc.para(f"Harmonic voltage spectra at the bank bus and the PCC: {NOT_EVALUATED}.")
-    for t in tables:
-        if t.name.startswith("table_spectrum_"):
-            doc.table(t, size=6.8)
-
-    doc.heading("6 Capacitor duty", keep=_first_h(specs["duty"]))
-    if specs["duty"]:
-        doc.para("Continuous duty of the capacitors per step, nominal supply, against the limits named "
-                 "(dashed); red bars exceed a limit.")
-        for spec in specs["duty"]:
-            place(spec)
-    else:
-        doc.para(f"Capacitor duty (rms and crest voltage, rms current, reactive power): {NOT_EVALUATED}.")
-
-    doc.heading("7 Switching", keep=1.2)
-    doc.para("Inrush current of every step on switching in, its frequency, the voltage step at the bus and the "
-             "transient voltage on the capacitors, against the switching device's and the capacitor units' limits "
-             "(sources in the table notes); red: beyond a limit.")
-    for b in data["banks"]:
-        t = tbl.get(f"table_switching_{_safe(b['name'])}.csv")
-        if t is not None:
-            doc.table(t, size=6.8)
-        doc.bullets(switching_words(res, b), size=8.0)
-        for spec in specs["switching"]:
-            if spec.bank == b["name"]:
-                place(spec)
-
-    doc.heading("8 Detuning recommendation", keep=_first_h(specs["band"]))
-    det_tables = [t for t in tables if t.name.startswith("table_detuning_")]
-    if specs["band"] or det_tables:
-        for spec in specs["band"]:
-            place(spec)
-        for t in det_tables:
-            doc.table(t)
-    else:
-        doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
-
-    doc.heading("9 Methods and assumptions")
-    meth, mem = _methods(res, data)
-    doc.bullets(meth)
-    doc.ensure(0.6)
-    doc.text(M_LEFT, doc.y, "Taken from memory or common practice (verify against the documents)", fontsize=9.5,
-             weight="bold")
-    doc.y += 0.22
-    doc.bullets(mem)
-    doc.heading("10 References")
-    doc.bullets(REFERENCES)
-
-    # contents on the cover (page numbers are known now)
-    y = toc_y
-    cover.text(M_LEFT / PAGE_W, 1 - y / PAGE_H, "Contents", fontsize=10, weight="bold", color=INK, va="top")
-    y += 0.25
-    for head, page in doc.toc:
-        if y > PAGE_H - M_BOTTOM - 0.2:
-            break
-        cover.text((M_LEFT + 0.1) / PAGE_W, 1 - y / PAGE_H, head, fontsize=8.5, color=INK, va="top")
-        cover.text(1 - M_RIGHT / PAGE_W, 1 - y / PAGE_H, str(page), fontsize=8.5, color=INK, va="top", ha="right")
-        y += 0.19
-    sha = str(data["case"].get("sha256") or "")
-    with PdfPages(path, metadata={"CreationDate": None, "Creator": f"resonance {__version__}",
-                                                   "Producer": None, "Title": title}) as pdf:
-        doc.save(pdf, f"{data['case'].get('file')}  sha256 {sha[:12]}  -  screening aid; see the caution on page 1")

@@ -73,6 +73,38 @@ def ordinal(n: int) -> str:
     return f"{n}{suf}"
 
 
+#: line styles cycled over the steps, so curves stay apart in grey print
+STEP_DASHES = ("-", (0, (5, 1.5)), (0, (3, 1, 1, 1)), (0, (1.2, 1.2)))
+
+
+def step_style(k: int, n: int) -> dict:
+    """Line keywords of step ``k`` of ``n``: colour, line style and, for the pale end of the map,
+    a dark edge (a stroke behind the line) so it reads on white paper and in grey."""
+    import matplotlib.colors as mcolors  # noqa: PLC0415
+    from matplotlib import patheffects as pe  # noqa: PLC0415
+
+    col = step_color(k, n)
+    r, g, b = mcolors.to_rgb(col)
+    kw = {"color": col, "ls": STEP_DASHES[(k - 1) % len(STEP_DASHES)]}
+    if 0.2126 * r + 0.7152 * g + 0.0722 * b > 0.55:  # relative luminance (ITU-R BT.709 weights)
+        kw["path_effects"] = [pe.Stroke(linewidth=2.3, foreground=STYLE["ink"], alpha=0.75), pe.Normal()]
+    return kw
+
+
+def plain_numbers(ax) -> None:
+    """Plain decimal tick labels on linear axes (no offset, no powers of ten) [unitless]."""
+    from matplotlib.ticker import ScalarFormatter  # noqa: PLC0415
+
+    for axis in (ax.xaxis, ax.yaxis):
+        if axis.get_scale() == "linear":
+            f = ScalarFormatter(useOffset=False)
+            f.set_scientific(False)
+            axis.set_major_formatter(f)
+        elif axis.get_scale() == "log":
+            axis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+            axis.set_minor_formatter(NullFormatter())
+
+
 def step_color(k: int, n: int):
     """Colour of step ``k`` of ``n`` on the sequential step map."""
     import matplotlib as mpl  # noqa: PLC0415
@@ -142,9 +174,10 @@ def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
     n = len(sc.steps)
     ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
     for st in sc.steps:
-        col = step_color(st.step, n)
+        sty = step_style(st.step, n)
+        col = sty["color"]
         lab = f"step {st.step}: {st.kvar_nameplate:g} kvar" + (f", h {st.h_scan:.2f}" if st.h_scan else "")
-        ax.semilogy(sc.h, sc.z_ohm[st.step], color=col, lw=1.1, label=lab)
+        ax.semilogy(sc.h, sc.z_ohm[st.step], lw=1.1, label=lab, **sty)
         if st.h_scan is not None:
             ax.plot([st.h_scan], [st.z_peak_ohm], ls="none", marker="v" if st.resonance_ok else "X", ms=5,
                     color=col if st.resonance_ok else STYLE["injected"], mec=STYLE["ink"], mew=0.4, zorder=5)
@@ -196,7 +229,7 @@ class StepScanPlot:
         (self.l_nom,) = ax.semilogy(sc.h, sc.z_ohm[1], lw=1.5, label="nominal supply")
         self.l_weak = None
         if weak is not None:
-            (self.l_weak,) = ax.semilogy(weak.h, weak.z_ohm[1], lw=1.0, ls="--", label="weak supply")
+            (self.l_weak,) = ax.semilogy(weak.h, weak.z_ohm[1], lw=1.2, ls=(0, (4, 2)), label="weak supply")
         self.v_est = ax.axvline(1.0, color=STYLE["ink"], lw=0.6, ls=(0, (1, 2)), zorder=2)
         self.t_est = ax.annotate("", (1.0, 0.02), xycoords=("data", "axes fraction"), xytext=(2, 0),
                                  textcoords="offset points", rotation=90, fontsize=6, color=STYLE["ink"],
@@ -220,19 +253,24 @@ class StepScanPlot:
         sc, weak, ax = self.sc, self.weak, self.ax
         st = sc.steps[k - 1]
         st_w = weak.steps[k - 1] if weak is not None and k <= len(weak.steps) else None
-        col = step_color(k, len(sc.steps))
+        sty = step_style(k, len(sc.steps))
+        col = sty["color"]
         self.l_nom.set_ydata(sc.z_ohm[k])
         self.l_nom.set_color(col)
+        self.l_nom.set_path_effects(sty.get("path_effects", []))
         curves = [sc.z_ohm[0], sc.z_ohm[k]]
         if self.l_weak is not None:
             self.l_weak.set_visible(st_w is not None)
             if st_w is not None:
                 self.l_weak.set_ydata(weak.z_ohm[k])
                 self.l_weak.set_color(col)
+                self.l_weak.set_path_effects(sty.get("path_effects", []))
                 curves.append(weak.z_ohm[k])
         self.legend.get_lines()[1].set_color(col)
+        self.legend.get_lines()[1].set_path_effects(sty.get("path_effects", []))
         if self.l_weak is not None:
             self.legend.get_lines()[2].set_color(col)
+            self.legend.get_lines()[2].set_path_effects(sty.get("path_effects", []))
         self.v_est.set_xdata([st.h_estimate, st.h_estimate])
         self.t_est.xy = (st.h_estimate, 0.02)
         self.t_est.set_text(f"h_est {st.h_estimate:.2f}")
@@ -319,6 +357,12 @@ def draw_scan_compare(ax, res: StudyResult, plain: BankScan, detuned: BankScan, 
     ax.legend(frameon=False, loc="upper right")
 
 
+def _LIMIT_EDGE():  # noqa: N802 - a constant made on demand (patheffects import is lazy)
+    from matplotlib import patheffects as pe  # noqa: PLC0415
+
+    return [pe.Stroke(linewidth=3.4, foreground=STYLE["ink"]), pe.Normal()]
+
+
 def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str,
                   ylabel: str = "V_h [% of nominal]") -> None:
     """Harmonic voltage (or current) per order as bars against the individual limit.
@@ -357,9 +401,11 @@ def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str
         ax.plot(h, np.asarray(env_pct, float), ls="none", marker="_", ms=9, mew=1.4, color=STYLE["characteristic"],
                 label="highest of all steps")
     if limit_pct is not None and np.ndim(limit_pct) == 0:
-        ax.axhline(float(limit_pct), color=STYLE["injected"], lw=1.0, ls="--", label=limit_label)
+        ax.axhline(float(limit_pct), color=STYLE["limit"], lw=1.4, ls=(0, (5, 2)), zorder=4, label=limit_label,
+                   path_effects=_LIMIT_EDGE())
     elif np.any(np.isfinite(lim)):
-        ax.plot(h, lim, ls="none", marker="_", ms=12, mew=1.6, color=STYLE["injected"], label=limit_label)
+        ax.plot(h, lim, ls="none", marker="_", ms=15, mew=2.4, color=STYLE["limit"], zorder=4, label=limit_label,
+                path_effects=_LIMIT_EDGE())
     ax.set_xlim(0.5, max(float(h.max()) + 1.5, 15.0) if h.size else 15.0)
     vals = np.concatenate([v, lim, np.asarray(env_pct if env_pct is not None else [], float)])
     top = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else 0.0
@@ -369,6 +415,7 @@ def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str
     ax.set_ylabel(ylabel, color=STYLE["ink"])
     ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=8.5)
     ax.legend(frameon=False, loc="upper right")
+    plain_numbers(ax)
 
 
 #: (per-step key, panel title) of the four duty quantities in IEEE Std 18 order
@@ -376,7 +423,11 @@ DUTY_PANELS = (("v_rms", "rms voltage [% of rated]"), ("v_peak", "crest voltage 
                ("i_rms", "rms current [% of nominal]"), ("kvar", "reactive power [% of rated kvar]"))
 
 
-def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str) -> None:
+#: marker of each scenario other than the nominal one in the duty chart
+SCENARIO_MARKERS = {"weak": "v", "high_voltage_light_load": "^", "weak_light_load": "D"}
+
+
+def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str, others: dict | None = None) -> None:
     """Capacitor duty per step as bars against its limit, one panel per quantity.
 
     Parameters
@@ -386,27 +437,50 @@ def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str) -> N
     steps : array_like of int
         Step numbers [unitless].
     values : dict
-        Quantity -> per-step values (None where absent) [% of rating].
+        Quantity -> per-step values of the nominal scenario (None where absent) [% of rating].
     limits_pct : dict
         Quantity -> limit [% of rating].
     limit_name : str
         Name of the limit set for the legend [unitless].
+    others : dict, optional
+        Scenario name -> (words, quantity -> per-step values) of the other scenarios, drawn as
+        markers over the bars (filled red where beyond the limit) [% of rating].
     """
     x = np.asarray(steps, int)
-    for ax, (q, ttl) in zip(axes, DUTY_PANELS):
+    others = others or {}
+    for i, (ax, (q, ttl)) in enumerate(zip(axes, DUTY_PANELS)):
         _style_axes(ax)
         v = np.array([np.nan if a is None else float(a) for a in values.get(q, [None] * x.size)])
         lim = limits_pct.get(q)
         bad = (v > lim) if lim is not None else np.zeros(v.shape, bool)
-        ax.bar(x, np.nan_to_num(v), width=0.65, color=np.where(bad, STYLE["injected"], STYLE["ink"]))
+        ax.bar(x, np.nan_to_num(v), width=0.65, color=np.where(bad, STYLE["injected"], STYLE["ink"]),
+               label="nominal supply (bars)")
+        tops = [v]
+        for name, (words, vals) in others.items():
+            o = np.array([np.nan if a is None else float(a) for a in vals.get(q, [None] * x.size)][:x.size])
+            if o.size < x.size:
+                o = np.append(o, np.full(x.size - o.size, np.nan))
+            tops.append(o)
+            ob = (o > lim) if lim is not None else np.zeros(o.shape, bool)
+            mk = SCENARIO_MARKERS.get(name, "o")
+            ax.plot(x, o, ls="none", marker=mk, ms=4.5, mfc="white", mec=STYLE["ink"], mew=0.8, zorder=5,
+                    label=words)
+            if ob.any():
+                ax.plot(x[ob], o[ob], ls="none", marker=mk, ms=4.5, mfc=STYLE["injected"], mec=STYLE["ink"],
+                        mew=0.8, zorder=6)
         if lim is not None:
-            ax.axhline(lim, color=STYLE["injected"], lw=1.0, ls="--", label=f"limit {lim:g} % ({limit_name})")
-            ax.legend(frameon=False, loc="upper left", borderaxespad=0.2)
-        top = np.nanmax(np.append(v, lim if lim is not None else 0.0))
-        ax.set_ylim(0.0, 1.4 * top if np.isfinite(top) and top > 0 else 1.0)
+            ax.axhline(lim, color=STYLE["limit"], lw=1.4, ls=(0, (5, 2)), zorder=4, path_effects=_LIMIT_EDGE(),
+                       label=f"limit ({limit_name})")
+        if i == 0 or lim is not None:
+            ax.legend(frameon=False, loc="upper left", borderaxespad=0.2, fontsize=5.8, ncols=2,
+                      handlelength=1.6, columnspacing=0.8)
+        top = np.nanmax(np.concatenate(tops + [np.asarray([lim if lim is not None else 0.0])]))
+        ax.set_ylim(0.0, 1.55 * top if np.isfinite(top) and top > 0 else 1.0)
         ax.set_xticks(x)
         ax.set_xlabel("step [-]", color=STYLE["ink"])
-        ax.set_title(ttl, color=STYLE["ink"], loc="left", fontsize=8)
+        ax.set_title(ttl + (f", limit {lim:g} %" if lim is not None else ""), color=STYLE["ink"], loc="left",
+                     fontsize=8)
+        plain_numbers(ax)
 
 
 def draw_detuning_band(ax, n_tuned: float, p: float, band: tuple, band_label: str, h_parallel, steps,

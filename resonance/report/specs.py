@@ -17,14 +17,18 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from resonance.report import figures as rf
-from resonance.report.layout import INK, M_LEFT, M_TOP, PAGE_H, PAGE_W, TEXT_W, _Doc
+from resonance.report.layout import INK, M_LEFT, M_TOP, _Doc
 from resonance.report.tables import (DUTY_KEYS, _detuning, _get, _has_duty, _limits, _Limits, _num,
-                            _safe, _spectrum, _thd_bus, _thd_pcc)
+                            _safe, _spectrum, _thd_bus, _thd_pcc, limit_set_words)
+from resonance.report import proposed as rp
 from resonance.assessment.envelope import scenario_words
 from resonance.assessment.study import BankScan, StudyResult
 from resonance.report.switching_report import SWITCH_FIG_SIZE, draw_switching
 
-__all__ = ["FileJob", "file_jobs", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE"]
+__all__ = ["FileJob", "file_jobs", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE", "FOOTER_H"]
+
+#: height of the footer strip under every stand-alone figure (title, case, revision, date) [in]
+FOOTER_H = 0.24
 
 
 @dataclass(frozen=True)
@@ -92,9 +96,67 @@ def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
     return out
 
 
-def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dict[str, list]:
+def _duty_others(bank: dict) -> dict:
+    """Scenario -> (words, quantity -> per-step duty values) of every scenario but the nominal one."""
+    out = {}
+    for scen, body in (bank.get("scenarios") or {}).items():
+        st = body.get("steps") or []
+        if st:
+            out[scen] = (scenario_words(scen), {q: [_num(x.get(k)) for x in st] for q, k in DUTY_KEYS.items()})
+    return out
+
+
+def _duty_spec(name: str, bank: dict, lim: _Limits, title_bank: str) -> _FigSpec:
+    steps = bank["steps"]
+    vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
+    nums = [x["step"] for x in steps]
+    others = _duty_others(bank)
+    return _FigSpec(name, (7.4, 5.2),
+                    lambda fig, r, v=vals, n=nums, lm=lim, o=others: rf.draw_duty(
+                        _grid(fig, r, 2, 2), n, v, lm.duty, limit_set_words(lm.duty_name), o), 5.2, title_bank)
+
+
+def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | None, bank: dict) -> list[_FigSpec]:
+    """Figures of the proposed design of bank ``name``: every step's scan, its duty in every
+    scenario and its reactors, all from the re-check that accepted it (``bank``: the check's own
+    entry of the bank, which holds the proposal)."""
+    out = []
+    s = _safe(name)
+    pb = rp.proposed_bank(recheck, name)
+    if det is not None:
+        out.append(_FigSpec(
+            f"scan_{s}_proposed", (8.2, 4.0),
+            lambda fig, r, d=det, rr=recheck.study: rf.draw_scan_all(
+                _axes(fig, r, LEGEND_PAD), rr, d, f"Proposed design of bank {name}: all steps, nominal supply"),
+            4.0, name))
+    if pb is not None and _has_duty(pb):
+        out.append(_duty_spec(f"fig_duty_{s}_proposed", pb, _limits(recheck.study, recheck.data, pb), name))
+    rec, _c = _detuning(bank)
+    rows = rp.reactor_rows(rec) if rec else ()
+    if rows:
+        out.append(_FigSpec(f"fig_reactor_{s}_proposed", rp.REACTOR_FIG_SIZE,
+                            lambda fig, r, rows=rows: rp.draw_reactor(
+                                _axes(fig, r, (0.72, 0.25, 0.5, 0.42)), rows,
+                                f"Proposed design of bank {name}: detuning reactor of each stage"),
+                            rp.REACTOR_FIG_SIZE[1], name))
+    return out
+
+
+def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechecks: dict | None = None,
+               one_line=None) -> dict[str, list]:
     """Figure specs per report section (the per-step plots are handled apart, see :func:`_step_pages`)."""
-    specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": [], "switching": []}
+    specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": [], "switching": [],
+                              "proposed": [], "one_line": []}
+    try:
+        from resonance.report.one_line import draw_one_line, one_line_size  # noqa: PLC0415
+    except ImportError:  # TEMP until the one-line module lands
+        one_line = None
+    if one_line is not None:
+        w = 7.2
+        h = min(one_line_size(one_line, w), 8.0)
+        specs["one_line"].append(_FigSpec(
+            "one_line", (w, h), lambda fig, r, d=one_line: draw_one_line(fig, r, d, f"One-line diagram: {res.case.title}"),
+            h))
     banks = {b["name"]: b for b in data["banks"]}
     for sc in res.scans:
         if sc.scenario != "nominal":
@@ -103,12 +165,12 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
         s = _safe(b.name)
         weak = res.scans_for(b.name, "weak")
         specs["overlay"].append(_FigSpec(
-            f"fig_scan_{s}_all", (8.2, 4.0),
+            f"scan_{s}", (8.2, 4.0),
             lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, sc,
                                                    f"Bank {sc.bank.name}: all steps, nominal supply"), 4.0, b.name))
         if weak is not None:
             specs["overlay"].append(_FigSpec(
-                f"fig_scan_{s}_weak_all", (8.2, 4.0),
+                f"scan_{s}_weak", (8.2, 4.0),
                 lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, w,
                                                         f"Bank {w.bank.name}: all steps, weak supply"), 4.0, b.name))
         # the other scenarios of the envelope, drawn where they govern: a finding of the bank's there
@@ -119,7 +181,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
             if sn.name in ("nominal", "weak") or other is None or sn.name not in own:
                 continue
             specs["overlay"].append(_FigSpec(
-                f"fig_scan_{s}_{sn.name}_all", (8.2, 4.0),
+                f"scan_{s}_{sn.name}", (8.2, 4.0),
                 lambda fig, r, o=other, w=sn.words: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, o,
                                                                      f"Bank {o.bank.name}: all steps, {w}"),
                 4.0, b.name))
@@ -127,7 +189,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
         if det is not None:
             specs["compare"].append(_FigSpec(
                 f"fig_compare_{s}_detuned", (7.4, 4.0),
-                lambda fig, r, sc=sc, d=det: rf.draw_scan_compare(_axes(fig, r), res, sc, d), 4.0))
+                lambda fig, r, sc=sc, d=det: rf.draw_scan_compare(_axes(fig, r), res, sc, d), 4.0, b.name))
         bank = banks.get(b.name)
         if bank is None:
             continue
@@ -141,12 +203,10 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
             specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.6 * len(panels)), draw_sp,
                                              2.6 * len(panels)))
         if _has_duty(bank):
-            vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
-            nums = [x["step"] for x in steps]
-            specs["duty"].append(_FigSpec(
-                f"fig_duty_{s}", (7.4, 5.2),
-                lambda fig, r, v=vals, n=nums, lm=lim: rf.draw_duty(_grid(fig, r, 2, 2), n, v, lm.duty, lm.duty_name),
-                5.2))
+            specs["duty"].append(_duty_spec(f"fig_duty_{s}", bank, lim, b.name))
+        rc = (rechecks or {}).get(b.name)
+        if rc is not None:
+            specs["proposed"] += _proposed_specs_for(res, b.name, rc, det, bank)
         every = [x for x in res.switching if x.bank == b.name and x.wave_a.size]
         if every:  # the governing step over every scenario
             gov = max(every, key=lambda x: x.governing().peak_a)
@@ -172,7 +232,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None) -> dic
                 k=np.arange(1, hp_arr.size + 1), d=_get(rec, "lowest_significant_order"),
                 m=_num(_get(rec, "order_margin_pct")), nm=b.name:
                 rf.draw_detuning_band(_axes(fig, r, (0.72, 2.6, 0.5, 0.42)), n_t, p, bd, lb, hp, k, d, m,
-                                      f"Bank {nm}: recommended detuning"), 3.6))
+                                      f"Bank {nm}: recommended detuning"), 3.6, b.name))
     return specs
 
 
@@ -210,34 +270,47 @@ class FileJob:
     render: Callable
 
 
-def _spec_job(spec: _FigSpec) -> FileJob:
+def _footer(fig: Figure, stamp: str) -> None:
+    """The small footer of a stand-alone figure: what it is, case, revision, date."""
+    fw, fh = fig.get_size_inches()
+    fig.text(0.08 / fw, 0.07 / fh, stamp, fontsize=5.8, color="#5b6672", va="bottom", ha="left")
+    from matplotlib.lines import Line2D  # noqa: PLC0415
+    fig.add_artist(Line2D([0.08 / fw, 1 - 0.08 / fw], [(FOOTER_H - 0.03) / fh] * 2, lw=0.4, color="#5b6672"))
+
+
+def _spec_job(spec: _FigSpec, stamp: str) -> FileJob:
     def render(paths):
-        fig = rf.new_figure(*spec.size)
-        spec.draw(fig, (0.0, 0.0) + tuple(spec.size))
+        w, h = spec.size
+        fig = rf.new_figure(w, h + FOOTER_H)
+        spec.draw(fig, (0.0, FOOTER_H, w, h))
+        _footer(fig, stamp)
         save_png_svg(fig, *paths)
     return FileJob((f"{spec.name}.png", f"{spec.name}.svg"), render)
 
 
-def _step_jobs(res: StudyResult, sc: BankScan, weak: BankScan | None) -> list[FileJob]:
-    """One PNG and SVG per step; each job re-points one figure at :data:`STEP_CHUNK` steps."""
-    stem = f"fig_scan_{_safe(sc.bank.name)}_step"
+def _step_jobs(res: StudyResult, sc: BankScan, weak: BankScan | None, stamp: str) -> list[FileJob]:
+    """One PNG per step (the scan figures of the whole bank come as PNG and SVG); each job
+    re-points one figure at :data:`STEP_CHUNK` steps."""
+    stem = f"scan_{_safe(sc.bank.name)}_step"
     ks = [st.step for st in sc.steps]
     out = []
     for i in range(0, len(ks), STEP_CHUNK):
         chunk = tuple(ks[i:i + STEP_CHUNK])
 
         def render(paths, chunk=chunk):
-            fig = rf.new_figure(*STEP_SIZE)
-            plot = rf.StepScanPlot(_axes(fig, (0.0, 0.0) + STEP_SIZE), res, sc, weak)
+            w, h = STEP_SIZE
+            fig = rf.new_figure(w, h + FOOTER_H)
+            plot = rf.StepScanPlot(_axes(fig, (0.0, FOOTER_H, w, h)), res, sc, weak)
+            _footer(fig, stamp)
             for j, k in enumerate(chunk):
                 plot.show(k)
-                save_png_svg(fig, *paths[2 * j:2 * j + 2])
+                fig.savefig(paths[j], dpi=rf.PNG_DPI, metadata={"Software": None}, pil_kwargs=PNG_SAVE)
 
-        out.append(FileJob(tuple(n for k in chunk for n in (f"{stem}{k}.png", f"{stem}{k}.svg")), render))
+        out.append(FileJob(tuple(f"{stem}{k}.png" for k in chunk), render))
     return out
 
 
-def file_jobs(res: StudyResult, specs: dict[str, list]) -> list[FileJob]:
+def file_jobs(res: StudyResult, specs: dict[str, list], stamp: str = "") -> list[FileJob]:
     """Every stand-alone figure file of the report, in report order.
 
     Parameters
@@ -246,6 +319,8 @@ def file_jobs(res: StudyResult, specs: dict[str, list]) -> list[FileJob]:
         Study result.
     specs : dict
         Figure specs per section from :func:`_fig_specs`.
+    stamp : str
+        Footer of every figure: case title, project, revision, date [unitless].
 
     Returns
     -------
@@ -257,22 +332,31 @@ def file_jobs(res: StudyResult, specs: dict[str, list]) -> list[FileJob]:
     for sc in res.scans:
         if sc.scenario != "nominal":
             continue
-        jobs += [_spec_job(s) for s in specs["overlay"] if s.bank == sc.bank.name]
-        jobs += _step_jobs(res, sc, res.scans_for(sc.bank.name, "weak"))
-    for sec in ("compare", "spectra", "duty", "switching", "band"):
-        jobs += [_spec_job(s) for s in specs[sec]]
+        jobs += [_spec_job(s, stamp) for s in specs["overlay"] if s.bank == sc.bank.name]
+        jobs += _step_jobs(res, sc, res.scans_for(sc.bank.name, "weak"), stamp)
+    for sec in ("one_line", "compare", "spectra", "duty", "switching", "proposed", "band"):
+        jobs += [_spec_job(s, stamp) for s in specs[sec]]
     return jobs
 
 
-def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None) -> None:
+def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None, heading: str = "") -> None:
     """Two per-step plots a page: one page figure, re-pointed for every pair of steps."""
-    fig = Figure(figsize=(PAGE_W, PAGE_H))
-    fig.text(M_LEFT / PAGE_W, 1 - M_TOP / PAGE_H, f"Bank {sc.bank.name}: one plot per step"
-             + (" (dashed: weak supply)" if weak is not None else ""), fontsize=9.5, weight="bold", color=INK,
-             va="top")
-    top = PAGE_H - M_TOP - 0.3
-    rects = [(M_LEFT - 0.1, top - (i + 1) * STEP_PAGE_H, TEXT_W + 0.2, STEP_PAGE_H - 0.1) for i in range(2)]
-    plots = [rf.StepScanPlot(_axes(fig, r), res, sc, weak) for r in rects]
+    pw, ph, tw = doc.pw, doc.ph, doc.tw
+    fig = Figure(figsize=(pw, ph))
+    y = M_TOP
+    if heading:
+        doc.text(M_LEFT, y, heading, fig=fig, fontsize=13, weight="bold")
+        doc.toc.append((heading, len(doc.pages) + 1))
+        y += 13 / 72 * 1.55 + 0.05
+    doc.text(M_LEFT, y, f"Bank {sc.bank.name}: one plot per step"
+             + (" (dashed: weak supply)" if weak is not None else ""), fig=fig, fontsize=9.5, weight="bold")
+    top = ph - y - 0.3
+    step_h = min(STEP_PAGE_H, (top - M_TOP + 0.1) / 2)
+    rects = [(M_LEFT - 0.1, top - (i + 1) * step_h, tw + 0.2, step_h - 0.1) for i in range(2)]
+    plots = []
+    for r in rects:
+        doc.regions.append((fig, len(fig.axes), (r[0], r[0] + r[2], ph - r[1] - r[3], ph - r[1])))
+        plots.append(rf.StepScanPlot(_axes(fig, r), res, sc, weak))
     n = len(sc.steps)
 
     def pair(k):

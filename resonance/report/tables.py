@@ -285,15 +285,27 @@ def _step_rows(steps: list[dict], lim: _Limits, findings=()):
     return tuple(cols), tuple(tuple(r) for r in rows), frozenset(bad)
 
 
-def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits, findings=()) -> Table:
+#: display name of each duty limit set (the case's ``study.duty_limits`` value)
+LIMIT_SET_WORDS = {"ieee18-2002": "IEEE Std 18-2002", "ieee18-2012": "IEEE Std 18-2012",
+                   "ieee18-1992": "IEEE Std 18-1992", "iec60831-1": "IEC 60831-1", "iec60871-1": "IEC 60871-1"}
+
+
+def limit_set_words(name: str) -> str:
+    """``ieee18-2002`` -> ``IEEE Std 18-2002`` (unknown names as given) [unitless]."""
+    return LIMIT_SET_WORDS.get(str(name), str(name))
+
+
+def _summary_table(bank: dict, steps: list[dict], scen: str, lim: _Limits, findings=(), note: bool = True) -> Table:
+    """Per-step table of one bank in one scenario; ``note``: the key to the columns below it
+    (the first table of a bank carries it, the others refer to it)."""
     mine = [f for f in findings if f.get("bank") == bank["name"] and f.get("scenario") in (scen, "all")]
     cols, rows, bad = _step_rows(steps, lim, mine)
     suffix = "" if scen == "nominal" else f"_{scen}"
     return Table(f"table_summary_{_safe(bank['name'])}{suffix}.csv",
                  f"Bank {bank['name']}: every step, {scenario_words(scen)}", cols, rows,
-                 "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
+                 "Columns and codes as in the first step table of this bank." if not note else "margin: signed distance of h_scan from the nearest order of concern (inj injected, bg background, "
                  "char characteristic). THD in % of nominal voltage, TDD in % of I_L, duty in % of the capacitor "
-                 f"rating ({lim.duty_name}); '-' = not evaluated. FAIL codes (from the findings): res resonance, duty "
+                 f"rating ({limit_set_words(lim.duty_name)}); '-' = not evaluated. FAIL codes (from the findings): res resonance, duty "
                  "capacitor duty, V PCC voltage distortion, I PCC current distortion, tune detuned tuning, sw switching (inrush, voltage step), B in-plant "
                  "level at the bank bus; 'pass (site ...)': beyond a limit already with the bank off and not made "
                  "worse by it (the site's own emission).", bad)
@@ -351,7 +363,17 @@ _REC_WORDS = {"tuning_order": "tuning order n [-]", "detuning_pct": "detuning p 
               "rated_kv": "capacitor rated voltage [kV]", "steps_kvar": "stages at rated voltage [kvar]",
               "tuning_band": "tuning order band at the tolerance limits [-]",
               "lowest_significant_order": "lowest significant harmonic [-]",
-              "order_margin_pct": "required margin below it [%]"}
+              "order_margin_pct": "required margin below it [%]",
+              "reactor_q": "reactor quality factor X/R at the fundamental [-]",
+              "f_tuning_hz": "series tuning frequency [Hz]",
+              "l_mh_per_stage": "reactor inductance per stage [mH]",
+              "reactor_i_rms_max_a": "highest reactor rms current per stage [A]",
+              "reactor_i_lin_a": "reactor linearity current per stage [A]",
+              "cap_overrating": "capacitor rated / fundamental voltage [-]",
+              "duty_margin_min_pct": "lowest capacitor duty margin [%]",
+              "cap_v_rms_max_kv": "highest capacitor rms voltage [kV]",
+              "cap_v_peak_max_kv": "highest capacitor crest voltage [kV]",
+              "reactor_i_rms_over_i1_max": "highest reactor rms / fundamental current [-]"}
 
 
 def _band(v) -> str:
@@ -371,7 +393,7 @@ def _detuning_tables(bank: dict) -> list[Table]:
                          (Column("quantity", "", _s, "left"), Column("value", "", _s, "left", 60)),
                          tuple((_REC_WORDS.get(k, k.replace("_", " ")),
                                 _band(v) if k == "tuning_band" else _fmt_any(v)) for k, v in rec.items()
-                               if not isinstance(v, dict))))
+                               if not isinstance(v, dict) and k in _REC_WORDS)))
     if cands:
         def stages(v):
             if isinstance(v, list) and v:
@@ -494,11 +516,11 @@ def report_tables(res: StudyResult, data: dict) -> list[Table]:
         out.append(_summary_table(b, b["steps"], "nominal", lim, data.get("findings", ())))
         if b.get("weak_supply"):
             out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", _limits(res, data, b, "weak"),
-                                      data.get("findings", ())))
+                                      data.get("findings", ()), note=False))
         for scen, body in (b.get("scenarios") or {}).items():
             if scen != "weak" and body.get("steps"):
                 out.append(_summary_table(b, body["steps"], scen, _limits(res, data, b, scen),
-                                          data.get("findings", ())))
+                                          data.get("findings", ()), note=False))
         site = _site_table(b)
         if site is not None:
             out.append(site)
