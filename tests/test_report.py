@@ -237,15 +237,18 @@ def test_detuned_candidate_scan_beside_the_plain_bank(demo, tmp_path):
     case = load_case(CASES / "demo_plant.toml")
     b0 = case.bank[0]
     detuned_case = case.model_copy(update={"bank": [b0.model_copy(update={"detuning_pct": 7.0})]})
-    cand = run_study(detuned_case).scans_for(b0.name, "nominal")
-    res2 = dataclasses.replace(res, detuned_scans={b0.name: cand})
+    from resonance.pipeline import CheckResult
+
+    study = run_study(detuned_case)
+    cand = study.scans_for(b0.name, "nominal")
+    res2 = dataclasses.replace(res, detuned_scans={b0.name: cand},
+                               rechecks={b0.name: CheckResult(case=detuned_case, study=study)})
     names = _report(res2, data, tmp_path)
-    assert f"fig_compare_{_safe(b0.name)}_detuned.png" in names
-    flat = _squash(_pdf_text(tmp_path / "report.pdf"))
-    assert "Scan of a detuned candidate" not in flat
-    # legend names the tuning order n = 1/sqrt(p) [derived, REFERENCES.md: p = 7 % -> n = 3.78]
-    svg = (tmp_path / f"fig_compare_{_safe(b0.name)}_detuned.svg").read_text(encoding="utf-8")
-    assert "n = 3.78" in svg
+    assert f"scan_{_safe(b0.name)}_proposed.png" in names
+    # the title names the tuning order n = 1/sqrt(p) [derived, REFERENCES.md: p = 7 % -> n = 3.78]; the
+    # plain bank as specified is drawn beside the proposal's steps
+    svg = (tmp_path / f"scan_{_safe(b0.name)}_proposed.svg").read_text(encoding="utf-8")
+    assert "n = 3.78" in svg and "as specified, all 8 steps in" in svg
 
 
 def test_same_input_same_content_apart_from_the_date(demo, tmp_path):

@@ -59,7 +59,7 @@ __all__ = ["write_report", "layout_report", "Table", "Column", "report_tables", 
 
 #: section headings in report order (tests look for them)
 SECTIONS = ("Summary", "Network and input data", "Frequency scans", "Harmonic distortion", "Capacitor duty",
-            "Switching", "Proposed design", "Methods and assumptions", "References", "Appendix A")
+            "Switching", "Proposed design", "Methods and assumptions", "References", "Appendix A", "Appendix B")
 
 REFERENCES = (
     "IEEE Std 18-2002, IEEE Standard for Shunt Power Capacitors (continuous operating limits).",
@@ -235,20 +235,18 @@ class _Book:
                  "order only). Markers: resonance of each step (X: inside a band). Dotted: bank off. Steps differ "
                  "by colour and line style. One plot per step: Appendix A.")
         for spec in specs["overlay"]:
-            place(spec)
+            if spec.page:
+                place(spec)
 
         doc.heading("4 Harmonic distortion", keep=_first_h(specs["spectra"]))
         if specs["spectra"]:
             doc.para("Bars: harmonic value of the step with the highest distortion (red: beyond its limit); grey "
                      "ticks: highest value over all steps; amber dashes or ticks: the IEEE 519 limit. Nominal supply; "
-                     "the other scenarios are in the step tables of the summary.")
+                     "the other scenarios are in the tables of the summary, every order of every step in Appendix C.")
             for spec in specs["spectra"]:
                 place(spec)
         else:
             doc.para(f"Harmonic voltage spectra at the bank bus and the PCC: {NOT_EVALUATED}.")
-        for t in self.tables:
-            if t.name.startswith("table_spectrum_"):
-                doc.table(t, size=6.8)
 
         doc.heading("5 Capacitor duty", keep=_first_h(specs["duty"]))
         if specs["duty"]:
@@ -275,14 +273,14 @@ class _Book:
 
         self._proposed(doc, place)
 
-        doc.heading("8 Methods and assumptions")
-        meth, mem = _methods(res, data)
-        doc.bullets(meth, size=8.0)
-        doc.subheading("Taken from memory or common practice (verify against the documents)")
-        doc.bullets(mem, size=8.0)
-        doc.heading("9 References")
-        doc.bullets(REFERENCES, size=8.0)
+        self._appendices(doc)
+        self._contents(doc)
+        return doc
 
+    def _appendices(self, doc: _Doc) -> None:
+        """A: a scan per step; B: every step in every scenario; C: every order of every step;
+        D: the detuning candidates; E: methods and assumptions; F: references."""
+        res, data, tbl = self.res, self.data, self.tbl
         first = True
         for sc in res.scans:
             if sc.scenario != "nominal":
@@ -290,8 +288,38 @@ class _Book:
             _step_pages(doc, res, sc, res.scans_for(sc.bank.name, "weak"),
                         "Appendix A  Frequency scan of each step" if first else "")
             first = False
-        self._contents(doc)
-        return doc
+        doc.heading("Appendix B  Every step in every scenario")
+        doc.para("The step tables of the operating envelope's scenarios (the nominal supply is in the summary), "
+                 "for the bank as specified and for the proposed design.", size=8.0)
+        for b in data["banks"]:
+            s_ = _safe(b["name"])
+            for scen in (b.get("scenarios") or {}):
+                t = tbl.get(f"table_summary_{s_}_{scen}.csv")
+                if t is not None:
+                    doc.table(t, size=7.0)
+            for scen in ((rp.proposed_bank(self.rechecks.get(b["name"]), b["name"]) or {}).get("scenarios") or {}):
+                t = tbl.get(f"table_proposed_{s_}_{scen}.csv")
+                if t is not None:
+                    doc.table(t, size=7.0)
+        spectra = [t for t in self.tables if t.name.startswith("table_spectrum_")]
+        if spectra:
+            doc.heading("Appendix C  Harmonic spectra of every step", keep=1.5)
+            for t in spectra:
+                doc.table(t, size=6.8)
+        cands = [t for t in self.tables if t.name.startswith("table_detuning_candidates_")]
+        if cands:
+            doc.heading("Appendix D  Detuning candidates", keep=1.5)
+            doc.para("Every tuning order the search tried, with the reason each was or was not qualified (each "
+                     "qualified one passed a re-check by the one assessment in every scenario).", size=8.0)
+            for t in cands:
+                doc.table(t, size=6.8)
+        doc.heading("Appendix E  Methods and assumptions")
+        meth, mem = _methods(res, data)
+        doc.bullets(meth, size=7.8)
+        doc.subheading("Taken from memory or common practice (verify against the documents)")
+        doc.bullets(mem, size=7.8)
+        doc.heading("Appendix F  References", keep=1.0)
+        doc.bullets(REFERENCES, size=7.8)
 
     # ------------------------------------------------------------------------------------
     def _cover(self, doc: _Doc) -> float:
@@ -371,12 +399,9 @@ class _Book:
             doc.subheading("Verdict", keep=0.5)
             doc.bullets(_verdict(b, data, lim), size=8.0)
             doc.table(tbl[f"table_summary_{_safe(b['name'])}.csv"], size=7.0)
-            if b.get("weak_supply"):
-                doc.table(tbl[f"table_summary_{_safe(b['name'])}_weak.csv"], size=7.0)
-            for scen in (b.get("scenarios") or {}):
-                extra_t = tbl.get(f"table_summary_{_safe(b['name'])}_{scen}.csv")
-                if scen != "weak" and extra_t is not None:
-                    doc.table(extra_t, size=7.0)
+            ov = tbl.get(f"table_scenarios_{_safe(b['name'])}.csv")
+            if ov is not None:
+                doc.table(ov, size=7.0)
             site = tbl.get(f"table_site_{_safe(b['name'])}.csv")
             if site is not None:
                 doc.table(site, size=7.0)
@@ -421,10 +446,9 @@ class _Book:
                          "re-check (the numbers 'resonance check' gives for recommended_case.toml).", size=8.5)
                 if t_rec is not None:
                     doc.table(t_rec, size=7.0)
-                for t in self.tables:
-                    if t.name.startswith(f"table_proposed_{_safe(name)}") and t.name != \
-                            f"table_proposed_reactor_{_safe(name)}.csv":
-                        doc.table(t, size=7.0)
+                for key in (f"table_proposed_scenarios_{_safe(name)}.csv", f"table_proposed_{_safe(name)}.csv"):
+                    if key in tbl:
+                        doc.table(tbl[key], size=7.0)
                 for spec in specs["compare"] + specs["proposed"] + specs["band"]:
                     if spec.bank == name:
                         place(spec)
@@ -434,9 +458,8 @@ class _Book:
             elif det:
                 doc.para(f"Bank {name}: no detuned design is proposed. {det.get('reason') or det.get('status') or ''}",
                          size=8.5)
-            t_c = tbl.get(f"table_detuning_candidates_{_safe(name)}.csv")
-            if t_c is not None:
-                doc.table(t_c, size=6.8)
+            if tbl.get(f"table_detuning_candidates_{_safe(name)}.csv") is not None:
+                doc.para("Every candidate the search tried, and why each was or was not chosen: Appendix D.", size=8.0)
         if not any_rec and not any((b.get("detuning") or {}) for b in data["banks"]):
             doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
 

@@ -154,7 +154,8 @@ def _order_ticks(ax, res: StudyResult, h_hi: float) -> None:
     ax.tick_params(axis="x", labelsize=7)
 
 
-def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
+def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str, legend: bool = True,
+                  plain: BankScan | None = None) -> None:
     """All steps of one bank overlaid, bank off dotted, resonances marked.
 
     Parameters
@@ -167,12 +168,20 @@ def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
         The bank's scan in one scenario: ``h`` [unitless], ``z_ohm`` [ohm].
     title : str
         Axes title [unitless].
+    legend : bool
+        Draw the legend (right of the axes).
+    plain : BankScan, optional
+        The bank as specified, same scenario: its full bank is drawn beside ``sc``'s steps
+        (for a proposed design overlaid on the plain bank) [ohm].
     """
     _style_axes(ax)
     h_max = float(sc.h[-1])
     mark_orders(ax, res, h_max, res.case.study.margin_pct)
     n = len(sc.steps)
     ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
+    if plain is not None:
+        ax.semilogy(plain.h, plain.z_ohm[-1], color=STYLE["injected"], lw=1.3, ls=(0, (6, 2)),
+                    label=f"as specified, all {len(plain.steps)} steps in")
     for st in sc.steps:
         sty = step_style(st.step, n)
         col = sty["color"]
@@ -186,7 +195,8 @@ def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str) -> None:
     _log_ticks(ax, h_max)
     _order_ticks(ax, res, h_max)
     _label_axes(ax, sc.bank.bus, title)
-    ax.legend(frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    if legend:
+        ax.legend(frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
 
 
 def step_view(sc: BankScan, weak: BankScan | None) -> float:

@@ -397,7 +397,13 @@ class _Doc:
         list of str
             One line per problem, naming the page and the text; empty when everything fits.
         """
-        from matplotlib.text import Text  # noqa: PLC0415
+        import matplotlib  # noqa: PLC0415
+
+        with matplotlib.rc_context(rf.RC):  # the settings the report is drawn with
+            return self._overflows(tol_in)
+
+    def _overflows(self, tol_in: float) -> list[str]:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg  # noqa: PLC0415
 
         out: list[str] = []
         by_fig: dict[int, list] = {}
@@ -409,8 +415,9 @@ class _Doc:
         for page, (fig, update) in enumerate(self.pages, start=1):
             if update is not None:
                 update()
-            fig.canvas.draw()  # the Agg canvas of a bare Figure
-            r = fig.canvas.get_renderer()
+            canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+            canvas.draw()
+            r = canvas.get_renderer()
             dpi = fig.dpi
 
             def inside(bb, box):
@@ -421,15 +428,13 @@ class _Doc:
             for t, box in by_fig.get(id(fig), []):
                 if t.get_text() and t.get_visible() and not inside(t.get_window_extent(r), box):
                     out.append(f"page {page}: text {t.get_text()[:50]!r} leaves its box")
-            rs = sorted(regs.get(id(fig), []))
+            rs = sorted(regs.get(id(fig), []), key=lambda x: x[0])
             for k, (first, box) in enumerate(rs):
                 last = rs[k + 1][0] if k + 1 < len(rs) else len(fig.axes)
                 for ax in fig.axes[first:last]:
-                    if not ax.get_visible():
-                        continue
-                    for t in ax.findobj(Text):
-                        if t.get_text() and t.get_visible() and not inside(t.get_window_extent(r), box):
-                            out.append(f"page {page}: figure text {t.get_text()[:50]!r} leaves its region")
+                    # what is drawn of the axes: its spines, tick labels, labels, title, legend
+                    if ax.get_visible() and not inside(ax.get_tightbbox(r), box):
+                        out.append(f"page {page}: figure {ax.get_title(loc='left')[:50]!r} leaves its region")
         return out
 
 

@@ -17,13 +17,13 @@ import numpy as np
 from resonance.assessment.envelope import scenario_words
 from resonance.report import figures as rf
 from resonance.report.plots import STYLE, _style_axes
-from resonance.report.tables import (DUTY_KEYS, Column, Table, _detuning, _f, _has_duty, _limits, _num, _s, _safe,
-                                     _summary_table)
+from resonance.report.tables import (DUTY_KEYS, Column, Table, _f, _has_duty, _limits, _num, _s, _safe,
+                                     _summary_table, overview_table)
 
 __all__ = ["proposed_tables", "proposed_bank", "draw_reactor", "REACTOR_FIG_SIZE"]
 
 #: stand-alone size of the reactor current figure [in]
-REACTOR_FIG_SIZE = (7.4, 2.6)
+REACTOR_FIG_SIZE = (7.4, 2.3)
 
 
 def proposed_bank(recheck, name: str) -> dict | None:
@@ -53,19 +53,22 @@ def proposed_tables(recheck, name: str) -> list[Table]:
     Returns
     -------
     list of Table
-        ``table_proposed_<bank>.csv`` (nominal supply) and ``table_proposed_<bank>_<scenario>.csv``.
+        ``table_proposed_scenarios_<bank>.csv`` (one row per scenario), ``table_proposed_<bank>.csv``
+        (nominal supply) and ``table_proposed_<bank>_<scenario>.csv``.
     """
     b = proposed_bank(recheck, name)
     if b is None:
         return []
     res, data = recheck.study, recheck.data
     out = []
+    if b.get("scenarios"):
+        out.append(overview_table(res, data, b, f"table_proposed_scenarios_{_safe(name)}.csv",
+                                  f"Proposed design of bank {name}: every scenario of the operating envelope"))
     for i, (scen, steps) in enumerate(_scenario_steps(b)):
         t = _summary_table(b, steps, scen, _limits(res, data, b, scen), data.get("findings", ()), note=(i == 0))
         suffix = "" if scen == "nominal" else f"_{scen}"
         out.append(replace(t, name=f"table_proposed_{_safe(name)}{suffix}.csv",
                            title=f"Proposed design of bank {name}: every step, {scenario_words(scen)}"))
-    rec, _c = _detuning(b)
     return out
 
 

@@ -9,7 +9,7 @@ starts from a fresh figure, so its files do not depend on what ran before.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Callable
 
@@ -17,7 +17,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from resonance.report import figures as rf
-from resonance.report.layout import INK, M_LEFT, M_TOP, _Doc
+from resonance.report.layout import INK, M_BOTTOM, M_LEFT, M_TOP, _Doc
 from resonance.report.tables import (DUTY_KEYS, _detuning, _get, _has_duty, _limits, _Limits, _num,
                             _safe, _spectrum, _thd_bus, _thd_pcc, limit_set_words)
 from resonance.report import proposed as rp
@@ -38,6 +38,8 @@ class _FigSpec:
     draw: Callable     # draw(fig, rect_in) with rect_in = (x, y_bottom, w, h) [in] inside fig
     page_h: float      # height on the report page [in]
     bank: str = ""      # bank the figure belongs to
+    page: bool = True   # drawn on a report page
+    file: bool = True   # written as a stand-alone file
 
 
 def _axes(fig: Figure, rect, pad=(0.72, 0.25, 0.5, 0.42)):
@@ -59,7 +61,9 @@ def _grid(fig: Figure, rect, nrow, ncol, pad=(0.62, 0.2, 0.45, 0.35)):
 
 LEGEND_PAD = (0.72, 1.75, 0.5, 0.42)
 STEP_SIZE = (7.4, 4.1)     # stand-alone per-step figure [in]
-STEP_PAGE_H = 4.75         # height of one per-step plot on a page [in]
+STEP_PAGE_H = 3.2          # height of one per-step plot on a page [in] (three a page)
+STEPS_PER_PAGE = 3
+OVERLAY_PAGE_H = 3.4       # height of a whole-bank scan on a page [in]
 
 
 def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
@@ -111,12 +115,13 @@ def _duty_spec(name: str, bank: dict, lim: _Limits, title_bank: str) -> _FigSpec
     vals = {q: [_num(x.get(k)) for x in steps] for q, k in DUTY_KEYS.items()}
     nums = [x["step"] for x in steps]
     others = _duty_others(bank)
-    return _FigSpec(name, (7.4, 5.2),
+    return _FigSpec(name, (7.4, 4.6),
                     lambda fig, r, v=vals, n=nums, lm=lim, o=others: rf.draw_duty(
-                        _grid(fig, r, 2, 2), n, v, lm.duty, limit_set_words(lm.duty_name), o), 5.2, title_bank)
+                        _grid(fig, r, 2, 2), n, v, lm.duty, limit_set_words(lm.duty_name), o), 4.6, title_bank)
 
 
-def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | None, bank: dict) -> list[_FigSpec]:
+def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | None, bank: dict,
+                        plain: BankScan) -> list[_FigSpec]:
     """Figures of the proposed design of bank ``name``: every step's scan, its duty in every
     scenario and its reactors, all from the re-check that accepted it (``bank``: the check's own
     entry of the bank, which holds the proposal)."""
@@ -127,8 +132,9 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
         out.append(_FigSpec(
             f"scan_{s}_proposed", (8.2, 4.0),
             lambda fig, r, d=det, rr=recheck.study: rf.draw_scan_all(
-                _axes(fig, r, LEGEND_PAD), rr, d, f"Proposed design of bank {name}: all steps, nominal supply"),
-            4.0, name))
+                _axes(fig, r, LEGEND_PAD), rr, d, f"Proposed design of bank {name}: n = {d.bank.p ** -0.5:.2f} "
+                f"(p = {100 * d.bank.p:.3g} %), all steps, nominal supply", plain=plain),
+            OVERLAY_PAGE_H + 0.4, name))
     if pb is not None and _has_duty(pb):
         out.append(_duty_spec(f"fig_duty_{s}_proposed", pb, _limits(recheck.study, recheck.data, pb), name))
     rec, _c = _detuning(bank)
@@ -167,29 +173,50 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
         specs["overlay"].append(_FigSpec(
             f"scan_{s}", (8.2, 4.0),
             lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, sc,
-                                                   f"Bank {sc.bank.name}: all steps, nominal supply"), 4.0, b.name))
+                                                   f"Bank {sc.bank.name}: all steps, nominal supply"), OVERLAY_PAGE_H,
+            b.name))
         if weak is not None:
             specs["overlay"].append(_FigSpec(
                 f"scan_{s}_weak", (8.2, 4.0),
                 lambda fig, r, w=weak: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, w,
-                                                        f"Bank {w.bank.name}: all steps, weak supply"), 4.0, b.name))
-        # the other scenarios of the envelope, drawn where they govern: a finding of the bank's there
+                                                        f"Bank {w.bank.name}: all steps, weak supply"),
+                OVERLAY_PAGE_H, b.name))
+        # the other scenarios of the envelope, drawn where they govern (a finding of the bank's
+        # there): each its own file; on the page, weak supply and these side by side in one figure
         own = {f.get("scenario") for f in data.get("findings", ())
                if f.get("bank") == b.name and f.get("cause", "bank") == "bank"}
+        panels = [(weak, "weak supply")] if weak is not None else []
+        if weak is not None:
+            specs["overlay"][-1] = replace(specs["overlay"][-1], page=False)
         for sn in res.scenarios:
             other = res.scans_for(b.name, sn.name)
             if sn.name in ("nominal", "weak") or other is None or sn.name not in own:
                 continue
+            panels.append((other, sn.words))
             specs["overlay"].append(_FigSpec(
                 f"scan_{s}_{sn.name}", (8.2, 4.0),
                 lambda fig, r, o=other, w=sn.words: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, o,
                                                                      f"Bank {o.bank.name}: all steps, {w}"),
-                4.0, b.name))
+                OVERLAY_PAGE_H, b.name, page=False))
+        if panels:
+            ncol = 1 if len(panels) == 1 else 2
+            nrow = -(-len(panels) // ncol)
+            h_grid = 2.55 * nrow + 0.25
+
+            def draw_grid(fig, r, panels=panels, ncol=ncol, nrow=nrow, nm=b.name):
+                x, y, w, h = r
+                axes = _grid(fig, (x, y, w, h - 0.25), nrow, ncol, (0.62, 0.15, 0.45, 0.3))
+                for ax, (scan, words) in zip(axes, panels):
+                    rf.draw_scan_all(ax, res, scan, words, legend=False)
+                for ax in axes[len(panels):]:
+                    ax.set_visible(False)
+                fw, fh = fig.get_size_inches()
+                fig.text((x + 0.1) / fw, (y + h - 0.05) / fh, f"Bank {nm}: all steps in the other scenarios "
+                         "(steps coloured and styled as above)", fontsize=9, weight="bold", color=INK, va="top")
+
+            specs["overlay"].append(_FigSpec(f"scan_{s}_scenarios", (8.2, h_grid), draw_grid, h_grid, b.name,
+                                             file=False))
         det = (detuned or {}).get(b.name)
-        if det is not None:
-            specs["compare"].append(_FigSpec(
-                f"fig_compare_{s}_detuned", (7.4, 4.0),
-                lambda fig, r, sc=sc, d=det: rf.draw_scan_compare(_axes(fig, r), res, sc, d), 4.0, b.name))
         bank = banks.get(b.name)
         if bank is None:
             continue
@@ -200,13 +227,13 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
             def draw_sp(fig, r, panels=panels):
                 for ax, p in zip(_grid(fig, r, len(panels), 1, (0.72, 0.25, 0.5, 0.35)), panels):
                     rf.draw_spectrum(ax, *p)
-            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.6 * len(panels)), draw_sp,
-                                             2.6 * len(panels)))
+            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.25 * len(panels)), draw_sp,
+                                             2.25 * len(panels)))
         if _has_duty(bank):
             specs["duty"].append(_duty_spec(f"fig_duty_{s}", bank, lim, b.name))
         rc = (rechecks or {}).get(b.name)
         if rc is not None:
-            specs["proposed"] += _proposed_specs_for(res, b.name, rc, det, bank)
+            specs["proposed"] += _proposed_specs_for(res, b.name, rc, det, bank, sc)
         every = [x for x in res.switching if x.bank == b.name and x.wave_a.size]
         if every:  # the governing step over every scenario
             gov = max(every, key=lambda x: x.governing().peak_a)
@@ -332,15 +359,15 @@ def file_jobs(res: StudyResult, specs: dict[str, list], stamp: str = "") -> list
     for sc in res.scans:
         if sc.scenario != "nominal":
             continue
-        jobs += [_spec_job(s, stamp) for s in specs["overlay"] if s.bank == sc.bank.name]
+        jobs += [_spec_job(s, stamp) for s in specs["overlay"] if s.bank == sc.bank.name and s.file]
         jobs += _step_jobs(res, sc, res.scans_for(sc.bank.name, "weak"), stamp)
     for sec in ("one_line", "compare", "spectra", "duty", "switching", "proposed", "band"):
-        jobs += [_spec_job(s, stamp) for s in specs[sec]]
+        jobs += [_spec_job(s, stamp) for s in specs[sec] if s.file]
     return jobs
 
 
 def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None, heading: str = "") -> None:
-    """Two per-step plots a page: one page figure, re-pointed for every pair of steps."""
+    """Three per-step plots a page: one page figure, re-pointed for every group of steps."""
     pw, ph, tw = doc.pw, doc.ph, doc.tw
     fig = Figure(figsize=(pw, ph))
     y = M_TOP
@@ -351,20 +378,21 @@ def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None
     doc.text(M_LEFT, y, f"Bank {sc.bank.name}: one plot per step"
              + (" (dashed: weak supply)" if weak is not None else ""), fig=fig, fontsize=9.5, weight="bold")
     top = ph - y - 0.3
-    step_h = min(STEP_PAGE_H, (top - M_TOP + 0.1) / 2)
-    rects = [(M_LEFT - 0.1, top - (i + 1) * step_h, tw + 0.2, step_h - 0.1) for i in range(2)]
+    k_page = STEPS_PER_PAGE
+    step_h = min(STEP_PAGE_H, (top - M_BOTTOM + 0.1) / k_page)
+    rects = [(M_LEFT - 0.1, top - (i + 1) * step_h, tw + 0.2, step_h - 0.1) for i in range(k_page)]
     plots = []
     for r in rects:
         doc.regions.append((fig, len(fig.axes), (r[0], r[0] + r[2], ph - r[1] - r[3], ph - r[1])))
-        plots.append(rf.StepScanPlot(_axes(fig, r), res, sc, weak))
+        plots.append(rf.StepScanPlot(_axes(fig, r, (0.72, 0.25, 0.45, 0.3)), res, sc, weak))
     n = len(sc.steps)
 
-    def pair(k):
+    def group(k):
         def update():
-            plots[0].show(k)
-            plots[1].ax.set_visible(k + 1 <= n)
-            if k + 1 <= n:
-                plots[1].show(k + 1)
+            for j, plot in enumerate(plots):
+                plot.ax.set_visible(k + j <= n)
+                if k + j <= n:
+                    plot.show(k + j)
         return update
 
-    doc.shared_pages(fig, [pair(k) for k in range(1, n + 1, 2)])
+    doc.shared_pages(fig, [group(k) for k in range(1, n + 1, k_page)])

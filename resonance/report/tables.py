@@ -495,6 +495,60 @@ def _site_table(bank: dict) -> Table | None:
                  "does is a finding of the bank's.")
 
 
+def scenario_bodies(bank: dict):
+    """(scenario, body) of a bank entry: the nominal one (the bank entry itself), then the others."""
+    yield "nominal", bank
+    for scen, body in (bank.get("scenarios") or {}).items():
+        if body.get("steps"):
+            yield scen, body
+
+
+def overview_table(res: StudyResult, data: dict, bank: dict, name: str, title: str) -> Table:
+    """One row per scenario of a bank: supply, closest resonance, highest distortion and duty,
+    and the number of the bank's findings there (the per-step tables are in an appendix)."""
+    rows, bad = [], set()
+    findings = [f for f in data.get("findings", ()) if f.get("bank") == bank["name"] and f.get("cause", "bank") == "bank"]
+    for i, (scen, body) in enumerate(scenario_bodies(bank)):
+        steps = body["steps"]
+        lim = _limits(res, data, bank, scen)
+        with_m = [x for x in steps if _num(x.get("margin_pct")) is not None]
+        close = min(with_m, key=lambda x: abs(x["margin_pct"])) if with_m else None
+
+        def top(vals):
+            v = [x for x in vals if x is not None]
+            return max(v) if v else None
+
+        thd = top([_thd_pcc(x) for x in steps])
+        tdd = top([_num(x.get("tdd_pct")) for x in steps])
+        duty = {q: top([_num(x.get(k)) for x in steps]) for q, k in DUTY_KEYS.items()}
+        n_f = sum(1 for f in findings if f.get("scenario") in (scen, "all"))
+        row = [scenario_words(scen), _num(body.get("sc_mva")),
+               None if close is None else f"{close['margin_pct']:+.1f} % (step {close['step']}, h {close['h_scan']:.2f})",
+               thd, tdd, *duty.values(), n_f]
+        if close is not None and any(x.get("resonance_ok") is False for x in steps):
+            bad.add((i, 2))
+        if thd is not None and lim.pcc_thd is not None and thd > lim.pcc_thd:
+            bad.add((i, 3))
+        if tdd is not None and lim.tdd is not None and tdd > lim.tdd:
+            bad.add((i, 4))
+        for j, q in enumerate(DUTY_KEYS):
+            if duty[q] is not None and q in lim.duty and duty[q] > lim.duty[q]:
+                bad.add((i, 5 + j))
+        if n_f:
+            bad.add((i, 9))
+        rows.append(tuple(row))
+    lim0 = _limits(res, data, bank)
+    cols = (Column("scenario", "", _s, "left"), Column("S_sc at bus", "MVA", _f(1)),
+            Column("closest resonance\nto an order of concern", "", _s, "left"),
+            Column(_lim_head("THD PCC\nhighest", lim0.pcc_thd), "%", _f(2)),
+            Column("TDD PCC\nhighest", "%", _f(1)),
+            *[Column(_lim_head(DUTY_LABEL[q] + "\nhighest", lim0.duty.get(q)), "%", _f(1)) for q in DUTY_KEYS],
+            Column("findings\nof the bank", "-", _s))
+    return Table(name, title, cols, tuple(rows),
+                 "Highest value over the steps in each scenario (red: beyond the limit of that scenario; the TDD limit "
+                 "depends on I_sc/I_L and so on the supply). Every step of every scenario: Appendix B.", frozenset(bad))
+
+
 def report_tables(res: StudyResult, data: dict) -> list[Table]:
     """Every table of the report (summary, inputs, spectra, detuning).
 
@@ -514,6 +568,9 @@ def report_tables(res: StudyResult, data: dict) -> list[Table]:
     for b in data["banks"]:
         lim = _limits(res, data, b)
         out.append(_summary_table(b, b["steps"], "nominal", lim, data.get("findings", ())))
+        if b.get("scenarios"):
+            out.append(overview_table(res, data, b, f"table_scenarios_{_safe(b['name'])}.csv",
+                                      f"Bank {b['name']}: every scenario of the operating envelope"))
         if b.get("weak_supply"):
             out.append(_summary_table(b, b["weak_supply"]["steps"], "weak", _limits(res, data, b, "weak"),
                                       data.get("findings", ()), note=False))
