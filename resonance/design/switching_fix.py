@@ -21,6 +21,7 @@ import math
 
 import numpy as np
 
+from resonance.assessment.envelope import scenario_words
 from resonance.assessment.switching import SWITCHING_CHECKS, bank_switching, switching_findings
 
 __all__ = ["propose_switching", "FIXABLE_CHECKS", "preferred_value"]
@@ -205,7 +206,8 @@ def propose_switching(case, model, result) -> dict:
                          "step": g.step, "scenario": gov.scenario},
             "bank_table": {"name": bank.name, **update} if not left else None})
         entry["reason"] = (f"{words[0].upper()}{words[1:]} keeps every step within the switching limits in every "
-                           f"scenario; re-checked: governing step {g.step} ({gov.scenario}) {g.peak_a / 1000:.2f} kA "
+                           f"scenario; re-checked: governing step {g.step} ({scenario_words(gov.scenario)}) "
+                           f"{g.peak_a / 1000:.2f} kA "
                            f"peak at {g.hz:.0f} Hz" if not left else
                            f"{words} did not clear the re-check: " + "; ".join(f.message for f in left[:3]))
         out[bank.name] = entry

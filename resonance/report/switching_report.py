@@ -25,6 +25,12 @@ _CELL = {"inrush_peak": 4, "inrush_capacitor": 4, "inrush_frequency": 6, "voltag
          "energising_overvoltage": 9}
 
 
+def _edge():
+    from matplotlib import patheffects as pe  # noqa: PLC0415
+
+    return [pe.Stroke(linewidth=3.0, foreground=STYLE["ink"]), pe.Normal()]
+
+
 def switching_table(bank: dict, findings=()) -> Table | None:
     """Per-step switching figures of one bank, nominal scenario (None without switching keys)."""
     steps = bank.get("steps") or []
@@ -103,7 +109,7 @@ def draw_switching(ax_wave, ax_bar, bs, title: str) -> None:
     for val, lab, ls in lims:
         if val:
             for sgn in (1.0, -1.0):
-                ax_wave.axhline(sgn * val / 1000.0, color=STYLE["injected"], lw=1.0, ls=ls,
+                ax_wave.axhline(sgn * val / 1000.0, color=STYLE["limit"], lw=1.4, ls=ls, path_effects=_edge(),
                                 label=f"{lab} limit {val / 1000:.3g} kA" if sgn > 0 else None)
     ax_wave.set_xlabel("time after closing [ms]", color=STYLE["ink"])
     ax_wave.set_ylabel("inrush current [kA]", color=STYLE["ink"])
@@ -117,8 +123,8 @@ def draw_switching(ax_wave, ax_bar, bs, title: str) -> None:
                hatch=None, edgecolor="white")
     for j in np.nonzero(over)[0]:  # readable in grey print: failing bars are hatched too
         ax_bar.bar(k[j], pk[j], width=0.65, color="none", edgecolor="white", hatch="///", lw=0)
-    ax_bar.step(np.r_[k - 0.5, k[-1] + 0.5], np.r_[lim, lim[-1]], where="post", color=STYLE["injected"], lw=1.0,
-                ls="--", label="lower of the limits")
+    ax_bar.step(np.r_[k - 0.5, k[-1] + 0.5], np.r_[lim, lim[-1]], where="post", color=STYLE["limit"], lw=1.6,
+                ls="--", label="lower of the limits", zorder=4, path_effects=_edge())
     ax_bar.set_xticks(k)
     ax_bar.set_xlabel("step [-]", color=STYLE["ink"])
     ax_bar.set_ylabel("peak [kA]", color=STYLE["ink"])

@@ -11,7 +11,7 @@ from resonance.assessment.envelope import scenario_words
 
 from resonance.report import figures as rf
 from resonance.report.tables import (DUTY_KEYS, DUTY_LABEL, _detuning, _duty_limit_set, _fmt_any, _has_duty,
-                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc)
+                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc, limit_set_words)
 from resonance.assessment.study import StudyResult
 
 __all__ = ["NOT_EVALUATED"]
@@ -102,13 +102,13 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
                      if _num(s.get(k)) is not None and q in lim.duty), key=lambda x: x[2], default=None)
         if fails:
             detail = "; ".join(f"step {k}: {', '.join(o) if o else 'duty check failed'}" for k, o in fails)
-            out.append(f"Capacitor duty, nominal supply: beyond the {lim.duty_name} limits on {len(fails)} of {n} "
+            out.append(f"Capacitor duty, nominal supply: beyond the {limit_set_words(lim.duty_name)} limits on {len(fails)} of {n} "
                        f"steps ({detail}).")
         elif worst is not None:
-            out.append(f"Capacitor duty, nominal supply: within the {lim.duty_name} limits on every step; the "
+            out.append(f"Capacitor duty, nominal supply: within the {limit_set_words(lim.duty_name)} limits on every step; the "
                        f"smallest margin is {-worst[2]:.1f} points ({DUTY_LABEL[worst[1]]}, step {worst[0]}).")
     else:
-        out.append(f"Capacitor duty against the {lim.duty_name} limits: {NOT_EVALUATED}.")
+        out.append(f"Capacitor duty against the {limit_set_words(lim.duty_name)} limits: {NOT_EVALUATED}.")
     rec, _c = _detuning(bank)
     if rec:
         bits = []
@@ -133,20 +133,17 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
     if finds:
         by: dict[str, dict[str, set]] = {}
         for f in finds:
-            by.setdefault(str(f.get("scenario", "nominal")), {}).setdefault(_check_word(str(f.get("check"))),
-                                                                            set()).add(f.get("step"))
-        parts = []
+            by.setdefault(_check_word(str(f.get("check"))), {}).setdefault(str(f.get("scenario", "nominal")),
+                                                                           set()).add(f.get("step"))
         order = [s.get("name") for s in data.get("scenarios", [])] + ["all"]
-        for scen in sorted(by, key=lambda x: order.index(x) if x in order else len(order)):
-            items = ", ".join(f"{w} (step{'s' if len(k) > 1 else ''} "
-                              f"{_steps_list(sorted(x for x in k if x is not None))})"
-                              for w, k in sorted(by[scen].items()))
-            parts.append(f"{scenario_words(scen)} - {items}")
-        out.append(f"Verdict: the bank as specified does not pass the screening; {len(finds)} finding(s): "
-                   + "; ".join(parts) + ".")
+        scens = sorted({sc for d in by.values() for sc in d}, key=lambda x: order.index(x) if x in order else 99)
+        key = ", ".join(f"{scenario_words(sc)}" for sc in scens)
+        parts = [f"{w} {'/'.join(str(len(by[w].get(sc, ()))) for sc in scens)}" for w in sorted(by)]
+        verdict = (f"Verdict: the bank as specified does not pass the screening: {len(finds)} finding(s) of the "
+                   f"bank's. Steps with each finding in the scenarios ({key}), of {n}: " + "; ".join(parts) + ".")
     else:
-        out.append("Verdict: the bank as specified passes every screening check evaluated in this version.")
-    return out
+        verdict = "Verdict: the bank as specified passes every screening check evaluated in this version."
+    return [verdict] + out
 
 
 _R_MODEL = {
