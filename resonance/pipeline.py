@@ -255,9 +255,7 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
 
 def _one_line(model, case):
     """The one-line diagram's data (:func:`resonance.model.topology.one_line_data`)."""
-    try:
-        from resonance.model.topology import one_line_data  # noqa: PLC0415
-    except ImportError:  # TEMP until the topology module lands
-        return None
+    from resonance.model.topology import one_line_data  # noqa: PLC0415
+
     return one_line_data(model, case)
 

@@ -246,3 +246,47 @@ def test_out_of_service_elements_are_left_out_and_islands_drawn():
     texts = _labels(fig)
     assert set(data.bus_names) <= {t.get_text() for t in texts}
     assert _extents_fit(fig, rect, texts) == []
+
+
+def test_every_kind_of_branch_and_element_is_listed_and_drawn():
+    import pandapower as pp
+
+    net = pp.create_empty_network(f_hz=50.0)
+    hv, mv, lv, mv2, mv3, mv4 = (pp.create_bus(net, kv, name=n) for kv, n in
+                                 ((110.0, "HV"), (20.0, "MV"), (0.4, "LV"), (20.0, "MV2"), (20.0, "MV3"), (20.0, "MV4")))
+    pp.create_bus(net, 20.0, name="SPARE", in_service=False)
+    pp.create_ext_grid(net, hv, s_sc_max_mva=2000.0, rx_max=0.1)
+    pp.create_transformer3w_from_parameters(
+        net, hv, mv, lv, vn_hv_kv=110.0, vn_mv_kv=20.0, vn_lv_kv=0.4, sn_hv_mva=40.0, sn_mv_mva=40.0, sn_lv_mva=2.0,
+        vk_hv_percent=12.0, vk_mv_percent=8.0, vk_lv_percent=10.0, vkr_hv_percent=0.4, vkr_mv_percent=0.4,
+        vkr_lv_percent=0.4, pfe_kw=0.0, i0_percent=0.0, name="T3")
+    pp.create_switch(net, mv, mv2, et="b", closed=True, name="CB-2")
+    pp.create_switch(net, mv2, mv3, et="b", closed=False, name="CB-3")
+    pp.create_impedance(net, mv2, mv4, rft_pu=0.01, xft_pu=0.05, sn_mva=10.0, name="Z-4")
+    pp.create_sgen(net, mv4, p_mw=2.0, name="PV-1")
+    pp.create_shunt(net, mv, q_mvar=0.5, p_mw=0.0, name="R-1")  # pandapower: q_mvar > 0 absorbs (a reactor)
+    pp.create_shunt(net, mv2, q_mvar=-1.0, p_mw=0.0, name="C-1")
+    pp.create_storage(net, lv, p_mw=0.1, max_e_mwh=0.2, name="BESS")
+    pp.create_load(net, mv3, p_mw=1.0, q_mvar=0.2, name="LD-3")
+    case = _live_case({"title": "Every kind", "frequency_hz": 50,
+                       "supply": {"bus": "HV", "kv": 110.0, "sc_mva": 2000.0, "x_r": 10.0},
+                       "bank": [{"name": "LV-CAP", "bus": "LV", "rated_kv": 0.44, "steps_kvar": [50.0, 50.0],
+                                 "detuning_pct": 7.0}]})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model = build_model(case, net=net)
+    data = one_line_data(model, case)
+    assert data.bus_names == ("HV", "MV", "LV", "MV2", "MV3", "MV4")  # the spare bus is out of service
+    branches = {(b.kind, b.from_bus, b.to_bus, b.closed) for b in data.branches}
+    assert branches == {("transformer", "HV", "MV", True), ("transformer", "HV", "LV", True),
+                        ("impedance", "MV2", "MV4", True), ("switch", "MV", "MV2", True),
+                        ("switch", "MV2", "MV3", False)}
+    kinds = {e.name: (e.kind, e.bus, e.inductive) for e in data.elements}
+    assert kinds == {"Supply": ("supply", "HV", False), "LV-CAP": ("bank", "LV", False),
+                     "LD-3": ("load", "MV3", False), "PV-1": ("generator", "MV4", False),
+                     "BESS": ("generator", "LV", False), "R-1": ("shunt", "MV", True), "C-1": ("shunt", "MV2", False)}
+    fig, rect, _ = _draw(data)
+    texts = _labels(fig)
+    flat = " ".join(t.get_text().replace("\n", " ") for t in texts)
+    assert all(n in flat for n in ("T3", "CB-2", "CB-3", "Z-4", "PV-1", "R-1", "C-1", "BESS", "LV-CAP", "open"))
+    assert _extents_fit(fig, rect, texts) == []

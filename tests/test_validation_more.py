@@ -265,7 +265,7 @@ def _listing(d):
     return sorted(p.name for p in d.iterdir()) if d.exists() else None
 
 
-@pytest.mark.parametrize("target,plots", [("resonance.report.scan_tables.scan_csv", False), ("resonance.report.plots.scan_figure", True)])
+@pytest.mark.parametrize("target,plots", [("resonance.report.scan_tables.scan_csv", False), ("resonance.report.figures.draw_scan_all", True)])
 def test_failure_mid_run_leaves_nothing(case_file, tmp_path, capsys, monkeypatch, target, plots):
     module, name = target.rsplit(".", 1)
     mod = __import__(module, fromlist=[name])

@@ -20,7 +20,7 @@ from dataclasses import dataclass, replace
 from resonance.inputs.case import Case
 
 __all__ = ["OneLineBus", "OneLineBranch", "OneLineElement", "OneLine", "one_line_data", "reduce_one_line",
-           "MAX_BUSES", "HOPS", "BRANCH_KINDS", "ELEMENT_KINDS"]
+           "MAX_BUSES", "HOPS", "BRANCH_KINDS", "ELEMENT_KINDS", "fmt_num", "steps_text"]
 
 #: networks with more buses than this are drawn reduced (:func:`reduce_one_line`) [unitless]
 MAX_BUSES = 40
@@ -106,6 +106,8 @@ class OneLineElement:
         Detuning reactor p of a detuned bank [%]; None otherwise.
     main : bool
         The study's supply (for ``kind == "supply"``); False for other elements.
+    inductive : bool
+        A shunt reactor (for ``kind == "shunt"``: pandapower ``q_mvar > 0``); False otherwise.
     """
 
     kind: str
@@ -114,6 +116,7 @@ class OneLineElement:
     label: str
     detuning_pct: float | None = None
     main: bool = False
+    inductive: bool = False
 
 
 @dataclass(frozen=True)
@@ -383,7 +386,7 @@ def _net_elements(model, names: dict, supply_pp: int) -> list[OneLineElement]:
         name = _text(r.get("name")) or f"shunt {i}"
         q = _num(r, "q_mvar", 0.0) * 1000.0 * _num(r, "step", 1.0)
         label = f"{name} {_power(abs(q), 'var')} " + ("reactor" if q > 0 else "capacitor")
-        out.append(OneLineElement("shunt", names[b], name, label, detuning_pct=None))
+        out.append(OneLineElement("shunt", names[b], name, label, inductive=q > 0))
     return out
 
 

@@ -155,7 +155,7 @@ def _order_ticks(ax, res: StudyResult, h_hi: float) -> None:
 
 
 def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str, legend: bool = True,
-                  plain: BankScan | None = None) -> None:
+                  plain: BankScan | None = None, h_hi: float | None = None) -> None:
     """All steps of one bank overlaid, bank off dotted, resonances marked.
 
     Parameters
@@ -173,9 +173,11 @@ def draw_scan_all(ax, res: StudyResult, sc: BankScan, title: str, legend: bool =
     plain : BankScan, optional
         The bank as specified, same scenario: its full bank is drawn beside ``sc``'s steps
         (for a proposed design overlaid on the plain bank) [ohm].
+    h_hi : float, optional
+        Upper end of the h axis (default: the scan's end) [unitless].
     """
     _style_axes(ax)
-    h_max = float(sc.h[-1])
+    h_max = float(sc.h[-1]) if h_hi is None else min(float(h_hi), float(sc.h[-1]))
     mark_orders(ax, res, h_max, res.case.study.margin_pct)
     n = len(sc.steps)
     ax.semilogy(sc.h, sc.z_ohm[0], color=STYLE["off"], lw=0.9, ls=(0, (1, 1.5)), label="bank off")
@@ -367,6 +369,10 @@ def draw_scan_compare(ax, res: StudyResult, plain: BankScan, detuned: BankScan, 
     ax.legend(frameon=False, loc="upper right")
 
 
+#: a legend drawn over data: white box, no edge, so lines under it do not cross its text
+LEGEND_BOX = {"frameon": True, "facecolor": "white", "edgecolor": "none", "framealpha": 0.92, "fancybox": False}
+
+
 def _LIMIT_EDGE():  # noqa: N802 - a constant made on demand (patheffects import is lazy)
     from matplotlib import patheffects as pe  # noqa: PLC0415
 
@@ -419,12 +425,12 @@ def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str
     ax.set_xlim(0.5, max(float(h.max()) + 1.5, 15.0) if h.size else 15.0)
     vals = np.concatenate([v, lim, np.asarray(env_pct if env_pct is not None else [], float)])
     top = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else 0.0
-    ax.set_ylim(0.0, 1.25 * top if top > 0 else 1.0)
+    ax.set_ylim(0.0, 1.5 * top if top > 0 else 1.0)
     ax.xaxis.set_major_locator(MultipleLocator(2.0 if (h.max() if h.size else 0) <= 30 else 5.0))
     ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
     ax.set_ylabel(ylabel, color=STYLE["ink"])
     ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=8.5)
-    ax.legend(frameon=False, loc="upper right")
+    ax.legend(loc="upper right", **LEGEND_BOX)
     plain_numbers(ax)
 
 
@@ -482,8 +488,8 @@ def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str, othe
             ax.axhline(lim, color=STYLE["limit"], lw=1.4, ls=(0, (5, 2)), zorder=4, path_effects=_LIMIT_EDGE(),
                        label=f"limit ({limit_name})")
         if i == 0 or lim is not None:
-            ax.legend(frameon=False, loc="upper left", borderaxespad=0.2, fontsize=5.8, ncols=2,
-                      handlelength=1.6, columnspacing=0.8)
+            ax.legend(loc="upper left", borderaxespad=0.2, fontsize=5.8, ncols=2, handlelength=1.6,
+                      columnspacing=0.8, **LEGEND_BOX)
         top = np.nanmax(np.concatenate(tops + [np.asarray([lim if lim is not None else 0.0])]))
         ax.set_ylim(0.0, 1.55 * top if np.isfinite(top) and top > 0 else 1.0)
         ax.set_xticks(x)

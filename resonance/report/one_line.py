@@ -347,7 +347,7 @@ def _scene(data: OneLine, tree: dict, size: dict, mode: str, wmax: float) -> tup
             cx += bx
             if key[0] == "el":
                 e = data.elements[key[1]]
-                _element(sc, e.kind, cx, y, e.detuning_pct is not None, e.label.endswith("reactor"), True)
+                _element(sc, e.kind, cx, y, e.detuning_pct is not None, e.inductive, True)
             else:
                 _element(sc, "tie", cx, y, False, False, data.branches[key[1]].closed)
             sc.text(key, cx, y + STUB + SYM_H + EL_GAP, "center", "top", size)
@@ -422,7 +422,7 @@ def _fit_line(ax, fig, s: str, pt: float, bold: bool, width: float):
     t = _make_text(ax, s, pt, bold, False)
     w, h = _measure(fig, {0: t})[0]
     if w > width:
-        t.set_text("\n".join(textwrap.wrap(s, max(8, int(len(s) / math.ceil(w / width * 1.08))))))
+        t.set_text("\n".join(textwrap.wrap(s, max(8, int(len(s) * width / w * 0.96)))))
         w, h = _measure(fig, {0: t})[0]
         if w > width:
             t.set_fontsize(pt * width / w * 0.98)

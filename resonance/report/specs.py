@@ -153,11 +153,9 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
     """Figure specs per report section (the per-step plots are handled apart, see :func:`_step_pages`)."""
     specs: dict[str, list] = {"overlay": [], "compare": [], "spectra": [], "duty": [], "band": [], "switching": [],
                               "proposed": [], "one_line": []}
-    try:
-        from resonance.report.one_line import draw_one_line, one_line_size  # noqa: PLC0415
-    except ImportError:  # TEMP until the one-line module lands
-        one_line = None
     if one_line is not None:
+        from resonance.report.one_line import draw_one_line, one_line_size  # noqa: PLC0415
+
         w = 7.2
         h = min(one_line_size(one_line, w), 8.0)
         specs["one_line"].append(_FigSpec(
@@ -207,7 +205,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
                 x, y, w, h = r
                 axes = _grid(fig, (x, y, w, h - 0.25), nrow, ncol, (0.62, 0.15, 0.45, 0.3))
                 for ax, (scan, words) in zip(axes, panels):
-                    rf.draw_scan_all(ax, res, scan, words, legend=False)
+                    rf.draw_scan_all(ax, res, scan, words, legend=False, h_hi=rf.step_view(scan, None))
                 for ax in axes[len(panels):]:
                     ax.set_visible(False)
                 fw, fh = fig.get_size_inches()
