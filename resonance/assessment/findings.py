@@ -26,6 +26,7 @@ CHECKS = {
     "pcc_tdd": "current TDD at the PCC",
     "pcc_i_individual": "an individual harmonic current at the PCC",
     "detuning_tuning": "tuning order of a detuned bank against the lowest significant order",
+    "filter_tuning": "tuning order of a single-tuned filter branch against the harmonic it absorbs",
     "bus_thd_v": "voltage THD at the bank's bus against the in-plant compatibility level",
     "bus_v_individual": "an individual harmonic voltage at the bank's bus against its in-plant level",
     "inrush_peak": "peak inrush current of switching a step against the switching device's rating",

@@ -101,6 +101,13 @@ class _StepAdmittance:
         return bank_step_admittance_dh(h, self._b, self._p, self._q)
 
 
+def _in_with(bank: "BankModel", banks: list, other_mode: str, runs_with: dict) -> list:
+    """The other banks in service (fully) while ``bank`` is swept: all of them with ``[study]
+    other_banks = "full"``, else those the bank runs with (``[[bank]] runs_with``: a filter's
+    lower branches) [unitless]."""
+    return [o for o in banks if o is not bank and (other_mode == "full" or o.name in runs_with.get(bank.name, ()))]
+
+
 def bank_models(case: Case, arr: NetworkArrays, model_bus: dict) -> list[BankModel]:
     """Bank models for every bank of the case [see :class:`BankModel`]."""
     out = []
@@ -485,6 +492,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     # fundamental voltage of every step from a load flow with that step in service
     vm: dict[tuple[str, str], np.ndarray] = {}
     full = {o.name: float(o.q_cap_nominal_kvar()[-1] / (1 - o.p)) for o in banks}
+    runs_with = {b.name: set(b.runs_with) for b in case.bank}
     # the operating envelope: every scenario with its own supply, voltage and loading
     envelope = scenarios_of(case, model.arrays_weak is not None)
     nets = {sn.name: scenario_arrays(arr, model.arrays_weak, sn) for sn in envelope}
@@ -492,7 +500,7 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
         scenario = sn.name
         buses = {b.name: b.bus for b in banks}
         for b in banks:
-            base_q = {o.name: full[o.name] for o in banks if o is not b} if st.other_banks == "full" else {}
+            base_q = {o.name: full[o.name] for o in _in_with(b, banks, st.other_banks, runs_with)}
             v = np.ones(b.n_steps)
             for s in range(b.n_steps):
                 q = float(b.q_cap_nominal_kvar()[s] / (1.0 - b.p))
@@ -506,8 +514,8 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
     for sn in envelope:
         scenario, a = sn.name, nets[sn.name]
         for b in banks:
-            others = [o for o in banks if o is not b]
-            scans.append(_scan_bank(a, b, others, st.other_banks, pcc, h, settings, orders, st.margin_pct,
+            others = _in_with(b, banks, st.other_banks, runs_with)
+            scans.append(_scan_bank(a, b, others, "full", pcc, h, settings, orders, st.margin_pct,
                                     vm[(b.name, scenario)], scenario, pattern, st.h_step))
     # penetration, capacitor duty and distortion limits of every step
     from resonance.assessment.assess import assess_bank, build_injection  # noqa: PLC0415
@@ -523,9 +531,9 @@ def _run_study(case: Case, model, cross_check: bool) -> StudyResult:
         if scenario == "nominal":
             sc_pcc = float(s_pcc)
         for b in banks:
-            others = [o for o in banks if o is not b]
+            others = _in_with(b, banks, st.other_banks, runs_with)
             extra = None
-            if st.other_banks == "full" and others and inj.h.size:
+            if others and inj.h.size:
                 extra = np.zeros((inj.h.size, a.n_bus), complex)
                 for ob in others:
                     extra[:, ob.index] += ob.step_admittance(inj.h.astype(float), a.base_mva)[:, -1]

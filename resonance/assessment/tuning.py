@@ -23,7 +23,15 @@ from resonance.assessment.findings import Finding
 from resonance.errors import InputError
 
 __all__ = ["SETTING_SOURCES", "DetuningSettings", "detuning_settings", "tuning_band", "parallel_band", "tolerance_corners",
-           "significant_orders", "tuning_reasons", "detuned_bank_findings"]
+           "significant_orders", "tuning_reasons", "detuned_bank_findings", "FILTER_MIN_BELOW_PCT",
+           "FILTER_BAND_MARGIN_PCT", "filter_target", "filter_reasons"]
+
+#: a filter branch is tuned at least this far below the harmonic it absorbs [%]: REFERENCES.md
+#: "Tuned harmonic filters" ("tune 3-10 % below the target order", IEEE Std 1531 practice, from memory)
+FILTER_MIN_BELOW_PCT = 3.0
+#: ... and the top of its tolerance band stays this far below it [%] (project choice: the band must
+#: not reach the harmonic, where the branch would take the whole site's current and the background's)
+FILTER_BAND_MARGIN_PCT = 0.5
 
 # ----------------------------------------------------------------------------- settings
 
@@ -339,6 +347,58 @@ def tuning_reasons(n: float, h_low, st: "DetuningSettings") -> list[str]:
     return why
 
 
+def filter_target(n: float, orders) -> int | None:
+    """The harmonic a filter branch tuned at ``n`` absorbs: the lowest of ``orders`` above it
+    (None when it is tuned above all of them) [unitless]."""
+    above = [int(h) for h in orders if h > n]
+    return min(above) if above else None
+
+
+def filter_reasons(n: float, orders, st: "DetuningSettings") -> list[str]:
+    """Why a single-tuned filter branch's tuning is unsafe (empty: it is safe).
+
+    Parameters
+    ----------
+    n : float
+        Nominal tuning order ``1/sqrt(p)`` [unitless].
+    orders : sequence of int
+        Significant harmonic orders present [unitless].
+    st : DetuningSettings
+        ``cap_tolerance_pct``, ``reactor_tolerance_pct`` [%].
+
+    Returns
+    -------
+    list of str
+        Plain-language reasons [unitless].
+
+    Notes
+    -----
+    Fails when no significant order lies above ``n``, when ``n`` is less than
+    :data:`FILTER_MIN_BELOW_PCT` below its target harmonic, or when the top of
+    :func:`tuning_band` comes within :data:`FILTER_BAND_MARGIN_PCT` of it.
+
+    References
+    ----------
+    IEEE Std 1531-2020 (single-tuned filters are tuned a few percent below the harmonic so that
+    tolerances, ageing and temperature do not push them onto it); REFERENCES.md "Tuned harmonic
+    filters" [memory].
+    """
+    target = filter_target(n, orders)
+    if target is None:
+        return [f"tuning order {n:.2f} is above every significant harmonic; the branch absorbs none"]
+    why = []
+    lim = target * (1.0 - FILTER_MIN_BELOW_PCT / 100.0)
+    if n > lim + 1e-9:
+        why.append(f"tuning order {n:.2f} is not {FILTER_MIN_BELOW_PCT:g} % below the harmonic {target} it "
+                   f"absorbs (at most {lim:.2f})")
+    n_hi = tuning_band(n, st.cap_tolerance_pct, st.reactor_tolerance_pct)[1]
+    lim_b = target * (1.0 - FILTER_BAND_MARGIN_PCT / 100.0)
+    if n_hi > lim_b:
+        why.append(f"with tolerances the tuning reaches {n_hi:.2f}, within {FILTER_BAND_MARGIN_PCT:g} % of the "
+                   f"harmonic {target}")
+    return why
+
+
 def detuned_bank_findings(case, sources, characteristic, scans) -> list[Finding]:
     """Findings for a detuned bank given in the case whose tuning is unsafe (same rule as a proposal).
 
@@ -365,12 +425,24 @@ def detuned_bank_findings(case, sources, characteristic, scans) -> list[Finding]
     st = detuning_settings(case)
     background = dict(case.supply.background_pct) if case.supply else {}
     sig = significant_orders(sources, background, st, fallback=characteristic)
+    kinds = {b.name: getattr(b, "kind", "capacitor") for b in case.bank}
     out = []
     for sc in scans:
         bm = sc.bank
         if sc.scenario != "nominal" or bm.p <= 0:
             continue
         n = 1.0 / math.sqrt(bm.p)
+        if kinds.get(bm.name) == "filter":
+            why = filter_reasons(n, sig, st)
+            target = filter_target(n, sig)
+            for s in sc.steps if why else ():
+                out.append(Finding(bank=bm.name, step=s.step, scenario="all", check="filter_tuning",
+                                   value=n, limit=(target or n) * (1.0 - FILTER_MIN_BELOW_PCT / 100.0),
+                                   unit="harmonic order", cause="bank", order=target,
+                                   source="IEEE Std 1531-2020 practice; margins from memory / project choice",
+                                   message=f"filter {bm.name} step {s.step}: tuning p = {100 * bm.p:g} % "
+                                           f"(n = {n:.2f}) is unsafe: " + "; ".join(why)))
+            continue
         why = tuning_reasons(n, sig[0] if sig else None, st)
         if not why:
             continue

@@ -29,7 +29,7 @@ CAUSE_REL_TOL = 0.01
 CAUSE_ABS_TOL_PCT = 0.01
 
 #: checks whose findings are always the bank's (they exist only because of the bank)
-BANK_CHECKS = ("resonance", "duty_v_rms", "duty_v_peak", "duty_i_rms", "duty_kvar", "detuning_tuning",
+BANK_CHECKS = ("resonance", "duty_v_rms", "duty_v_peak", "duty_i_rms", "duty_kvar", "detuning_tuning", "filter_tuning",
                "inrush_peak", "inrush_frequency", "inrush_capacitor", "voltage_step", "energising_overvoltage")
 
 

@@ -231,9 +231,19 @@ class Bank(_Strict):
     #: the switching device's rated transient inrush peak current [kA] and frequency [Hz]
     device_inrush_peak_ka: Num | None = Field(default=None, gt=0.0, le=1000.0)
     device_inrush_hz: Num | None = Field(default=None, gt=0.0, le=200_000.0)
+    #: "capacitor" (a plain or detuned bank) or "filter" (single-tuned harmonic filter branches:
+    #: ``detuning_pct`` = 100 / n^2 with the tuning order n just below the harmonic it absorbs)
+    kind: Literal["capacitor", "filter"] = "capacitor"
+    #: banks (by name) that are always in service, fully, while this bank is in: the interlock of
+    #: a multi-branch filter (the 7th branch only after the 5th); they are the reference "bank off"
+    runs_with: list[str] = Field(default_factory=list, max_length=16)
 
     @model_validator(mode="after")
     def _switching(self) -> "Bank":
+        if self.kind == "filter" and self.detuning_pct is None:
+            raise ValueError("a filter (kind = \"filter\") needs detuning_pct = 100 / n^2 of its tuning order n")
+        if self.name in self.runs_with:
+            raise ValueError(f"runs_with names the bank itself ({self.name!r})")
         n = len(self.steps_kvar)
         for key in ("step_inductance_uh", "bus_length_m"):
             v = getattr(self, key)

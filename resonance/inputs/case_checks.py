@@ -185,6 +185,12 @@ def check_case(case: Case) -> list[InputProblem]:
     if case.demand is not None and case.demand.bank is not None and case.demand.bank not in {b.name for b in case.bank}:
         probs.append(InputProblem(file, "demand.bank", f"no bank named {case.demand.bank!r} (banks: "
                                   + ", ".join(repr(b.name) for b in case.bank) + ")"))
+    names = {b.name for b in case.bank}
+    for i, b in enumerate(case.bank):
+        for j, other in enumerate(b.runs_with):
+            if other not in names:
+                probs.append(InputProblem(file, f"bank[{i}].runs_with[{j}]", f"no bank named {other!r} (banks: "
+                                          + ", ".join(repr(n) for n in sorted(names)) + ")"))
     if case.network is None:
         if case.supply is None:
             probs.append(InputProblem(file, "supply", "required (or give [network] pandapower_json)"))

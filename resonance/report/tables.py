@@ -228,7 +228,7 @@ class Table:
 #: short code of each check in the step tables' result column
 _CODE = {"resonance": "res", "duty_v_rms": "duty", "duty_v_peak": "duty", "duty_i_rms": "duty", "duty_kvar": "duty",
          "pcc_thd_v": "V", "pcc_v_individual": "V", "pcc_tdd": "I", "pcc_i_individual": "I",
-         "detuning_tuning": "tune", "bus_thd_v": "B", "bus_v_individual": "B", "inrush_peak": "sw",
+         "detuning_tuning": "tune", "filter_tuning": "tune", "bus_thd_v": "B", "bus_v_individual": "B", "inrush_peak": "sw",
          "inrush_frequency": "sw", "inrush_capacitor": "sw", "voltage_step": "sw", "energising_overvoltage": "sw"}
 
 
