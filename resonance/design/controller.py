@@ -37,6 +37,11 @@ class ControllerSettings:
         Least time between two switching operations [min].
     initial_step : int
         Step in service at the start [unitless].
+    target_offset_pf : float
+        The controller aims at ``min(target_pf + target_offset_pf, 1)``
+        instead of ``target_pf`` [unitless]; the achieved power factor is
+        still judged against ``target_pf``.  0 (the default) aims at the
+        target itself.
 
     Notes
     -----
@@ -46,6 +51,14 @@ class ControllerSettings:
     operations.  The 5 min default is a setting of this project, chosen to
     exceed usual capacitor discharge times (common practice), not a standard
     value.
+
+    With the symmetric band the controller rests anywhere within half a
+    smallest stage of the aimed reactive power, so about half the time it
+    sits short of it (a deficit) and the power factor is just below the
+    aim.  Aiming a little above the target (``target_offset_pf > 0``) moves
+    that resting band toward more compensation, i.e. it biases the dead band
+    toward switching in: the target is then met most of the time, at the
+    cost of some over-compensation.
     """
 
     target_pf: float = 0.95
@@ -53,6 +66,12 @@ class ControllerSettings:
     switch_out_fraction: float = 0.5
     min_time_between_ops_min: float = 5.0
     initial_step: int = 0
+    target_offset_pf: float = 0.0
+
+    @property
+    def aim_pf(self) -> float:
+        """Power factor the controller aims at, ``min(target_pf + target_offset_pf, 1)`` [unitless]."""
+        return min(float(self.target_pf) + float(self.target_offset_pf), 1.0)
 
 
 @dataclass(frozen=True)
@@ -77,6 +96,9 @@ class ControllerResult:
         Interval length [h].
     target_pf : float
         Target power factor [unitless].
+    aim_pf : float or None
+        Power factor the controller aimed at (target plus offset) [unitless];
+        None means the target itself.
     """
 
     step: np.ndarray = field(repr=False)
@@ -87,6 +109,7 @@ class ControllerResult:
     stages_kvar: tuple[float, ...]
     dt_h: float
     target_pf: float
+    aim_pf: float | None = None
 
     @property
     def hours(self) -> float:
@@ -172,7 +195,8 @@ def simulate_controller(p_kw, q_kvar, dt_h: float, stages_kvar: Sequence[float],
     Notes
     -----
     At step ``k`` the bank delivers ``Q_k = sum(stages[:k])``; the error is
-    ``e = Q - Q_k - P tan(arccos pf_target)`` (positive: deficit).  With
+    ``e = Q - Q_k - P tan(arccos pf_aim)`` (positive: deficit), with
+    ``pf_aim = min(pf_target + offset, 1)`` (:attr:`ControllerSettings.aim_pf`).  With
     ``s_min`` the smallest stage:
 
     * switch in stage ``k+1`` if ``e > a_in s_min`` and
@@ -200,11 +224,12 @@ def simulate_controller(p_kw, q_kvar, dt_h: float, stages_kvar: Sequence[float],
     if not np.all(np.isfinite(st)) or np.any(st <= 0):
         raise InputError.single(_ARGS, "stages_kvar", "every stage must be > 0 kvar")
     s = settings
-    t2 = float(_tan_phi(_check_pf("settings.target_pf", s.target_pf)))
-    for name in ("switch_in_fraction", "switch_out_fraction", "min_time_between_ops_min"):
+    _check_pf("settings.target_pf", s.target_pf)
+    for name in ("switch_in_fraction", "switch_out_fraction", "min_time_between_ops_min", "target_offset_pf"):
         v = getattr(s, name)
         if not (math.isfinite(v) and v >= 0):
             raise InputError.single(_ARGS, f"settings.{name}", f"{v!r} must be a finite number >= 0")
+    t2 = float(_tan_phi(np.asarray(s.aim_pf)))
     n = st.size
     if not (0 <= s.initial_step <= n):
         raise InputError.single(_ARGS, "settings.initial_step", f"{s.initial_step} must be in 0..{n}")
@@ -242,7 +267,7 @@ def simulate_controller(p_kw, q_kvar, dt_h: float, stages_kvar: Sequence[float],
         ops[i] = made
     q_net = q - cum[step]
     return ControllerResult(step, q_net, power_factor(p, q_net), q_net < 0, ops,
-                            tuple(float(x) for x in st), dt_h, float(s.target_pf))
+                            tuple(float(x) for x in st), dt_h, float(s.target_pf), float(s.aim_pf))
 
 
 def time_in_step_table(result: ControllerResult, steps_kvar: Sequence[float] | None = None) -> dict:
