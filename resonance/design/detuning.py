@@ -35,6 +35,7 @@ from resonance.assessment.tuning import (SETTING_SOURCES, DetuningSettings, detu
                                          significant_orders, tuning_band, tuning_reasons)
 from resonance.design.detuned_step import (DetunedStep, capacitor_rating_kv, detuned_step, nameplate_kvar,
                                            next_ratings, rearrange_stages, stage_share_max)
+from resonance.design.mv_rating import LV_LIMIT_KV, rating_ladder
 from resonance.errors import InputError, ModelError
 from resonance.memo import remember
 
@@ -202,11 +203,12 @@ def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarr
                st: DetuningSettings):
     """Ratings and tolerance checks of one tuning order before any re-check.
 
-    Returns ``(cand, why, rate, kv0, p_pct)``: the candidate's figures so far, the
+    Returns ``(cand, why, rate, kv0, p_pct, ladder)``: the candidate's figures so far, the
     reasons it fails the pre-screen (empty: it goes to the re-check), the rating
-    function ``rate(kv) -> (q_np, DetunedStep, tolerance)`` and the first
-    capacitor rating [kV] and detuning [%].  ``sc_mva`` maps each scenario to the
-    short-circuit power at the bank bus [MVA].
+    function ``rate(kv) -> (q_np, DetunedStep, tolerance)``, the first
+    capacitor rating [kV], the detuning [%] and, above 1 kV, the ratings of standard-unit
+    constructions (:func:`~resonance.design.mv_rating.rating_ladder`; None at or below 1 kV).  ``sc_mva`` maps each scenario
+    to the short-circuit power at the bank bus [MVA].
     """
     f_hz = float(case.frequency_hz)
     u = bm.bus_kv
@@ -214,17 +216,28 @@ def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarr
     p = p_pct / 100.0
     n = 1.0 / math.sqrt(p)
     u_c1 = u / (1.0 - p)
-    kv0 = capacitor_rating_kv(u_c1 * (1.0 + st.cap_voltage_margin_pct / 100.0), st.standard_cap_kv, st.mv_cap_step_kv)
+    u_need = u_c1 * (1.0 + st.cap_voltage_margin_pct / 100.0)
+    kv0 = capacitor_rating_kv(u_need, st.standard_cap_kv, st.mv_cap_step_kv)
     h_low = sig[0] if sig else None
     n_lo, n_hi = tuning_band(n, st.cap_tolerance_pct, st.reactor_tolerance_pct)
     why = tuning_reasons(n, h_low, st)
+    ladder = None
+    if u > LV_LIMIT_KV:  # above 1 kV: a construction of standard units, not a made-to-order rating
+        try:
+            ladder = rating_ladder(u, nameplate_kvar(q_net_stage, u_need, u, p), u_need, f_hz, st.max_rating_steps)
+            kv0 = ladder[0][0]
+        except ValueError as e:
+            ladder = []
+            why.append(f"no construction of standard units ({e})")
+    steps_at = dict(ladder or [])
     cand = {"tuning_order": _r(n, 4), "detuning_pct": p_pct, "f_tuning_hz": _r(n * f_hz, 2),
             "u_cap_fundamental_kv": _r(u_c1, 5), "lowest_significant_order": h_low,
             "tolerance": {"cap_pct": list(st.cap_tolerance_pct), "reactor_pct": list(st.reactor_tolerance_pct),
                           "n_band": [_r(n_lo), _r(n_hi)], "hp_band": {}, "touches": []}}
 
     def rate(kv: float) -> tuple[np.ndarray, DetunedStep, dict]:
-        q_np = np.round(nameplate_kvar(q_net_stage, kv, u, p), 1)
+        q_np = (np.asarray(steps_at[kv]["steps_kvar"], float) if kv in steps_at
+                else np.round(nameplate_kvar(q_net_stage, kv, u, p), 1))
         rt = detuned_step(q_np, kv, p, f_hz, u)
         hp = {}
         touch = set()
@@ -242,19 +255,23 @@ def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarr
     if tol["touches"]:
         why.append(f"a parallel resonance band touches significant order(s) {tol['touches']}")
     cand.update({"rated_kv": kv0, "cap_overrating": _r(kv0 / u_c1, 4), "steps_kvar": [float(x) for x in q_np],
-                 "stages": None, "recheck": None, "reactor_q": bank.reactor_q})
+                 "stages": None, "recheck": None, "reactor_q": bank.reactor_q,
+                 "construction": steps_at[kv0] if kv0 in steps_at else None})
     if why:
         cand.update({"qualified": False, "why": "rejected before re-check: " + "; ".join(why)})
         cand["stages"] = [{"stage": k + 1, "q_net_kvar": _r(rt.q_net_kvar[k], 3), "q_nameplate_kvar": _r(q_np[k], 3),
                            "x_c_ohm": _r(rt.x_c_ohm[k], 5), "x_l_ohm": _r(rt.x_l_ohm[k], 5),
                            "l_mh": _r(rt.l_mh[k], 5)} for k in range(q_np.size)]
-    return cand, why, rate, kv0, p_pct
+    return cand, why, rate, kv0, p_pct, ladder
 
 
-def _ratings(kv0: float, u_kv: float, st: DetuningSettings) -> list[float]:
-    """Capacitor ratings a candidate is re-checked at, lowest first [kV]."""
+def _ratings(kv0: float, u_kv: float, st: DetuningSettings, ladder: list | None = None) -> list[float]:
+    """Capacitor ratings a candidate is re-checked at, lowest first [kV]: above 1 kV those of the
+    standard-unit constructions (``ladder``), at or below the listed ratings."""
     out = []
-    for kv in next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, st.max_rating_steps):
+    trial = [kv for kv, _ in ladder] if ladder is not None else next_ratings(
+        kv0, st.standard_cap_kv, st.mv_cap_step_kv, st.max_rating_steps)
+    for kv in trial:
         if kv / u_kv > 1.6:  # the case schema's sanity range for rated_kv
             break
         out.append(kv)
@@ -264,7 +281,7 @@ def _ratings(kv0: float, u_kv: float, st: DetuningSettings) -> list[float]:
 def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np.ndarray, sig: tuple,
                st: DetuningSettings, clock: list) -> dict:
     u = bm.bus_kv
-    cand, why, rate, kv0, p_pct = _prescreen(case, bank, bm, {k: sc.sc_mva for k, sc in scans.items()}, n_req,
+    cand, why, rate, kv0, p_pct, ladder = _prescreen(case, bank, bm, {k: sc.sc_mva for k, sc in scans.items()}, n_req,
                                              q_net_stage, sig, st)
     if why:
         return cand
@@ -272,7 +289,7 @@ def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np
     u_c1 = u / (1.0 - p)
     tried = []
     status = None
-    for kv in _ratings(kv0, u, st):
+    for kv in _ratings(kv0, u, st, ladder):
         q_np, rt, tol = rate(kv)
         try:
             variant = _variant(case, bank, detuning_pct=p_pct, rated_kv=kv, steps_kvar=[float(x) for x in q_np])
@@ -299,6 +316,7 @@ def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np
     cand["tolerance"].update(tol)
     cand.update({
         "rated_kv": kv, "cap_overrating": _r(kv / u_c1, 4), "steps_kvar": [float(x) for x in q_np],
+        "construction": dict(ladder or []).get(kv),
         "ratings_tried_kv": tried, "cap_v_rms_max_kv": _r(v_rms / 100.0 * kv, 5),
         "cap_v_peak_max_kv": _r(v_pk / 100.0 * kv * math.sqrt(2.0), 5),
         "duty_margin_min_pct": _r(min(w["duty_margin_pct"] for w in worst.values()), 3),
@@ -515,6 +533,7 @@ def propose_detuning(case, model, result) -> dict:
                 "lowest_significant_order": b["lowest_significant_order"],
                 "order_margin_pct": st.order_margin_pct,
                 "parallel_resonance": {sc_: hp["nominal"] for sc_, hp in b["tolerance"]["hp_band"].items()},
+                "construction": b["construction"],  # above 1 kV: the standard units (docs/construction.md)
                 "bank_table": {"name": bank.name, "bus": bank.bus, "rated_kv": b["rated_kv"],
                                "steps_kvar": b["steps_kvar"], "detuning_pct": b["detuning_pct"],
                                "reactor_q": b["reactor_q"]},
@@ -525,11 +544,14 @@ def propose_detuning(case, model, result) -> dict:
                    "none sits as well in the usual tuning window with as low a capacitor rating and reactor "
                    "loading") if others else ""
             h_low = b["lowest_significant_order"]
+            con = b["construction"]
+            built = (f" ({con['connection'].replace('_', ' ')}, {con['series_groups']} x {con['unit_kv']:g} kV "
+                     f"standard units in series per string, {con['units_total']} units in all)") if con else ""
             entry["reason"] = (
                 f"Tuning order {b['tuning_order']:.2f} (p = {b['detuning_pct']:g} %, {b['f_tuning_hz']:.0f} Hz) stays "
                 f"below the {_ordinal(h_low)} harmonic even at the tolerance limits (band {b['tolerance']['n_band'][0]:.2f}-"
                 f"{b['tolerance']['n_band'][1]:.2f}) and passes every step in every supply scenario with "
-                f"{b['rated_kv'] * 1000:g} V capacitors (duty margin {b['duty_margin_min_pct']:.1f} %, reactor "
+                f"{b['rated_kv'] * 1000:g} V capacitors{built} (duty margin {b['duty_margin_min_pct']:.1f} %, reactor "
                 f"rms current up to {b['reactor_i_rms_over_i1_max']:.2f} x fundamental){alt}.")
         else:
             entry["reason"] = ("No tuning order qualifies: " + " | ".join(
