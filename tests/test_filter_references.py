@@ -61,7 +61,8 @@ def test_published_series_lc_examples():
 #: McGraw-Hill 2002, ch. 7 (designing a single-tuned filter): a 480 V, 60 Hz plant bus, a
 #: 300 kvar (at 480 V) capacitor bank made into a filter tuned to the 4.7th, checked for duty
 #: with higher-rated (600 V) capacitors.  The figures below are as recalled, to the book's
-#: rounding; the hand computation that follows derives every one of them independently.
+#: rounding (the example's number, page and exact figures are not confirmed); the hand computation
+#: that follows derives every one of them independently, so the check stands without the book.
 RECALLED = {"x_c_ohm": 0.768, "x_l_ohm": 0.0348, "l_mh": 0.0922, "i1_a": 378.0, "u_c1_v": 502.8,
             "q_nameplate_600v_kvar": 469.0}
 
