@@ -226,3 +226,15 @@ def test_water_plant_recommended_bank_passes_its_own_check(mv, tmp_path):
     got = next(b for b in first["banks"] if b["name"] == "C-PUMP")["detuning"]["recommended"]
     assert {"tuning_order", "detuning_pct", "rated_kv", "steps_kvar", "bank_table"} <= set(got)
     assert got["construction"]["stages"][0]["unbalance"] == rec["construction"]["stages"][0]["unbalance"]
+
+
+def test_delta_fallback_rating_is_the_leg_voltage():
+    # 4.16 kV, 60 Hz, need 4.41 kV: a wye needs 2.546 kV per phase -> 4.16 kV units, 7.2 kV rated, 1.73 x bus;
+    # a delta leg needs 4.41 kV -> 1 x 4.8 kV (60 Hz list, from memory), rated 4.8 kV (derived)
+    wye = stage_ratings(4.16, [600.0] * 3, 4.41, 60.0)
+    assert wye["unit_kv"] == 4.16 and wye["rated_kv"] == pytest.approx(SQ3 * 4.16, rel=1e-12)
+    d = stage_ratings(4.16, [600.0] * 3, 4.41, 60.0, connections="delta")
+    assert (d["connection"], d["series_groups"], d["unit_kv"]) == ("delta", 1, 4.8)
+    assert d["rated_kv"] == pytest.approx(4.8, rel=1e-12) and d["overrating"] == pytest.approx(4.8 / 4.41, rel=1e-12)
+    u = d["stages"][0]["unbalance"]
+    assert u["neutral_shift_pu"] is None and u["v_unit_pu"] == 1.0  # S = 1: the source holds the leg (derived)

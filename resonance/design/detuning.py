@@ -224,7 +224,10 @@ def _prescreen(case, bank, bm, sc_mva: dict, n_req: float, q_net_stage: np.ndarr
     ladder = None
     if u > LV_LIMIT_KV:  # above 1 kV: a construction of standard units, not a made-to-order rating
         try:
-            ladder = rating_ladder(u, nameplate_kvar(q_net_stage, u_need, u, p), u_need, f_hz, st.max_rating_steps)
+            q_need = nameplate_kvar(q_net_stage, u_need, u, p)
+            ladder = rating_ladder(u, q_need, u_need, f_hz, st.max_rating_steps)
+            if ladder[0][0] / u > 1.6:  # no wye string of listed units in range: a delta, reactors in line
+                ladder = rating_ladder(u, q_need, u_need, f_hz, st.max_rating_steps, connections="delta")
             kv0 = ladder[0][0]
         except ValueError as e:
             ladder = []
@@ -302,6 +305,9 @@ def _candidate(case, model, bank, bm, scans: dict, n_req: float, q_net_stage: np
         if status["passes"] or not (status["resonance_ok"] and status["pcc_ok"]):
             break
     if status is None:
+        if ladder and not why:
+            why.append(f"the first construction of standard units is rated {ladder[0][0]:g} kV, above 1.6 x the "
+                       f"bus voltage {u:g} kV (the case schema's range for rated_kv)")
         cand.update({"qualified": False, "why": "; ".join(why) or "no rating could be re-checked"})
         return cand
     worst = {}

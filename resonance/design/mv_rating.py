@@ -285,7 +285,7 @@ def stage_ratings(u_bus_kv: float, stages_kvar: Sequence[float], u_need_kv: floa
         q_rated = q * (c.bank_rated_kv / u_need) ** 2
         d = _as_dict(c, u_need, q_rated, f)
         # the stage's own need is the bank's, not the lead's rating: overrating and healthy unit voltage
-        v_req = u_need / math.sqrt(3.0)
+        v_req = u_need if c.connection == "delta" else u_need / math.sqrt(3.0)
         d["required_leg_kv"] = v_req
         d["overrating"] = c.leg_rated_kv / v_req
         if c.unbalance is not None:
@@ -302,7 +302,8 @@ def stage_ratings(u_bus_kv: float, stages_kvar: Sequence[float], u_need_kv: floa
 
 
 def rating_ladder(u_bus_kv: float, stages_kvar: Sequence[float], u_need_kv: float, f_hz: float,
-                  count: int) -> list[tuple[float, dict]]:
+                  count: int, *, connections: str | Sequence[str] = SERIES_REACTOR_CONNECTIONS
+                  ) -> list[tuple[float, dict]]:
     """The first purchasable rating of a switched bank and the next higher ones.
 
     Parameters
@@ -317,6 +318,8 @@ def rating_ladder(u_bus_kv: float, stages_kvar: Sequence[float], u_need_kv: floa
         Fundamental frequency, 50 or 60 [Hz].
     count : int
         How many higher ratings follow the first [unitless], 0 to 5.
+    connections : str or sequence of str, optional
+        As :func:`purchasable_rating` [unitless].
 
     Returns
     -------
@@ -344,7 +347,7 @@ def rating_ladder(u_bus_kv: float, stages_kvar: Sequence[float], u_need_kv: floa
     out: list[tuple[float, dict]] = []
     floor = None
     while len(out) <= count:
-        r = stage_ratings(u_bus_kv, stages_kvar, u_need_kv, f_hz, min_rated_kv=floor)
+        r = stage_ratings(u_bus_kv, stages_kvar, u_need_kv, f_hz, min_rated_kv=floor, connections=connections)
         out.append((round(r["rated_kv"], 4), r))
         floor = r["rated_kv"] * (1.0 + 1e-6)
     return out
