@@ -215,7 +215,8 @@ def _check(args) -> int:
         result = dataclasses.replace(result, case_sha256=hashlib.sha256(case_path.read_bytes()).hexdigest())
         data = result.data
         _write_outputs(args, case_path, out, result)
-        rec_text = _recommended_case(case_path, out, result.proposals, result.switching_proposals)
+        rec_text = _recommended_case(case_path, out, result.proposals, result.switching_proposals,
+                                     result.filter_proposals)
         written = out.commit()
     except BaseException:
         out.discard()
@@ -335,8 +336,23 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         sp = b.get("switching_proposal") or {}
         if sp.get("status") in ("proposed", "none_found"):
             _say(f"bank {b['name']}: switching proposal: {sp.get('reason', '')}")
+        flt = b.get("filter")
+        if flt:
+            from resonance.design.sizing_harmonics import ordinal  # noqa: PLC0415
+
+            _say(f"bank {b['name']}: proposed tuned filter (the recommended design: it clears the PCC current "
+                 "the bank leaves): " + "; ".join(
+                     f"{x['name']} tuned at {x['tuning_order']:.2f} for the {ordinal(x['target_order'])}, {x['kvar']:.0f} kvar "
+                     f"at the bus, capacitors {x['capacitor_rated_kv']:g} kV, reactor {x['reactor_mh']:.4g} mH"
+                     for x in flt["branches"]))
+            _say(f"  {flt['reason']}")
+        elif b.get("filter_search", {}).get("candidates"):
+            _say(f"bank {b['name']}: tuned filter: {b.get('filter_reason', '')}")
     if rec_text is not None:
         _say(f"\nthe recommended design as a case file, ready to check: {out.path / 'recommended_case.toml'}")
+        if "recommended_detuned_case.toml" in {p.name for p in written}:
+            _say(f"the detuned design (protects the bank, leaves the site's PCC current): "
+                 f"{out.path / 'recommended_detuned_case.toml'}")
     for w in data["warnings"]:
         if not args.quiet:
             _say(f"note: {w}")
@@ -345,18 +361,32 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         _say(f"\n{CAUTION}")
 
 
-def _recommended_case(case_path: Path, out, det: dict, switching: dict | None = None) -> str | None:
-    """Stage ``recommended_case.toml`` when a bank has a recommended design; returns its text."""
+def _recommended_case(case_path: Path, out, det: dict, switching: dict | None = None,
+                      filters: dict | None = None) -> str | None:
+    """Stage ``recommended_case.toml`` when a bank has a recommended design; returns its text.
+
+    A proposed filter is the chosen design of its bank (it clears the PCC current the detuned design
+    leaves); the detuned design of such a bank goes to ``recommended_detuned_case.toml``."""
     from resonance.design.recommend import RECOMMENDED_CASE, recommended_case_text  # noqa: PLC0415
 
+    case_text = case_path.read_text(encoding="utf-8-sig")
     designs = {name: d["recommended"]["bank_table"] for name, d in det.items()
                if (d or {}).get("recommended")}
     # a switching proposal goes in where the bank keeps its design and the re-check passes it whole
     for name, d in (switching or {}).items():
         if name not in designs and d.get("recommended") and (d.get("re_check") or {}).get("bank_passes"):
             designs[name] = d["bank_table"]
-    text = recommended_case_text(case_path.read_text(encoding="utf-8-sig"), case_path, out.path, designs,
-                                 tool=f"resonance {__version__}")
+    detuned_only = dict(designs)
+    for name, fp in (filters or {}).items():
+        f = (fp or {}).get("filter")
+        if f:
+            first, *rest = f["bank_tables"]
+            designs[name] = {**first, "extra_banks": rest, "drop_keys": tuple(f.get("drop_keys", ()))}
+    if detuned_only != designs and any(n in detuned_only for n in designs if designs[n] is not detuned_only.get(n)):
+        alt = recommended_case_text(case_text, case_path, out.path, detuned_only, tool=f"resonance {__version__}")
+        if alt is not None:
+            out.write_text("recommended_detuned_case.toml", alt)
+    text = recommended_case_text(case_text, case_path, out.path, designs, tool=f"resonance {__version__}")
     if text is not None:
         out.write_text(RECOMMENDED_CASE, text)
     elif designs:

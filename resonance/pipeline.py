@@ -10,7 +10,7 @@ References
 ----------
 The methods are those of the stages: :mod:`resonance.assessment.study` (frequency scans,
 harmonic penetration, IEEE Std 18 duty, IEEE Std 519 limits), :mod:`resonance.design.detuning`
-(IEEE Std 1531 detuned banks).
+(IEEE Std 1531 detuned banks), :mod:`resonance.design.filter_search` (IEEE Std 1531 tuned filters).
 """
 
 from __future__ import annotations
@@ -67,6 +67,12 @@ class CheckResult:
     #: bank name -> :class:`CheckResult` of the re-check that accepted its recommended design
     #: (the variant case and its study; the report's section on the proposed design reads it)
     rechecks: Mapping[str, "CheckResult"] = field(default_factory=dict)
+    #: bank name -> tuned-filter search outcome (:func:`resonance.design.filter_search.propose_filters`):
+    #: ``filter`` (the proposal or None), ``filter_reason``, ``filter_search``
+    filter_proposals: Mapping[str, dict] = field(default_factory=dict)
+    #: bank name -> :class:`CheckResult` of the detuned design's re-check where a filter took its place
+    #: in ``rechecks`` (the chosen design, written to recommended_case.toml, is the filter)
+    detuned_rechecks: Mapping[str, "CheckResult"] = field(default_factory=dict)
     #: the studied network as plain data for the one-line diagram
     #: (:func:`resonance.model.topology.one_line_data`), None where it could not be drawn
     one_line: Any = None
@@ -115,6 +121,11 @@ class CheckResult:
             sw = self.switching_proposals.get(b.name)
             extra.setdefault(("bank", b.name), {})["switching_proposal"] = sw if sw is not None else {
                 "status": "not_needed", "reason": "every step switches within its limits in every scenario"}
+        for name, fp in self.filter_proposals.items():
+            e = extra.setdefault(("bank", name), {})
+            e["filter"] = fp.get("filter")
+            e["filter_reason"] = fp.get("filter_reason", "")
+            e["filter_search"] = fp.get("filter_search")
         for name, t in self.time_in_step.items():
             extra.setdefault(("bank", name), {})["time_in_step"] = t
             extra[(name, "nominal")] = {k: {"time_fraction": round(f, 5), "hours_in_step": round(hh, 3)}
@@ -227,6 +238,7 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
     from resonance.assessment.study import run_study, with_cross_check  # noqa: PLC0415
     from resonance.design.demand import time_in_step  # noqa: PLC0415
     from resonance.design.detuning import propose_detuning, recommended_studies  # noqa: PLC0415
+    from resonance.design.filter_search import filter_studies, propose_filters  # noqa: PLC0415
     from resonance.design.switching_fix import propose_switching  # noqa: PLC0415
     from resonance.harmonics.engine import CHECK_WORKERS  # noqa: PLC0415
     from resonance.model import netmodel  # noqa: PLC0415
@@ -246,11 +258,18 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
             detuned = {n: r.scans_for(n) for n, (_c, r) in studies.items() if r.scans_for(n) is not None}
             rechecks = {n: CheckResult(case=c, study=r) for n, (c, r) in studies.items()}
             switching = propose_switching(checked, model, study)
+            filters = propose_filters(checked, model, study)
+            detuned_rc = {}
+            for n, (c, r) in filter_studies(checked, model, filters).items():
+                if n in rechecks:
+                    detuned_rc[n] = rechecks[n]
+                rechecks[n] = CheckResult(case=c, study=r)  # the chosen design: the filter
             one_line = _one_line(model, checked)
     finally:
         CHECK_WORKERS.reset(token)
     return CheckResult(case=checked, study=study, proposals=proposals, time_in_step=tis, detuned_scans=detuned,
-                       case_sha256=sha, switching_proposals=switching, rechecks=rechecks, one_line=one_line)
+                       case_sha256=sha, switching_proposals=switching, rechecks=rechecks, one_line=one_line,
+                       filter_proposals=filters, detuned_rechecks=detuned_rc)
 
 
 def _one_line(model, case):

@@ -20,7 +20,8 @@ __all__ = ["RECOMMENDED_CASE", "recommended_case_text"]
 RECOMMENDED_CASE = "recommended_case.toml"
 
 #: bank keys a proposal sets, in the order they are written when missing
-_BANK_KEYS = ("rated_kv", "steps_kvar", "detuning_pct", "reactor_q", "inrush_reactor_uh", "pre_insertion_ohm")
+_BANK_KEYS = ("kind", "rated_kv", "steps_kvar", "detuning_pct", "reactor_q", "runs_with", "inrush_reactor_uh",
+              "pre_insertion_ohm")
 #: keys holding paths relative to the case's folder, by table
 _PATH_KEYS = {"network": "pandapower_json", "demand": "intervals_csv"}
 
@@ -84,12 +85,18 @@ def _key_span(lines: list[str], i: int) -> int:
     return j
 
 
-def _set_keys(lines: list[str], start: int, end: int, values: dict) -> list[str]:
-    """Lines ``start:end`` of one table with ``values`` set (replaced in place or appended)."""
+def _set_keys(lines: list[str], start: int, end: int, values: dict, drop=()) -> list[str]:
+    """Lines ``start:end`` of one table with ``values`` set (replaced in place or appended) and the keys
+    of ``drop`` commented out."""
     body = lines[start:end]
     out, done, i = [], set(), 0
     while i < len(body):
         m = _KEY_RE.match(body[i])
+        if m and m.group(1) in drop:
+            j = _key_span(body, i)
+            out.extend(f"# {x}    # not for the recommended design" for x in body[i:j])
+            i = j
+            continue
         if m and m.group(1) in values:
             k = m.group(1)
             j = _key_span(body, i)
@@ -160,8 +167,14 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
                     bank_name = json.loads(lit) if lit.startswith('"') else lit[1:-1]
                     break
             if bank_name in designs:
-                vals = {k: designs[bank_name][k] for k in _BANK_KEYS if designs[bank_name].get(k) is not None}
-                chunk = _set_keys(lines, a, b, vals)
+                d = designs[bank_name]
+                vals = {k: d[k] for k in _BANK_KEYS if d.get(k) is not None}
+                chunk = _set_keys(lines, a, b, vals, d.get("drop_keys", ()))
+                for extra in d.get("extra_banks", ()):
+                    while chunk and not chunk[-1].strip():
+                        chunk = chunk[:-1]
+                    chunk = chunk + ["", "[[bank]]    # recommended: a further branch of the filter"] + [
+                        f"{k} = {_toml_value(v)}" for k, v in extra.items() if v is not None] + [""]
                 replaced.append(bank_name)
         elif name in _PATH_KEYS:
             key = _PATH_KEYS[name]
@@ -197,6 +210,11 @@ def recommended_case_text(case_text: str, case_path: "str | os.PathLike[str]", o
 def _describe(d: dict) -> str:
     """One line on what a design changes (detuning, inrush reactor, pre-insertion resistor)."""
     parts = []
+    if d.get("kind") == "filter":
+        tabs = [d, *d.get("extra_banks", ())]
+        return (f"single-tuned filter, {len(tabs)} branch{'es' if len(tabs) > 1 else ''}: " + "; ".join(
+            f"{t.get('name', '')} tuned at {(100.0 / t['detuning_pct']) ** 0.5:.2f}, {t['steps_kvar'][0]:g} kvar "
+            f"at {t['rated_kv']:g} kV" for t in tabs))
     if d.get("detuning_pct") is not None:
         parts.append(f"detuned p = {d['detuning_pct']:g} %, capacitors {d['rated_kv']:g} kV, "
                      f"stages {', '.join(f'{q:g}' for q in d['steps_kvar'])} kvar")
@@ -219,10 +237,13 @@ def _holds(text: str, designs: dict) -> bool:
         return False
     banks = {b.get("name"): b for b in doc.get("bank", []) if isinstance(b, dict)}
     for name, d in designs.items():
-        b = banks.get(name)
-        if b is None:
-            return False
-        for k in _BANK_KEYS:
-            if d.get(k) is not None and b.get(k) != d[k]:
+        for want in (d, *d.get("extra_banks", ())):
+            b = banks.get(want.get("name", name))
+            if b is None:
+                return False
+            for k in _BANK_KEYS:
+                if want.get(k) is not None and b.get(k) != want[k]:
+                    return False
+            if any(k in b for k in d.get("drop_keys", ()) if want is d):
                 return False
     return True

@@ -391,6 +391,39 @@ class Project(_Strict):
     paper: Literal["letter", "a4"] | None = None
 
 
+class FilterTable(_Strict):
+    """Optional ``[filter]``: the tuned-filter proposal (:mod:`resonance.design.filter_search`).
+
+    Defaults and their sources: :data:`resonance.design.filter_search.FILTER_DEFAULTS`.
+    """
+
+    #: "auto": where a PCC current is beyond its limit with a bank; "always"; "never"
+    propose: Literal["auto", "always", "never"] = "auto"
+    #: harmonic orders the branches may absorb (default: the significant orders)
+    orders: list[int] | None = Field(default=None, min_length=1, max_length=8)
+    #: most single-tuned branches in one filter
+    max_branches: int = Field(default=3, ge=1, le=4)
+    #: the filter's net output at the bus, all branches [kvar] (default: the bank's full output)
+    kvar: Num | None = Field(default=None, gt=0.0, le=1.0e6)
+    #: reactor quality factor X_n / R at the tuning frequency [unitless]
+    reactor_q: Num = Field(default=40.0, gt=1.0, le=1000.0)
+    #: nominal tuning below the absorbed harmonic [%]
+    below_pct: Num = Field(default=6.0, ge=3.0, le=20.0)
+    #: further capacitor ratings tried above the lowest one [unitless]
+    rating_steps: int = Field(default=2, ge=0, le=4)
+    #: total kvar tried, as factors of ``kvar`` (the larger only where the smaller is not enough)
+    kvar_factors: list[Num] = Field(default_factory=lambda: [1.0, 1.25, 1.5], min_length=1, max_length=6)
+    #: banks to search for (default: every bank)
+    banks: list[str] | None = Field(default=None, max_length=64)
+
+    @field_validator("orders")
+    @classmethod
+    def _orders(cls, v):
+        if v is not None and any(h < 2 or h > 100 for h in v):
+            raise ValueError("orders must be harmonic orders from 2 to 100")
+        return v
+
+
 class Case(_Strict):
     """A whole study case as read from one TOML file."""
 
@@ -405,6 +438,7 @@ class Case(_Strict):
     network: NetworkFile | None = None
     study: StudySettings = Field(default_factory=StudySettings)
     detuning: DetuningTable | None = None
+    filter: FilterTable = Field(default_factory=FilterTable)
     demand: DemandLink | None = None
     envelope: Envelope = Field(default_factory=Envelope)
     project: Project = Field(default_factory=Project)
