@@ -35,10 +35,11 @@ from resonance.assessment.tuning import (FILTER_BAND_MARGIN_PCT, detuning_settin
 from resonance.assessment.verdict import bank_findings, site_findings
 from resonance.design.detuned_step import capacitor_rating_kv, detuned_step, nameplate_kvar, next_ratings
 from resonance.design.detuning import run_variant
+from resonance.design.mv_rating import LV_LIMIT_KV, rating_ladder
 from resonance.errors import InputError, ModelError
 
 __all__ = ["PCC_CURRENT_CHECKS", "FILTER_DEFAULTS", "SPLITS", "branch_tuning", "filter_settings",
-           "propose_filters", "filter_studies", "branch_names", "dropped_keys"]
+           "propose_filters", "filter_studies", "branch_names", "dropped_keys", "branch_rating"]
 
 #: the PCC current checks a filter is proposed for (IEEE Std 519-2014 Table 2)
 PCC_CURRENT_CHECKS = ("pcc_i_individual", "pcc_tdd")
@@ -264,13 +265,64 @@ def _describe(c: dict) -> str:
     return " + ".join(f"{b['kvar']:g} kvar at {b['n']:.2f} ({b['kv']:g} kV)" for b in c["branches"])
 
 
-def _study(case, model, bank, names, orders, ns, kvs, split, q_total, factor, fs, u):
+def branch_rating(u_kv: float, q_net_kvar: float, n: float, step: int, st, f_hz: float):
+    """Capacitor rating of one branch: rung ``step`` of the ratings that can be bought.
+
+    Parameters
+    ----------
+    u_kv : float
+        Bus voltage [kV].
+    q_net_kvar : float
+        The branch's net output at the bus [kvar].
+    n : float
+        Tuning order [unitless].
+    step : int
+        0 for the lowest rating at or above ``U/(1 - 1/n^2)`` (plus ``cap_voltage_margin_pct``), 1 the
+        next, ... [unitless].
+    st : DetuningSettings
+        ``standard_cap_kv``, ``mv_cap_step_kv``, ``cap_voltage_margin_pct`` [kV, %].
+    f_hz : float
+        Fundamental frequency [Hz].
+
+    Returns
+    -------
+    tuple
+        (rated kV, nameplate kvar at it, construction dict or None) [kV, kvar]; above 1 kV the rating
+        is a construction of standard units (:func:`resonance.design.mv_rating.rating_ladder`).
+
+    References
+    ----------
+    IEEE Std 18-2002 (``Q = Q_R (U/U_R)^2``); IEEE Std 1531-2020 (capacitor voltage of a tuned
+    branch ``U/(1 - 1/n^2)``); REFERENCES.md "Tuned harmonic filters" [memory].
+    """
+    p = 1.0 / n**2
+    u_need = u_kv / (1.0 - p) * (1.0 + st.cap_voltage_margin_pct / 100.0)
+    if u_kv > LV_LIMIT_KV:
+        q_need = float(nameplate_kvar(q_net_kvar, u_need, u_kv, p))
+        lad = rating_ladder(u_kv, [q_need], u_need, f_hz, step)
+        if lad[0][0] / u_kv > 1.6:  # no wye of listed units within range: delta, reactors in line
+            lad = rating_ladder(u_kv, [q_need], u_need, f_hz, step, connections="delta")
+        kv, d = lad[step]
+        return kv, float(d["steps_kvar"][0]), d["stages"][0]
+    kv0 = capacitor_rating_kv(u_need, st.standard_cap_kv, st.mv_cap_step_kv)
+    kv = next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, step)[step]
+    return kv, float(np.round(nameplate_kvar(q_net_kvar, kv, u_kv, p), 1)), None
+
+
+def _study(case, model, bank, names, orders, ns, step, split, q_total, factor, fs, st, u):
     """One candidate: the variant case studied and judged (plain dict, and what the proposal needs)."""
-    q_np = [float(np.round(nameplate_kvar(q_total * s, kv, u, 1.0 / n**2), 1)) for s, kv, n in zip(split, kvs, ns)]
+    c = {"branches": [], "split": list(split), "kvar_factor": factor}
+    try:
+        rated = [branch_rating(u, q_total * s, n, step, st, float(case.frequency_hz)) for s, n in zip(split, ns)]
+    except ValueError as e:
+        c.update({"qualified": False, "why": f"no capacitor rating ({e})", "pcc_over_limit_max": None,
+                  "duty_only": False})
+        return c, None
+    kvs = [r[0] for r in rated]
+    q_np = [r[1] for r in rated]
     tables = _bank_tables(names, orders, ns, kvs, q_np, bank, fs["reactor_q"])
-    c = {"branches": [{"order": h, "n": n, "kvar": round(q_total * s, 1), "kv": kv, "kvar_nameplate": q}
-                      for h, n, s, kv, q in zip(orders, ns, split, kvs, q_np)], "split": list(split),
-         "kvar_factor": factor}
+    c["branches"] = [{"order": h, "n": n, "kvar": round(q_total * s, 1), "kv": kv, "kvar_nameplate": q,
+                      "construction": r[2]} for h, n, s, kv, q, r in zip(orders, ns, split, kvs, q_np, rated)]
     try:
         variant = _filter_variant(case, bank, tables)
         res = run_variant(variant, model)
@@ -300,23 +352,18 @@ def _search(case, model, bank, orders_all, fs, st, u, q_total, factor, cands, be
         if {*names} & {b.name for b in case.bank if b.name != bank.name}:
             break
         ns = [branch_tuning(h, fs["below_pct"], st.cap_tolerance_pct, st.reactor_tolerance_pct) for h in orders]
-        ladders = []
-        for n in ns:
-            kv0 = capacitor_rating_kv(u / (1.0 - 1.0 / n**2) * (1.0 + st.cap_voltage_margin_pct / 100.0),
-                                      st.standard_cap_kv, st.mv_cap_step_kv)
-            ladders.append(next_ratings(kv0, st.standard_cap_kv, st.mv_cap_step_kv, fs["rating_steps"]))
         good = []
         for split in SPLITS.get(k, SPLITS[max(SPLITS)]):
             for step in range(fs["rating_steps"] + 1):
-                kvs = [lad[step] for lad in ladders]
-                c, full = _study(case, model, bank, names, orders, ns, kvs, split, q_total, factor, fs, u)
+                c, full = _study(case, model, bank, names, orders, ns, step, split, q_total, factor, fs, st, u)
                 cands.append(c)
                 if full is None:
                     break
                 if not c["own_findings"] and (best is None or c["pcc_over_limit_max"] < best[0]["pcc_over_limit_max"]):
                     best = full
                 if c["qualified"]:
-                    good.append((max(kvs), sum(b["kvar_nameplate"] for b in c["branches"]), len(good), full))
+                    good.append((max(b["kv"] for b in c["branches"]), sum(b["kvar_nameplate"] for b in c["branches"]),
+                                 len(good), full))
                     break
                 if not c["duty_only"]:
                     break  # a higher capacitor rating does not change the PCC current or the tuning
@@ -431,6 +478,8 @@ def propose_filters(case, model, result) -> dict:
         orders_c = [b["order"] for b in c["branches"]]
         branches = _branch_figures(res, variant, branch_names(bank.name, orders_c), orders_c, u,
                                    float(case.frequency_hz))
+        for br, cb in zip(branches, c["branches"]):
+            br["construction"] = cb["construction"]
         losses = sum(b["losses_kw"] for b in branches)
         q_chosen = q_total * c["kvar_factor"]
         more = ("" if c["kvar_factor"] == 1.0 else
