@@ -46,6 +46,7 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from resonance import __version__  # noqa: E402
 from resonance.report import figures as rf  # noqa: E402
 from resonance.report import proposed as rp  # noqa: E402
+from resonance.report.filter_report import construction_table, filter_tables  # noqa: E402
 from resonance.report.layout import GREY, M_BOTTOM, M_LEFT, M_RIGHT, _Doc  # noqa: E402
 from resonance.report.specs import _fig_specs, _FigSpec, _step_pages, file_jobs  # noqa: E402
 from resonance.report.tables import (Column, Table, _fmt_any, _limits, _safe, limit_set_words,  # noqa: E402
@@ -187,10 +188,18 @@ class _Book:
         for name, rc in (self.rechecks.items() if tables else ()):
             tables += rp.proposed_tables(rc, name)
             bank = next((b for b in self.data["banks"] if b["name"] == name), None)
+            flt = (bank or {}).get("filter")
+            for br in (flt or {}).get("branches", [])[1:]:  # the further branches of a filter
+                tables += rp.proposed_tables(rc, br["name"])
             rec = ((bank or {}).get("detuning") or {}).get("recommended")
-            rt = rp.reactor_table(rec, name) if rec else None
+            rt = rp.reactor_table(rec, name) if rec and not flt else None
             if rt is not None:
                 tables.append(rt)
+        for b in (self.data["banks"] if tables else ()):
+            tables += filter_tables(b)
+            ct = construction_table(b)
+            if ct is not None:
+                tables.append(ct)
         self.tables = tables
         self.tbl = {t.name: t for t in tables}
         self.specs = _fig_specs(self.res, self.data, dict(result.detuned_scans), self.rechecks,
@@ -435,7 +444,10 @@ class _Book:
             rec = det.get("recommended")
             rc = self.rechecks.get(name)
             t_rec = tbl.get(f"table_detuning_recommended_{_safe(name)}.csv")
-            if rec and rc is not None:
+            if b.get("filter") and rc is not None:
+                any_rec = True
+                self._filter(doc, place, b, rc, rec, t_rec)
+            elif rec and rc is not None:
                 any_rec = True
                 verdict = ("passes every check of the bank in every scenario" if not rc.bank_findings else
                            f"leaves {len(rc.bank_findings)} finding(s) of the bank's")
@@ -455,6 +467,11 @@ class _Book:
                 rt = tbl.get(f"table_proposed_reactor_{_safe(name)}.csv")
                 if rt is not None:
                     doc.table(rt, size=7.0)
+                ct = tbl.get(f"table_construction_{_safe(name)}.csv")
+                if ct is not None:
+                    doc.table(ct, size=7.0)
+                if (b.get("filter_search") or {}).get("candidates"):
+                    doc.para(f"Tuned filter: {b.get('filter_reason', '')}", size=8.0)
             elif det:
                 doc.para(f"Bank {name}: no detuned design is proposed. {det.get('reason') or det.get('status') or ''}",
                          size=8.5)
@@ -462,6 +479,37 @@ class _Book:
                 doc.para("Every candidate the search tried, and why each was or was not chosen: Appendix D.", size=8.0)
         if not any_rec and not any((b.get("detuning") or {}) for b in data["banks"]):
             doc.para(f"Detuning reactor proposal: {NOT_EVALUATED}.")
+
+    def _filter(self, doc: _Doc, place, b: dict, rc, rec, t_rec) -> None:
+        """The proposed tuned filter of one bank: the claim, the branches, the PCC, each branch's proof."""
+        tbl, name, flt = self.tbl, b["name"], b["filter"]
+        own = [f for f in rc.bank_findings if f.bank in {x["name"] for x in flt["branches"]}]
+        doc.para(f"Bank {name}: the site's own PCC current is beyond its IEEE 519 limits, which a detuned bank does "
+                 f"not change; the recommended design is a tuned filter in the bank's place. {flt['reason']} It was "
+                 f"re-checked by the same assessment as the plain bank: {len(own)} finding(s) of its branches, "
+                 f"site {'within every limit' if rc.site_passed else 'still with findings of its own'}. The tables "
+                 "below are that re-check (the numbers 'resonance check' gives for recommended_case.toml).", size=8.5)
+        for key in (f"table_filter_{_safe(name)}.csv", f"table_filter_pcc_{_safe(name)}.csv",
+                    f"table_construction_{_safe(name)}.csv"):
+            if key in tbl:
+                doc.table(tbl[key], size=7.0)
+        for br in flt["branches"]:
+            t = tbl.get(f"table_proposed_{_safe(br['name'])}.csv")
+            if t is not None:
+                doc.table(t, size=7.0)
+        for spec in self.specs["proposed"]:
+            if spec.bank == name:
+                place(spec)
+        if rec:
+            doc.para(f"Alternative, protecting the bank only: a detuned bank with tuning order n = "
+                     f"{rec['tuning_order']:.2f} (p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV "
+                     "(recommended_detuned_case.toml); it passes the bank's own checks but leaves the site's PCC "
+                     "current beyond its limits.", size=8.0)
+            if t_rec is not None:
+                doc.table(t_rec, size=7.0)
+            for spec in self.specs["compare"]:
+                if spec.bank == name:
+                    place(spec)
 
     # ------------------------------------------------------------------------------------
     def decorate(self, doc: _Doc) -> None:

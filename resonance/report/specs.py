@@ -128,6 +128,18 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
     out = []
     s = _safe(name)
     pb = rp.proposed_bank(recheck, name)
+    flt = bank.get("filter")
+    if flt:  # the chosen design is a tuned filter: its scan, branch by branch
+        from resonance.report.filter_report import draw_filter_scan  # noqa: PLC0415
+
+        names = [b["name"] for b in flt["branches"]]
+        out.append(_FigSpec(
+            f"scan_{s}_filter", (8.2, 4.0),
+            lambda fig, r, rr=recheck.study, nm=names: draw_filter_scan(
+                _axes(fig, r, (0.72, 0.45, 0.5, 0.42)), rr, plain, nm,
+                f"Proposed tuned filter in place of bank {name}: the branches switched in, nominal supply"),
+            OVERLAY_PAGE_H + 0.4, name))
+        return out  # each branch is one step: its duty in every scenario is in the branch table
     if det is not None:
         out.append(_FigSpec(
             f"scan_{s}_proposed", (8.2, 4.0),
