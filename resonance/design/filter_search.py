@@ -35,6 +35,7 @@ from resonance.assessment.tuning import (FILTER_BAND_MARGIN_PCT, detuning_settin
 from resonance.assessment.verdict import bank_findings, site_findings
 from resonance.design.detuned_step import capacitor_rating_kv, detuned_step, nameplate_kvar, next_ratings
 from resonance.design.detuning import run_variant
+from resonance.design.filter_branch import design_branch
 from resonance.design.mv_rating import LV_LIMIT_KV, rating_ladder
 from resonance.errors import InputError, ModelError
 
@@ -48,7 +49,7 @@ PCC_CURRENT_CHECKS = ("pcc_i_individual", "pcc_tdd")
 FILTER_DEFAULTS: dict[str, Any] = {
     "propose": "auto",
     "max_branches": 3,
-    "reactor_q": 40.0,
+    "quality": 40.0,
     "below_pct": 6.0,
     "rating_steps": 2,
     "kvar_factors": [1.0, 1.25, 1.5],
@@ -57,7 +58,8 @@ FILTER_SOURCES = {
     "propose": "project choice: 'auto' searches where a PCC current is beyond its limit with a bank in any "
                "scenario; 'always' for every bank; 'never' for none",
     "max_branches": "common practice: industrial filters have one to three single-tuned branches (5th, 7th, 11th)",
-    "reactor_q": "REFERENCES.md 'Tuned harmonic filters': Q = X_n/R typical 20-100 [memory]; 40 a mid choice",
+    "quality": "REFERENCES.md 'Tuned harmonic filters': Q = X_n/R at the tuning frequency typical 20-100 [memory]; "
+               "40 a mid choice; the branch's reactor_q (X_L/R at the fundamental, as the model uses it) is Q/n",
     "below_pct": "REFERENCES.md 'Tuned harmonic filters': tune 3-10 % below the target order, e.g. 4.7 for the "
                  "5th [memory]; lowered further where the tolerance band would reach the harmonic",
     "kvar": "the kvar the site needs: the bank's full net output at the bus unless [filter] kvar is given",
@@ -170,8 +172,9 @@ def _branch_figures(res, variant, names, orders, u_kv: float, f_hz: float) -> li
         i_rms = max(s.fields["bank_i_rms_a"] for a in mine for s in a.steps)
         # peak: arithmetic sum of the per-order peaks (IEEE Std 18 convention for the crest)
         i_pk, absorbed, loss_kw = 0.0, {}, 0.0
-        x_n = math.sqrt(ds.x_l_ohm[0] * ds.x_c_ohm[0])
-        r_ohm = x_n / b.reactor_q  # Q = X_n / R at the tuning frequency (REFERENCES.md [memory])
+        # the branch's L, C, R by the single-tuned branch arithmetic (IEEE Std 1531; resonance.design.filter_branch)
+        fb = design_branch(float(ds.q_net_kvar[0]), u_kv, ds.n, f_hz, reactor_q=b.reactor_q, u_cap_rated_kv=b.rated_kv)
+        r_ohm = fb.r_ohm
         for a in mine:
             for s in a.steps:
                 hs = s.fields["harmonics"]
@@ -197,8 +200,8 @@ def _branch_figures(res, variant, names, orders, u_kv: float, f_hz: float) -> li
             "detuning_pct": round(100.0 * p, 4), "kvar": round(float(ds.q_net_kvar[0]), 2),
             "kvar_nameplate": round(float(b.steps_kvar[0]), 2), "capacitor_rated_kv": b.rated_kv,
             "capacitor_v1_kv": round(ds.u_c1_kv, 5), "reactor_mh": round(float(ds.l_mh[0]), 5),
-            "capacitor_uf": round(1.0e6 / (2.0 * math.pi * f_hz * float(ds.x_c_ohm[0])), 3),
-            "reactor_r_ohm": round(r_ohm, 6), "reactor_q": b.reactor_q,
+            "capacitor_uf": round(fb.c_uf, 3), "reactor_r_ohm": round(r_ohm, 6), "reactor_q": b.reactor_q,
+            "quality_factor": round(fb.q_factor, 2), "bandwidth_orders": round(fb.bandwidth_orders, 4),
             "tuning_band": [round(band[0], 4), round(band[1], 4)],
             "reactor_i_rms_a": round(i_rms, 3), "reactor_i_peak_a": round(i_pk, 3),
             "i_fundamental_a": round(float(ds.q_net_kvar[0]) / (math.sqrt(3.0) * u_kv), 3),
@@ -227,12 +230,14 @@ def dropped_keys(bank) -> list[str]:
     return [k for k in _CARRIED if isinstance(getattr(bank, k), list)]
 
 
-def _bank_tables(names, orders, ns, kvs, q_np, bank, reactor_q: float) -> list[dict]:
-    """The ``[[bank]]`` tables of the branches, in the order they are written (lowest order first)."""
+def _bank_tables(names, orders, ns, kvs, q_np, bank, quality: float) -> list[dict]:
+    """The ``[[bank]]`` tables of the branches, in the order they are written (lowest order first); each
+    branch's ``reactor_q`` (X_L/R at the fundamental) is ``quality / n`` (``Q = X_n/R = n X_L/R``)."""
     tables = []
     for i, name in enumerate(names):
         t = {"name": name, "bus": bank.bus, "kind": "filter", "rated_kv": kvs[i], "steps_kvar": [float(q_np[i])],
-             "detuning_pct": round(100.0 / ns[i] ** 2, 4), "reactor_q": reactor_q, "runs_with": list(names[:i])}
+             "detuning_pct": round(100.0 / ns[i] ** 2, 4), "reactor_q": round(max(quality / ns[i], 1.01), 3),
+             "runs_with": list(names[:i])}
         if i:
             t.update(_carried(bank))
         tables.append(t)
@@ -320,7 +325,7 @@ def _study(case, model, bank, names, orders, ns, step, split, q_total, factor, f
         return c, None
     kvs = [r[0] for r in rated]
     q_np = [r[1] for r in rated]
-    tables = _bank_tables(names, orders, ns, kvs, q_np, bank, fs["reactor_q"])
+    tables = _bank_tables(names, orders, ns, kvs, q_np, bank, fs["quality"])
     c["branches"] = [{"order": h, "n": n, "kvar": round(q_total * s, 1), "kv": kv, "kvar_nameplate": q,
                       "construction": r[2]} for h, n, s, kv, q, r in zip(orders, ns, split, kvs, q_np, rated)]
     try:
@@ -338,8 +343,7 @@ def _study(case, model, bank, names, orders, ns, step, split, q_total, factor, f
         why.append(f"PCC current still beyond its limit (up to {ratio:.2f} x the limit)")
     c.update({"qualified": not why, "why": "; ".join(why[:8]) or "clears every PCC current finding "
               "and every branch passes in every scenario", "pcc_over_limit_max": round(ratio, 4),
-              "own_findings": len(own), "duty_only": bool(own) and not left and all(f.check.startswith("duty_")
-                                                                                    for f in own)})
+              "own_findings": len(own), "duty_only": bool(own) and all(f.check.startswith("duty_") for f in own)})
     return c, (c, variant, res, tables, per)
 
 
@@ -359,14 +363,15 @@ def _search(case, model, bank, orders_all, fs, st, u, q_total, factor, cands, be
                 cands.append(c)
                 if full is None:
                     break
-                if not c["own_findings"] and (best is None or c["pcc_over_limit_max"] < best[0]["pcc_over_limit_max"]):
+                if best is None or (c["own_findings"], c["pcc_over_limit_max"]) < (
+                        best[0]["own_findings"], best[0]["pcc_over_limit_max"]):
                     best = full
                 if c["qualified"]:
                     good.append((max(b["kv"] for b in c["branches"]), sum(b["kvar_nameplate"] for b in c["branches"]),
                                  len(good), full))
                     break
                 if not c["duty_only"]:
-                    break  # a higher capacitor rating does not change the PCC current or the tuning
+                    break  # a higher capacitor rating changes the capacitor duty only
         if good:
             return min(good, key=lambda t: t[:3])[3], best
     return None, best
@@ -379,7 +384,8 @@ def propose_filters(case, model, result) -> dict:
     ----------
     case : Case
         The case as given (its optional ``[filter]`` table: ``propose``, ``orders``, ``max_branches``,
-        ``kvar`` [kvar], ``reactor_q`` [unitless], ``below_pct`` [%], ``rating_steps``, ``banks``).
+        ``kvar`` [kvar], ``kvar_factors``, ``quality`` (Q = X_n/R at the tuning frequency) [unitless],
+        ``below_pct`` [%], ``rating_steps``, ``banks``).
     model : PlantModel
         The plant model of ``result`` (re-used for every re-check).
     result : StudyResult
@@ -416,7 +422,7 @@ def propose_filters(case, model, result) -> dict:
     background = dict(case.supply.background_pct) if case.supply else {}
     sig = significant_orders(sources, background, st, fallback=result.orders.characteristic)
     orders_all = sorted({int(h) for h in (fs["orders"] or sig) if int(h) >= 2})
-    settings_out = {k: fs[k] for k in ("propose", "max_branches", "reactor_q", "below_pct", "rating_steps", "kvar_factors",
+    settings_out = {k: fs[k] for k in ("propose", "max_branches", "quality", "below_pct", "rating_steps", "kvar_factors",
                                        "orders", "kvar", "banks")}
     settings_out.update({"orders_searched": orders_all, "splits": {str(k): [list(s) for s in v] for k, v in SPLITS.items()},
                          "sources": FILTER_SOURCES})
@@ -452,23 +458,27 @@ def propose_filters(case, model, result) -> dict:
         entry["filter_search"]["kvar_total"] = round(q_total, 2)
         entry["filter_search"]["re_checks"] = len(cands)
         fac = "/".join(f"{f:g}" for f in fs["kvar_factors"])
-        space = (f"1-{min(fs['max_branches'], len(orders_all))} branches absorbing the "
+        kmax = min(fs["max_branches"], len(orders_all))
+        space = (("1 branch" if kmax == 1 else f"1-{kmax} branches") + " absorbing the "
                  f"{', '.join(str(h) for h in orders_all[:fs['max_branches']])}, {q_total:.0f} kvar in all "
                  f"(x {fac}), {fs['rating_steps'] + 1} capacitor ratings, {len(cands)} designs studied")
         if chosen is None:
             if best is None:
-                entry["filter_reason"] = (f"No filter within the searched space ({space}) passes its own checks "
-                                          "in every scenario: " + " | ".join(c["why"] for c in cands[:4]))[:2000]
+                entry["filter_reason"] = (f"No filter within the searched space ({space}) could be studied: "
+                                          + " | ".join(c["why"] for c in cands[:4]))[:2000]
             else:
                 c = best[0]
+                own_words = ("passes its own checks" if not c["own_findings"] else
+                             f"has {c['own_findings']} finding(s) of its own ({c['why'][:300]})")
                 entry["filter_reason"] = (
                     f"No filter within the searched space ({space}) clears the PCC current findings; the best, "
-                    f"{_describe(c)}, passes its own checks but leaves the PCC current at "
+                    f"{_describe(c)}, {own_words} and leaves the PCC current at "
                     f"{c['pcc_over_limit_max']:.2f} x its IEEE 519 limit ({100 * (c['pcc_over_limit_max'] - 1):.0f} % "
                     "short); a larger filter ([filter] kvar, kvar_factors), more branches ([filter] max_branches) "
                     "or treating the sources themselves would be needed.")
                 entry["filter_search"]["best"] = {"branches": c["branches"], "pcc": best[4],
-                                                  "pcc_over_limit_max": c["pcc_over_limit_max"]}
+                                                  "pcc_over_limit_max": c["pcc_over_limit_max"],
+                                                  "own_findings": c["own_findings"]}
             continue
         c, variant, res, tables, per = chosen
         for scen, d in per.items():

@@ -405,8 +405,9 @@ class FilterTable(_Strict):
     max_branches: int = Field(default=3, ge=1, le=4)
     #: the filter's net output at the bus, all branches [kvar] (default: the bank's full output)
     kvar: Num | None = Field(default=None, gt=0.0, le=1.0e6)
-    #: reactor quality factor X_n / R at the tuning frequency [unitless]
-    reactor_q: Num = Field(default=40.0, gt=1.0, le=1000.0)
+    #: quality factor Q = X_n / R of each branch at its tuning frequency [unitless]; the branch's
+    #: ``reactor_q`` (X_L / R at the fundamental, as the model uses it) is Q / n
+    quality: Num = Field(default=40.0, gt=2.0, le=1000.0)
     #: nominal tuning below the absorbed harmonic [%]
     below_pct: Num = Field(default=6.0, ge=3.0, le=20.0)
     #: further capacitor ratings tried above the lowest one [unitless]

@@ -191,6 +191,11 @@ def check_case(case: Case) -> list[InputProblem]:
             if other not in names:
                 probs.append(InputProblem(file, f"bank[{i}].runs_with[{j}]", f"no bank named {other!r} (banks: "
                                           + ", ".join(repr(n) for n in sorted(names)) + ")"))
+    ft = getattr(case, "filter", None)
+    for j, other in enumerate((ft.banks or []) if ft is not None else []):
+        if other not in names:
+            probs.append(InputProblem(file, f"filter.banks[{j}]", f"no bank named {other!r} (banks: "
+                                      + ", ".join(repr(n) for n in sorted(names)) + ")"))
     if case.network is None:
         if case.supply is None:
             probs.append(InputProblem(file, "supply", "required (or give [network] pandapower_json)"))
