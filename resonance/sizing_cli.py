@@ -211,7 +211,7 @@ def _harmonics_json(args, ph: PlanHarmonics | None, not_considered: str) -> tupl
     if r.kind == "detuned":
         rec.update({"tuning_order": r.tuning_order, "detuning_pct": r.detuning_pct, "rated_kv": r.rated_kv,
                     "stages_kvar": list(r.stages_kvar), "stages_net_kvar": list(r.stages_net_kvar),
-                    "h_detuned": list(r.h_detuned)})
+                    "h_detuned": list(r.h_detuned), "construction": r.construction})
     rec["confirm"] = "run resonance check on the case with the bank block to confirm the design"
     return harm, rec
 

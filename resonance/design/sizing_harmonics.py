@@ -28,6 +28,7 @@ import numpy as np
 
 from resonance.assessment.tuning import DetuningSettings, detuning_settings, significant_orders, tuning_reasons
 from resonance.design.detuned_step import capacitor_rating_kv, nameplate_kvar
+from resonance.design.mv_rating import LV_LIMIT_KV, rating_ladder
 from resonance.errors import InputError, InputProblem
 from resonance.harmonics.screening import h_estimate
 from resonance.inputs.case_checks import bus_voltages_kv, sc_kva_estimate
@@ -105,6 +106,9 @@ class Recommendation:
     h_detuned : tuple of float
         Parallel resonance ``1/sqrt(p + Q_C/S_sc)`` of each detuned stage state (nominal supply)
         [unitless].
+    construction : dict or None
+        Above 1 kV: the construction of standard units of the stages
+        (:func:`resonance.design.mv_rating.stage_ratings`); None at or below 1 kV.
     """
 
     kind: str
@@ -115,6 +119,7 @@ class Recommendation:
     stages_kvar: tuple[float, ...] = ()
     stages_net_kvar: tuple[float, ...] = ()
     h_detuned: tuple[float, ...] = ()
+    construction: dict | None = None
 
 
 @dataclass(frozen=True)
@@ -141,6 +146,8 @@ class CaseHarmonics:
         Names of the harmonic sources [unitless].
     note : str
         Why the short-circuit power is unknown, when it is [unitless].
+    f_hz : float
+        The case's fundamental frequency [Hz].
     """
 
     bus: str
@@ -152,6 +159,7 @@ class CaseHarmonics:
     settings: DetuningSettings
     sources: tuple[str, ...]
     note: str = ""
+    f_hz: float = 60.0
 
 
 @dataclass(frozen=True)
@@ -264,7 +272,7 @@ def case_harmonics(case, bus: str) -> CaseHarmonics:
     margin = float(case.study.margin_pct)
     names = tuple(n for n, _, _ in spectra)
     if case.network is not None or case.supply is None:
-        return CaseHarmonics(bus, None, None, None, orders, margin, st, names,
+        return CaseHarmonics(bus, None, None, None, orders, margin, st, names, f_hz=float(case.frequency_hz),
                              note=f"{file} takes its network from a pandapower file; the short-circuit power at "
                                   f"{bus!r} is estimated from [supply], [[transformer]] and [[cable]] tables only")
     kv, _ = bus_voltages_kv(case)
@@ -280,7 +288,8 @@ def case_harmonics(case, bus: str) -> CaseHarmonics:
                                                                    "x_r": s.x_r_min or s.x_r})})
         weak = sc_kva_estimate(w, kv).get(bus)
     note = "" if sc else f"the short-circuit power at {bus!r} cannot be estimated from the case {file}"
-    return CaseHarmonics(bus, float(kv[bus]), sc, weak, orders, margin, st, names, note=note)
+    return CaseHarmonics(bus, float(kv[bus]), sc, weak, orders, margin, st, names, note=note,
+                         f_hz=float(case.frequency_hz))
 
 
 # ----------------------------------------------------------------------------- pure screening
@@ -368,7 +377,7 @@ def choose_tuning_order(h_low: int | None, settings: DetuningSettings) -> float 
 
 
 def detuned_design(stages_net_kvar: Sequence[float], u_bus_kv: float, n: float, settings: DetuningSettings,
-                   s_sc_kva: float | None = None) -> Recommendation:
+                   s_sc_kva: float | None = None, f_hz: float = 60.0) -> Recommendation:
     """Detuned stages delivering the plan's net output: rating, nameplates, parallel resonances.
 
     Parameters
@@ -383,6 +392,8 @@ def detuned_design(stages_net_kvar: Sequence[float], u_bus_kv: float, n: float, 
         ``standard_cap_kv``, ``mv_cap_step_kv``, ``cap_voltage_margin_pct``.
     s_sc_kva : float, optional
         Short-circuit power at the bus, for the parallel resonances [kVA].
+    f_hz : float, optional
+        Fundamental frequency, choosing the standard unit voltages above 1 kV [Hz].
 
     Returns
     -------
@@ -403,17 +414,26 @@ def detuned_design(stages_net_kvar: Sequence[float], u_bus_kv: float, n: float, 
     """
     p = 1.0 / (n * n)
     u_need = u_bus_kv / (1.0 - p) * (1.0 + settings.cap_voltage_margin_pct / 100.0)
-    u_cr = capacitor_rating_kv(u_need, settings.standard_cap_kv, settings.mv_cap_step_kv)
-    raw = nameplate_kvar(np.asarray(stages_net_kvar, float), u_cr, u_bus_kv, p)
-    step = NAMEPLATE_STEP_KVAR
-    plate = np.round(np.ceil(raw / step - 1e-9) * step, 6)
+    cons = None
+    if u_bus_kv > LV_LIMIT_KV:  # above 1 kV: a construction of standard units, as the detuning proposal
+        q_need = nameplate_kvar(np.asarray(stages_net_kvar, float), u_need, u_bus_kv, p)
+        lad = rating_ladder(u_bus_kv, list(q_need), u_need, f_hz, 0)
+        if lad[0][0] / u_bus_kv > 1.6:  # no wye of listed units within the range: delta, reactors in line
+            lad = rating_ladder(u_bus_kv, list(q_need), u_need, f_hz, 0, connections="delta")
+        u_cr, cons = lad[0]
+        plate = np.asarray(cons["steps_kvar"], float)
+    else:
+        u_cr = capacitor_rating_kv(u_need, settings.standard_cap_kv, settings.mv_cap_step_kv)
+        raw = nameplate_kvar(np.asarray(stages_net_kvar, float), u_cr, u_bus_kv, p)
+        step = NAMEPLATE_STEP_KVAR
+        plate = np.round(np.ceil(raw / step - 1e-9) * step, 6)
     net = plate * (u_bus_kv / u_cr) ** 2 / (1.0 - p)
     h_det: tuple[float, ...] = ()
     if s_sc_kva:
         h_det = tuple(h_estimate(s_sc_kva, float(q), p) for q in np.cumsum(net) * (1.0 - p))
     return Recommendation("detuned", "", tuning_order=float(n), detuning_pct=round(100.0 * p, 4),
                           rated_kv=float(u_cr), stages_kvar=tuple(float(x) for x in plate),
-                          stages_net_kvar=tuple(float(x) for x in net), h_detuned=h_det)
+                          stages_net_kvar=tuple(float(x) for x in net), h_detuned=h_det, construction=cons)
 
 
 def screen_plan(ch: CaseHarmonics, stages_net_kvar: Sequence[float], u_bus_kv: float) -> PlanHarmonics:
@@ -464,7 +484,7 @@ def screen_plan(ch: CaseHarmonics, stages_net_kvar: Sequence[float], u_bus_kv: f
                                         f"tuning orders {list(ch.settings.tuning_orders)} clears the lowest "
                                         f"significant order {h_low}: a filter study is needed")
         return PlanHarmonics(ch, states, rec)
-    rec = detuned_design(stages_net_kvar, u_bus_kv, n, ch.settings, ch.s_sc_kva)
+    rec = detuned_design(stages_net_kvar, u_bus_kv, n, ch.settings, ch.s_sc_kva, f_hz=ch.f_hz)
     why = (f"a plain bank resonates within {ch.margin_pct:g} % of a significant order: {near}; detuned at "
            f"n = {n:g} (p = {rec.detuning_pct:.2f} %), at least {ch.settings.order_margin_pct:g} % below the "
            f"lowest significant order {h_low}")
