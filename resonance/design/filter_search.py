@@ -328,10 +328,14 @@ def _study(case, model, bank, names, orders, ns, step, split, q_total, factor, f
     tables = _bank_tables(names, orders, ns, kvs, q_np, bank, fs["quality"])
     c["branches"] = [{"order": h, "n": n, "kvar": round(q_total * s, 1), "kv": kv, "kvar_nameplate": q,
                       "construction": r[2]} for h, n, s, kv, q, r in zip(orders, ns, split, kvs, q_np, rated)]
+    if min(q_np) < 1.0:
+        c.update({"qualified": False, "why": f"a branch below 1 kvar ({min(q_np):g} kvar nameplate)",
+                  "pcc_over_limit_max": None, "duty_only": False})
+        return c, None
     try:
         variant = _filter_variant(case, bank, tables)
         res = run_variant(variant, model)
-    except (InputError, ModelError) as e:
+    except (InputError, ModelError, ValueError) as e:  # ValueError: pydantic's ValidationError
         c.update({"qualified": False, "why": f"could not be studied ({e})", "pcc_over_limit_max": None,
                   "duty_only": False})
         return c, None
