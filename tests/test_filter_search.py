@@ -90,6 +90,19 @@ def test_branch_figures_by_the_closed_form(demo):
         assert br["tuning_order"] <= 0.97 * br["target_order"]
 
 
+def test_absorbed_current_splits_by_superposition(demo):
+    # a linear network: per order the branch current is the phasor sum of the parts from the background
+    # alone and from the site's sources alone, so its magnitude obeys the triangle inequality (derived)
+    for br in demo.data["banks"][0]["filter"]["branches"]:
+        tot, bg, site = br["absorbed_a"], br["absorbed_background_a"], br["absorbed_site_a"]
+        assert bg and site
+        for h, i in tot.items():
+            a, b = bg.get(h, 0.0), site.get(h, 0.0)
+            assert abs(a - b) - 0.02 <= i <= a + b + 0.02, h
+        # the demo's background has a 5th (1 % of nominal): the 5th branch takes some of it
+        assert bg["5"] > 1.0
+
+
 def test_the_smallest_qualifying_design_is_proposed(demo):
     s = demo.data["banks"][0]["filter_search"]
     cands = s["candidates"]

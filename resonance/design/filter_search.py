@@ -230,6 +230,36 @@ def dropped_keys(bank) -> list[str]:
     return [k for k in _CARRIED if isinstance(getattr(bank, k), list)]
 
 
+def _own_currents(res, name: str, scenario: str = "nominal") -> dict:
+    """Branch current per order in its own sweep, all of its steps in [A]."""
+    asm = next((a for a in res.assessments if a.bank == name and a.scenario == scenario), None)
+    if asm is None or not asm.steps:
+        return {}
+    return {str(int(x["h"])): round(x["i_bank_a"], 3) for x in asm.steps[-1].fields["harmonics"]
+            if x["i_bank_a"] >= 0.005}
+
+
+def _split_absorbed(branches: list[dict], variant, model) -> None:
+    """Each branch's current from the utility's background distortion alone (the case without its
+    harmonic sources) and from the site's sources alone (without the background), nominal supply:
+    a filter also absorbs what its neighbours inject [A].  The two need not add up to the total:
+    per order they are phasors (superposition of a linear network)."""
+    if variant.supply is None:
+        return
+    runs = {}
+    if variant.supply.background_pct:
+        runs["absorbed_background_a"] = variant.model_copy(update={"harmonic_source": []})
+        runs["absorbed_site_a"] = variant.model_copy(update={"supply": variant.supply.model_copy(
+            update={"background_pct": {}})})
+    for key, v in runs.items():
+        try:
+            r = run_variant(v, model)
+        except (InputError, ModelError, ValueError):
+            continue
+        for br in branches:
+            br[key] = _own_currents(r, br["name"])
+
+
 def _bank_tables(names, orders, ns, kvs, q_np, bank, quality: float) -> list[dict]:
     """The ``[[bank]]`` tables of the branches, in the order they are written (lowest order first); each
     branch's ``reactor_q`` (X_L/R at the fundamental) is ``quality / n`` (``Q = X_n/R = n X_L/R``)."""
@@ -494,6 +524,7 @@ def propose_filters(case, model, result) -> dict:
                                    float(case.frequency_hz))
         for br, cb in zip(branches, c["branches"]):
             br["construction"] = cb["construction"]
+        _split_absorbed(branches, variant, model)
         losses = sum(b["losses_kw"] for b in branches)
         q_chosen = q_total * c["kvar_factor"]
         more = ("" if c["kvar_factor"] == 1.0 else

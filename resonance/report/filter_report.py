@@ -24,6 +24,12 @@ def _fmt(nd: int):
     return f
 
 
+def _orders_text(d) -> str:
+    if not d:
+        return "-"
+    return ", ".join(f"{k}: {float(v):.0f}" for k, v in d.items() if float(v) >= 0.5) or "-"
+
+
 def filter_tables(bank: dict) -> list[Table]:
     """The proposed filter of one bank: its branches (one column each) and the PCC with it in.
 
@@ -47,8 +53,7 @@ def filter_tables(bank: dict) -> list[Table]:
     def col(key, sub=None):
         return [(b.get(key) or {}).get(sub) if sub else b.get(key) for b in brs]
 
-    absorbed = [", ".join(f"{k}: {float(v):.0f}" for k, v in (b.get("absorbed_a") or {}).items() if float(v) >= 0.5)
-                for b in brs]
+    absorbed = [_orders_text(b.get("absorbed_a")) for b in brs]
     par = [", ".join(f"{x:.2f}" for x in ((b.get("parallel_resonance_below") or {}).get("nominal") or [])) or "-"
            for b in brs]
     rows = [
@@ -68,6 +73,8 @@ def filter_tables(bank: dict) -> list[Table]:
         _row("highest rms current", "A", col("reactor_i_rms_a"), _fmt(0)),
         _row("highest peak current", "A", col("reactor_i_peak_a"), _fmt(0)),
         _row("harmonic current absorbed", "A", absorbed),
+        _row("  of it from the background alone", "A", [_orders_text(b.get("absorbed_background_a")) for b in brs]),
+        _row("  of it from the site's sources alone", "A", [_orders_text(b.get("absorbed_site_a")) for b in brs]),
         _row("reactor losses (highest)", "kW", col("losses_kw"), _fmt(2)),
         _row("capacitor rms voltage", "% of rated", col("duty_pct", "cap_v_rms_pct"), _fmt(1)),
         _row("capacitor peak voltage", "% of rated", col("duty_pct", "cap_v_peak_pct"), _fmt(1)),
@@ -80,7 +87,9 @@ def filter_tables(bank: dict) -> list[Table]:
                (Column("quantity", "", _s, "left"), Column("unit", "", _s, "left"),
                 *[Column(b["name"], "") for b in brs]), tuple(rows),
                "Duty: the highest over every scenario of each branch's own sweep (with the branches it runs with); "
-               "absorbed current: per harmonic order in the branch's own sweep, with the branches it runs with in (nominal supply); peak current: "
+               "absorbed current: per harmonic order in the branch's own sweep, with the branches it runs with in (nominal supply), "
+               "and from the supply's background distortion and the site's sources each alone (phasors: the parts need "
+               "not add up); peak current: "
                "arithmetic sum of the per-order peaks (IEEE Std 18 convention).")
     prow, bad = [], set()
     for i, (scen, d) in enumerate((flt.get("pcc") or {}).items()):
