@@ -387,6 +387,11 @@ def _say_harmonics(args, ph: PlanHarmonics | None, note: str) -> None:
               f"(n = {r.tuning_order:g}), capacitors rated {r.rated_kv:g} kV, stages "
               f"[{', '.join(f'{q:g}' for q in r.stages_kvar)}] kvar nameplate "
               f"({', '.join(f'{q:.1f}' for q in r.stages_net_kvar)} kvar net at {c.bus_kv:g} kV)")
+        if r.construction is not None:
+            k = r.construction
+            print(f"  construction: {k['connection'].replace('_', ' ')}, {k['series_groups']} series group(s) of "
+                  f"{k['unit_kv']:g} kV units per string, {k['units_total']} units in all"
+                  + ("; " + r.reason.rsplit("; ", 1)[1] if "smallest construction" in r.reason else ""))
 
 
 def run(args) -> int:

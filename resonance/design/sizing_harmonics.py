@@ -488,4 +488,8 @@ def screen_plan(ch: CaseHarmonics, stages_net_kvar: Sequence[float], u_bus_kv: f
     why = (f"a plain bank resonates within {ch.margin_pct:g} % of a significant order: {near}; detuned at "
            f"n = {n:g} (p = {rec.detuning_pct:.2f} %), at least {ch.settings.order_margin_pct:g} % below the "
            f"lowest significant order {h_low}")
+    plan, got = float(sum(stages_net_kvar)), float(sum(rec.stages_net_kvar))
+    if rec.construction is not None and got > 1.1 * plan:
+        why += (f"; the smallest construction of standard units gives {got:.0f} kvar net against the plan's "
+                f"{plan:.0f} kvar: fewer, larger stages would suit a bank above 1 kV")
     return PlanHarmonics(ch, states, Recommendation(**{**rec.__dict__, "reason": why}))
