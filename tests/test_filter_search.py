@@ -58,7 +58,7 @@ def test_demo_gets_a_filter_that_clears_its_pcc_current_in_every_scenario(demo):
     rc = demo.rechecks["PFC-1"]
     names = [br["name"] for br in f["branches"]]
     assert [b_.name for b_ in rc.case.bank][:len(names)] == names
-    assert not [x for x in rc.findings if x.check in PCC_CURRENT_CHECKS]
+    assert not [x for x in rc.findings if x.check in PCC_CURRENT_CHECKS]  # the only bank: none left anywhere
     assert not [x for x in rc.bank_findings if x.bank in names]
     assert rc.site_passed is f["clears_site_findings"] is True
     # per scenario, the PCC with the filter in is within the TDD limit and below the bank-off value
@@ -170,3 +170,37 @@ def test_bad_filter_table_is_named(table, field):
     with pytest.raises(InputError) as e:
         run_check(raw)
     assert field in str(e.value)
+
+
+def test_two_banks_with_filters_are_rechecked_together(tmp_path):
+    # the recommended case holds every proposed filter: its check is the re-check of each (project contract)
+    import contextlib
+    import io
+    import json
+
+    from resonance.cli import main
+
+    text = (CASES / "demo_plant.toml").read_text(encoding="utf-8")
+    text = text.replace("steps_kvar = [100.0, 100.0, 100.0, 100.0, 100.0, 100.0, 100.0, 100.0]",
+                        "steps_kvar = [100.0, 100.0, 100.0, 100.0]")
+    text = text.replace('intervals_csv = "', 'intervals_csv = "' + str(CASES) + "/")
+    text += ('\n[[bank]]\nname = "PFC-2"\nbus = "MSB-1"\nrated_kv = 0.48\n'
+             'steps_kvar = [100.0, 100.0, 100.0, 100.0]\n')
+    case = tmp_path / "two.toml"
+    case.write_text(text, encoding="utf-8")
+    with contextlib.redirect_stdout(io.StringIO()):
+        main(["check", str(case), "--out", str(tmp_path / "a"), "--no-report", "--no-plots"])
+    first = json.loads((tmp_path / "a" / "results.json").read_text(encoding="utf-8"))
+    flts = {b["name"]: b["filter"] for b in first["banks"] if b.get("filter")}
+    if len(flts) < 2:
+        pytest.skip("only one bank got a filter")
+    tog = [f["together"] for f in flts.values()]
+    assert tog[0] == tog[1] and sorted(tog[0]["banks"]) == sorted(flts)
+    with contextlib.redirect_stdout(io.StringIO()):
+        main(["check", str(tmp_path / "a" / "recommended_case.toml"), "--out", str(tmp_path / "b"), "--no-report",
+              "--no-plots"])
+    second = json.loads((tmp_path / "b" / "results.json").read_text(encoding="utf-8"))
+    branches = {t["name"] for f in flts.values() for t in f["bank_tables"]}
+    left = [x for x in second["findings"] if x["check"] in PCC_CURRENT_CHECKS and x["bank"] in branches]
+    assert (not left) is tog[0]["clears_pcc_current"]
+    assert second["site_passed"] is tog[0]["site_passed"]

@@ -370,7 +370,7 @@ def _study(case, model, bank, names, orders, ns, step, split, q_total, factor, f
                   "duty_only": False})
         return c, None
     own = [f for f in bank_findings(res.findings) if f.bank in names]
-    left = [f for f in res.findings if f.check in PCC_CURRENT_CHECKS]
+    left = [f for f in res.findings if f.check in PCC_CURRENT_CHECKS and f.bank in names]
     ratio, per = _pcc_ratio(res, names)
     why = sorted({f"{f.check} ({f.bank}, {f.scenario})" for f in own})
     if left:
@@ -504,12 +504,14 @@ def propose_filters(case, model, result) -> dict:
                 c = best[0]
                 own_words = ("passes its own checks" if not c["own_findings"] else
                              f"has {c['own_findings']} finding(s) of its own ({c['why'][:300]})")
+                r = c["pcc_over_limit_max"]
+                pcc_words = (f"leaves the PCC current at {r:.2f} x its IEEE 519 limit ({100 * (r - 1):.0f} % short)"
+                             if r > 1.0 else f"keeps the PCC current within its limits ({r:.2f} x)")
                 entry["filter_reason"] = (
-                    f"No filter within the searched space ({space}) clears the PCC current findings; the best, "
-                    f"{_describe(c)}, {own_words} and leaves the PCC current at "
-                    f"{c['pcc_over_limit_max']:.2f} x its IEEE 519 limit ({100 * (c['pcc_over_limit_max'] - 1):.0f} % "
-                    "short); a larger filter ([filter] kvar, kvar_factors), more branches ([filter] max_branches) "
-                    "or treating the sources themselves would be needed.")
+                    f"No filter within the searched space ({space}) clears the PCC current findings and passes "
+                    f"its own checks; the best, {_describe(c)}, {own_words} and {pcc_words}; a larger filter "
+                    "([filter] kvar, kvar_factors), more branches ([filter] max_branches) or treating the "
+                    "sources themselves would be needed.")
                 entry["filter_search"]["best"] = {"branches": c["branches"], "pcc": best[4],
                                                   "pcc_over_limit_max": c["pcc_over_limit_max"],
                                                   "own_findings": c["own_findings"]}
@@ -547,14 +549,40 @@ def propose_filters(case, model, result) -> dict:
 
 
 def filter_studies(case, model, proposals: dict) -> dict:
-    """Bank name -> (variant case, re-check StudyResult) of its proposed filter (the memoised study
-    the proposal was accepted on)."""
+    """Bank name -> (variant case, re-check StudyResult) of its proposed filter.
+
+    With one filter this is the memoised study the proposal was accepted on.  Where several banks get
+    a filter, each was searched with the others as given; ``recommended_case.toml`` holds them all, so
+    the case with every filter in place is studied once more and is the re-check of each: its outcome
+    is written into each proposal as ``together`` (``banks``, ``clears_pcc_current``,
+    ``branch_findings``) and, where it does not clear, said in the reason.
+    """
+    chosen = [(name, e["filter"]) for name, e in proposals.items() if (e or {}).get("filter")]
     out = {}
-    for name, e in proposals.items():
-        f = (e or {}).get("filter")
-        if not f:
-            continue
+    for name, f in chosen:
         bank = next(b for b in case.bank if b.name == name)
         variant = _filter_variant(case, bank, f["bank_tables"])
         out[name] = (variant, run_variant(variant, model))
+    if len(chosen) < 2:
+        return out
+    variant = case
+    for name, f in chosen:
+        bank = next(b for b in variant.bank if b.name == name)
+        variant = _filter_variant(variant, bank, f["bank_tables"])
+    res = run_variant(variant, model)
+    names = {t["name"] for _n, f in chosen for t in f["bank_tables"]}
+    own = [x for x in bank_findings(res.findings) if x.bank in names]
+    left = [x for x in res.findings if x.check in PCC_CURRENT_CHECKS and x.bank in names]
+    together = {"banks": [n for n, _f in chosen], "clears_pcc_current": not left, "branch_findings": len(own),
+                "site_passed": not site_findings(res.findings)}
+    for name, f in chosen:
+        f["together"] = together
+        f["clears_site_findings"] = together["site_passed"]
+        if left or own:
+            f["clears_pcc_current"] = not left
+            f["reason"] += (f" With the other proposed filters in place as well ({', '.join(together['banks'])}), "
+                            f"{len(own)} branch finding(s) and {len(left)} PCC current finding(s) remain: "
+                            "the filters must be designed together (give [filter] banks one at a time).")
+            proposals[name]["filter_reason"] = f["reason"]
+        out[name] = (variant, res)
     return out
