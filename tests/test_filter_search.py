@@ -163,6 +163,9 @@ def test_mv_filter_capacitors_are_a_construction_of_standard_units():
     ({"orders": [1]}, "filter.orders"),
     ({"banks": ["PFC-9"]}, "filter.banks[0]"),
     ({"unknown_key": 1}, "filter.unknown_key"),
+    ({"kvar_factors": [0.0]}, "filter.kvar_factors"),
+    ({"kvar_factors": []}, "filter.kvar_factors"),
+    ({"kvar": -5}, "filter.kvar"),
 ])
 def test_bad_filter_table_is_named(table, field):
     raw = _raw("demo_plant.toml")

@@ -424,6 +424,13 @@ class FilterTable(_Strict):
             raise ValueError("orders must be harmonic orders from 2 to 100")
         return v
 
+    @field_validator("kvar_factors")
+    @classmethod
+    def _factors(cls, v):
+        if any(not (0.1 <= f <= 5.0) for f in v):
+            raise ValueError("kvar_factors must be factors from 0.1 to 5 of the filter's kvar")
+        return v
+
 
 class Case(_Strict):
     """A whole study case as read from one TOML file."""
