@@ -19,7 +19,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["AdaptiveScan", "adaptive_scan", "peak_brackets", "grid_peaks", "zoom_refine"]
+__all__ = ["AdaptiveScan", "adaptive_scan", "peak_brackets", "grid_peaks", "zoom_refine", "hermite_refine",
+           "hermite_sample"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -408,3 +409,141 @@ def zoom_refine(fun, lo: np.ndarray, hi: np.ndarray, xtol: float = 1e-5,
         if np.max(b - a) <= xtol:
             break
     return best_h, best_f
+
+
+def _hermite_argmax(a, b, fa, fb, ga, gb) -> np.ndarray:
+    """Order of the maximum of the cubic Hermite interpolant of ``f`` on ``[a, b]`` (midpoint if none).
+
+    ``ga > 0 >= gb`` (a maximum inside): the first root of ``p'(t)`` (as in
+    :func:`_hermite_turns`) where ``p'`` falls from positive to zero, mapped back to ``h``
+    [unitless]; the secant root of ``g`` where the cubic gives none inside.
+    """
+    w = b - a
+    m0, m1, d = ga * w, gb * w, fb - fa
+    qa = 3.0 * (m0 + m1) - 6.0 * d
+    qb = 6.0 * d - 4.0 * m0 - 2.0 * m1
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        disc = np.sqrt(np.maximum(qb * qb - 4.0 * qa * m0, 0.0))
+        t_quad = np.where(qa < 0, (-qb - disc) / (2.0 * qa), (-qb + disc) / (2.0 * qa))
+        t_quad = np.where(np.abs(qa) > 1e-12 * (np.abs(qb) + np.abs(m0)), t_quad, -m0 / qb)
+        t_lin = m0 / (m0 - m1)
+    t = np.where(np.isfinite(t_quad) & (t_quad > 0) & (t_quad < 1), t_quad,
+                 np.where(np.isfinite(t_lin) & (t_lin > 0) & (t_lin < 1), t_lin, 0.5))
+    return a + t * w
+
+
+def hermite_refine(fun, lo, hi, f_lo, f_hi, g_lo, g_hi, xtol: float = 1e-5,
+                   max_passes: int = 60) -> tuple[np.ndarray, np.ndarray, int]:
+    """Maximise smooth functions on brackets with their derivatives, all brackets at once.
+
+    Parameters
+    ----------
+    fun : callable
+        ``fun(x, j) -> (f, g)``: value ``f`` (e.g. ``ln|Z|``) and derivative ``g = df/dh`` of
+        bracket ``j[i]``'s own curve at order ``x[i]`` (1-d arrays of equal length)
+        [unitless -> unitless, 1/unitless].
+    lo, hi : ndarray, shape (p,)
+        Brackets with ``g(lo) > 0 >= g(hi)``: a maximum inside each [unitless].
+    f_lo, f_hi, g_lo, g_hi : ndarray, shape (p,)
+        ``f`` and ``g`` at the bracket ends (known from the scan) [unitless, 1/unitless].
+    xtol : float
+        Final bracket width [unitless].
+    max_passes : int
+        Most passes [unitless] (the bisection safeguard needs at most about
+        ``2 log2(width / xtol)``).
+
+    Returns
+    -------
+    (h_max, f_max, n_eval) : tuple
+        Per bracket: the solved end of the final bracket with the larger ``f`` [unitless],
+        its ``f`` [unitless]; and the evaluations made [unitless].
+
+    Notes
+    -----
+    Each pass takes the maximum ``x*`` of the cubic Hermite interpolant of ``f`` on the
+    bracket and evaluates the pair ``x* -+ xtol/2``; the signs of ``g`` at the pair and at the
+    ends keep the first sub-interval where ``g`` turns from positive to non-positive.  When
+    the interpolant is accurate to ``xtol/2`` the bracket closes to ``xtol`` in that pass;
+    otherwise it shrinks to one side of the pair with a new end near the maximum, and a pass
+    that did not halve the bracket is followed by a bisection (the safeguard of Brent's
+    method).  Every final bracket holds a sign change of ``g`` across at most ``xtol``, so a
+    maximum lies within ``xtol`` of the returned order.
+
+    References
+    ----------
+    R. P. Brent, *Algorithms for Minimization without Derivatives*, Prentice-Hall 1973,
+    ch. 4-5 (safeguarded interpolation with bisection); W. C. Davidon, "Variable metric
+    method for minimization", AEC Report ANL-5990, 1959 (cubic interpolation from values and
+    derivatives at two points); Press et al., *Numerical Recipes*, 3rd ed., sec. 10.3.
+    """
+    a, b = np.array(lo, float), np.array(hi, float)
+    fa, fb, ga, gb = (np.array(x, float) for x in (f_lo, f_hi, g_lo, g_hi))
+    n_eval = 0
+    bisect = np.zeros(a.size, bool)
+    for _ in range(max_passes):
+        todo = np.nonzero(b - a > xtol * (1.0 + 1e-9))[0]
+        if not todo.size:
+            break
+        w0 = b[todo] - a[todo]
+        x = _hermite_argmax(a[todo], b[todo], fa[todo], fb[todo], ga[todo], gb[todo])
+        x = np.where(bisect[todo], 0.5 * (a[todo] + b[todo]), x)
+        half = 0.5 * np.minimum(xtol, 0.5 * w0)
+        x = np.clip(x, a[todo] + half, b[todo] - half)
+        xs = np.concatenate([x - half, x + half])
+        fs, gs = fun(xs, np.concatenate([todo, todo]))
+        n_eval += xs.size
+        m = todo.size
+        pts = np.stack([a[todo], xs[:m], xs[m:], b[todo]], axis=1)  # (m, 4), sorted orders
+        fv = np.stack([fa[todo], fs[:m], fs[m:], fb[todo]], axis=1)
+        gv = np.stack([ga[todo], gs[:m], gs[m:], gb[todo]], axis=1)
+        turn = (gv[:, :-1] > 0) & (gv[:, 1:] <= 0)  # one exists: g > 0 at pts[0], <= 0 at pts[3]
+        k = np.argmax(turn, axis=1)
+        r = np.arange(m)
+        a[todo], b[todo] = pts[r, k], pts[r, k + 1]
+        fa[todo], fb[todo] = fv[r, k], fv[r, k + 1]
+        ga[todo], gb[todo] = gv[r, k], gv[r, k + 1]
+        bisect[todo] = (b[todo] - a[todo]) > 0.5 * w0
+    pick_b = fb > fa
+    return np.where(pick_b, b, a), np.where(pick_b, fb, fa), n_eval
+
+
+def hermite_sample(h: np.ndarray, z: np.ndarray, dz: np.ndarray, h_out: np.ndarray) -> np.ndarray:
+    """Curves at other orders by piecewise cubic Hermite interpolation of values and derivatives.
+
+    Parameters
+    ----------
+    h : ndarray, shape (n_h,)
+        Sorted orders where the curves were solved [unitless].
+    z, dz : ndarray, complex, shape (c, n_h)
+        Values there [any unit, e.g. pu] and ``dZ/dh`` [same unit per unitless].
+    h_out : ndarray, shape (q,)
+        Orders inside ``[h[0], h[-1]]`` [unitless].
+
+    Returns
+    -------
+    ndarray, complex, shape (c, q)
+        Interpolated curves [same unit as ``z``]; the solved values at the solved orders.
+
+    Notes
+    -----
+    On ``[h_i, h_{i+1}]`` of width ``w``, ``t = (h - h_i) / w``:
+    ``Z = H00 Z_i + H10 w dZ_i + H01 Z_{i+1} + H11 w dZ_{i+1}`` with ``H00 = 2t^3 - 3t^2 + 1``,
+    ``H10 = t^3 - 2t^2 + t``, ``H01 = 3t^2 - 2t^3``, ``H11 = t^3 - t^2``.  The error is at
+    most ``w^4 max|d^4Z/dh^4| / 384``.  For the single-pole resonance ``Z = R / (1 + j x)``,
+    ``x = 2 Q (h - h_r) / h_r``: ``|d^4Z/dx^4| <= 24 R`` and the grid's rule
+    ``|ln(Z_{i+1}/Z_i)| <= tol`` keeps ``dx`` at most about ``tol``, so the error is below
+    ``tol^4 R / 16`` (4e-7 of the peak at ``tol = 0.05``).
+
+    References
+    ----------
+    Press et al., *Numerical Recipes*, 3rd ed., sec. 3.3; C. de Boor, *A Practical Guide to
+    Splines*, rev. ed., Springer 2001, ch. II (error of cubic Hermite interpolation).
+    """
+    h = np.asarray(h, float)
+    h_out = np.asarray(h_out, float)
+    i = np.clip(np.searchsorted(h, h_out, side="right") - 1, 0, h.size - 2)
+    w = h[i + 1] - h[i]
+    t = (h_out - h[i]) / w
+    t2, t3 = t * t, t * t * t
+    h00, h10, h01, h11 = 2 * t3 - 3 * t2 + 1, t3 - 2 * t2 + t, 3 * t2 - 2 * t3, t3 - t2
+    return h00 * z[:, i] + (h10 * w) * dz[:, i] + h01 * z[:, i + 1] + (h11 * w) * dz[:, i + 1]

@@ -17,7 +17,8 @@ import numpy as np
 
 from resonance.model.admittance import YPattern
 from resonance.harmonics.engine import SparseEngine, sparse_columns
-from resonance.harmonics.grid import AdaptiveScan, adaptive_scan, peak_brackets, zoom_refine
+from resonance.harmonics.grid import (AdaptiveScan, adaptive_scan, hermite_refine, hermite_sample, peak_brackets,
+                                      zoom_refine)
 from resonance.memo import remember
 from resonance.model.network import NetworkArrays
 
@@ -33,11 +34,16 @@ __all__ = [
     "driving_point_steps",
     "step_peaks",
     "StepPeaks",
+    "LARGE_START_FACTOR",
 ]
 
 #: networks up to this many buses use batched dense solves, larger ones sparse LU
 #: (crossover measured on this 2-core machine: docs/performance.md)
 DENSE_MAX_BUSES = 100
+
+#: on networks above DENSE_MAX_BUSES the adaptive peak search starts on every 16th order of
+#: the study grid (0.16 at h_step 0.01) and lets the derivative rule refine (docs/performance.md)
+LARGE_START_FACTOR = 16
 
 
 @dataclass(frozen=True)
@@ -404,18 +410,49 @@ class StepPeaks:
     z_peak : tuple of ndarray
         ``|Z|`` at those orders [pu].
     scan : AdaptiveScan
-        The adaptive grid and the complex curves on it [pu].
+        The adaptive grid and the complex curves (and ``dZ/dh``) on it [pu].
+    n_evaluations : int
+        Orders solved in all, grid and peak refinement [unitless].
     """
 
     h_peak: tuple
     z_peak: tuple
     scan: AdaptiveScan
+    n_evaluations: int = 0
+
+    def sample(self, h: np.ndarray) -> np.ndarray:
+        """Every curve at the orders ``h`` (e.g. the study's uniform grid for tables and plots).
+
+        Parameters
+        ----------
+        h : ndarray, shape (q,)
+            Orders inside the scanned range [unitless].
+
+        Returns
+        -------
+        ndarray, complex, shape (N + 1, q)
+            Row 0 bank off, row s step s [pu].
+
+        Notes
+        -----
+        Piecewise cubic Hermite interpolation of the solved values and ``dZ/dh``
+        (:func:`resonance.harmonics.grid.hermite_sample`); exact at the solved orders.
+        """
+        sc = self.scan
+        return hermite_sample(sc.h, sc.z, sc.dz, np.atleast_1d(np.asarray(h, float)))
+
+
+def _coarse_grid(h: np.ndarray, factor: int) -> np.ndarray:
+    """Every ``factor``-th order of ``h``, the last order always kept [unitless]."""
+    c = h[::factor]
+    return c if c[-1] == h[-1] else np.append(c, h[-1])
 
 
 def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
                settings: ModelSettings = ModelSettings(), extra=None, pattern: YPattern | None = None,
                tol: float = 0.05, min_step: float | None = None, xtol: float = 1e-5,
-               workers: int | None = None, base: tuple | None = None) -> StepPeaks:
+               workers: int | None = None, base: tuple | None = None,
+               start_factor: int | None = None) -> StepPeaks:
     """Every local maximum of ``|Z|`` at a bank bus, for the bank off and each step.
 
     Parameters
@@ -423,50 +460,96 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
     arr, bus, step_admittance, settings, extra, pattern, workers
         As for :func:`driving_point_steps`.
     h : ndarray, shape (n_h,)
-        Base grid, e.g. the study's uniform 0.01 grid [unitless].
+        Uniform grid, e.g. the study's 0.01 grid [unitless].
     tol : float
         Refinement threshold on ``|ln(Z_{i+1}/Z_i)|`` (:func:`resonance.harmonics.grid.adaptive_scan`) [unitless].
     min_step : float, optional
-        Narrowest interval (default: base step / 16) [unitless].
+        Narrowest interval (default: step of ``h`` / 16) [unitless].
     xtol : float
         Final width of each peak's search bracket [unitless].
     base : (ndarray, ndarray), optional
         Bank-off ``Z_kk`` and ``dZ_kk/dh`` on ``h`` (shape (n_h,)), when the caller
-        has solved the base grid already (e.g. with :func:`impedance_columns_dh`) [pu].
+        has solved the grid already (e.g. with :func:`impedance_columns_dh`) [pu].
+    start_factor : int, optional
+        Start the adaptive grid on every ``start_factor``-th order of ``h`` (1: on ``h``).
+        Default: ``LARGE_START_FACTOR`` on a network above ``DENSE_MAX_BUSES`` buses when no
+        ``base`` is given, else 1 [unitless].
 
     Returns
     -------
     StepPeaks
-        Peaks of every curve and the adaptive grid.
+        Peaks of every curve, the adaptive grid, and :meth:`StepPeaks.sample` for the curves
+        on ``h``.
 
     Notes
     -----
     A peak is a local maximum of ``|Z(h)|``.  The grid is refined with the
     analytic derivative ``dZ/dh`` (:func:`resonance.harmonics.grid.adaptive_scan`); each
-    interval where ``d|Z|/dh`` turns from positive to non-positive brackets a
-    maximum, and a batched sequential search inside the bracket
-    (:func:`resonance.harmonics.grid.zoom_refine`) converges to it.
+    interval where ``d|Z|/dh`` turns from positive to non-positive brackets a maximum.
+    On the uniform start (small networks) a batched sequential search
+    (:func:`resonance.harmonics.grid.zoom_refine`) converges inside each bracket; from a
+    coarse start (large networks, where every solve is a sparse factorisation) the
+    derivative-safeguarded search :func:`resonance.harmonics.grid.hermite_refine` does, with
+    two solves per bracket and pass.  Brackets found without a sign change (a sampled
+    maximum) always take the sequential search.
     """
     h = np.atleast_1d(np.asarray(h, float))
     if min_step is None:
         min_step = float(np.min(np.diff(h))) / 16.0 if h.size > 1 else 1e-3
+    if start_factor is None:
+        start_factor = LARGE_START_FACTOR if (base is None and arr.n_bus > DENSE_MAX_BUSES) else 1
+    start_factor = max(1, int(start_factor))
 
     def fun(hh, derivative=True):
         return driving_point_steps(arr, hh, bus, step_admittance, settings, extra, pattern, workers, derivative)
 
     z_base = dz_base = None
+    h0 = h
     if base is not None:
         z_base, dz_base = _with_steps(h, np.asarray(base[0], complex), np.asarray(base[1], complex),
                                       step_admittance)
-    sc = adaptive_scan(fun, h, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True)
+        if start_factor > 1:
+            idx = np.searchsorted(h, _coarse_grid(h, start_factor))
+            h0, z_base, dz_base = h[idx], z_base[:, idx], dz_base[:, idx]
+    elif start_factor > 1 and h.size > 2:
+        h0 = _coarse_grid(h, start_factor)
+    sc = adaptive_scan(fun, h0, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True)
+    n_eval = sc.n_evaluations - (h0.size if base is not None else 0)
     curve, lo, hi = peak_brackets(sc)
+    hp, zp = np.zeros(curve.size), np.zeros(curve.size)
+    il = np.searchsorted(sc.h, lo)
+    ih = np.searchsorted(sc.h, hi)
+    la = np.log(np.maximum(np.abs(sc.z), 1e-300))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        g = np.real(sc.dz / sc.z)
+    turn = (ih == il + 1) & (g[curve, il] > 0) & (g[curve, np.minimum(ih, sc.h.size - 1)] <= 0)
+    use_h = turn & (start_factor > 1)
+    if use_h.any():
+        jc = curve[use_h]
 
-    def f(x):  # x: (bracket, sample) -> |Z| of each bracket's own curve
-        z = np.abs(fun(x.ravel(), False))
-        return z[np.repeat(curve, x.shape[1]), np.arange(x.size)].reshape(x.shape)
+        def fg(x, j):  # ln|Z| and d ln|Z|/dh of each bracket's own curve
+            z, dz = fun(x)
+            cc = jc[j]
+            zz, dd = z[cc, np.arange(x.size)], dz[cc, np.arange(x.size)]
+            return np.log(np.maximum(np.abs(zz), 1e-300)), np.real(dd / zz)
 
-    hp, zp = zoom_refine(f, lo, hi, xtol=xtol)
+        x, f, n_h = hermite_refine(fg, lo[use_h], hi[use_h], la[jc, il[use_h]], la[jc, ih[use_h]],
+                                   g[jc, il[use_h]], g[jc, ih[use_h]], xtol=xtol)
+        hp[use_h], zp[use_h] = x, np.exp(f)
+        n_eval += n_h
+    rest = ~use_h
+    if rest.any():
+        cr = curve[rest]
+        count = [0]
+
+        def f(x):  # x: (bracket, sample) -> |Z| of each bracket's own curve
+            count[0] += x.size
+            z = np.abs(fun(x.ravel(), False))
+            return z[np.repeat(cr, x.shape[1]), np.arange(x.size)].reshape(x.shape)
+
+        hp[rest], zp[rest] = zoom_refine(f, lo[rest], hi[rest], xtol=xtol)
+        n_eval += count[0]
     n_c = sc.z.shape[0]
-    hs = tuple(hp[curve == c] for c in range(n_c))
-    zs = tuple(zp[curve == c] for c in range(n_c))
-    return StepPeaks(h_peak=hs, z_peak=zs, scan=sc)
+    hs = tuple(np.sort(hp[curve == c]) for c in range(n_c))
+    zs = tuple(zp[curve == c][np.argsort(hp[curve == c])] for c in range(n_c))
+    return StepPeaks(h_peak=hs, z_peak=zs, scan=sc, n_evaluations=int(n_eval))
