@@ -340,8 +340,9 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         if flt:
             from resonance.design.sizing_harmonics import ordinal  # noqa: PLC0415
 
-            _say(f"bank {b['name']}: proposed tuned filter (the recommended design: it clears the PCC current "
-                 "the bank leaves): " + "; ".join(
+            lead = (f"the recommended design: {flt.get('chosen_why', '')}" if flt.get("chosen", True) else
+                    "offered beside the detuned design, which already clears every PCC current finding")
+            _say(f"bank {b['name']}: proposed tuned filter ({lead}): " + "; ".join(
                      f"{x['name']} tuned at {x['tuning_order']:.2f} for the {ordinal(x['target_order'])}, {x['kvar']:.0f} kvar "
                      f"at the bus, capacitors {x['capacitor_rated_kv']:g} kV, reactor {x['reactor_mh']:.4g} mH"
                      for x in flt["branches"]))
@@ -353,6 +354,8 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         if "recommended_detuned_case.toml" in {p.name for p in written}:
             _say(f"the detuned design (protects the bank, leaves the site's PCC current): "
                  f"{out.path / 'recommended_detuned_case.toml'}")
+        if "recommended_filter_case.toml" in {p.name for p in written}:
+            _say(f"the tuned filter offered beside it: {out.path / 'recommended_filter_case.toml'}")
     for w in data["warnings"]:
         if not args.quiet:
             _say(f"note: {w}")
@@ -377,15 +380,25 @@ def _recommended_case(case_path: Path, out, det: dict, switching: dict | None = 
         if name not in designs and d.get("recommended") and (d.get("re_check") or {}).get("bank_passes"):
             designs[name] = d["bank_table"]
     detuned_only = dict(designs)
+    offered = {}
     for name, fp in (filters or {}).items():
         f = (fp or {}).get("filter")
         if f:
             first, *rest = f["bank_tables"]
-            designs[name] = {**first, "extra_banks": rest, "drop_keys": tuple(f.get("drop_keys", ()))}
-    if detuned_only != designs and any(n in detuned_only for n in designs if designs[n] is not detuned_only.get(n)):
+            d = {**first, "extra_banks": rest, "drop_keys": tuple(f.get("drop_keys", ()))}
+            if f.get("chosen", True):
+                designs[name] = d
+            else:
+                offered[name] = d
+    if any(n in detuned_only and designs[n] is not detuned_only[n] for n in designs):
         alt = recommended_case_text(case_text, case_path, out.path, detuned_only, tool=f"resonance {__version__}")
         if alt is not None:
             out.write_text("recommended_detuned_case.toml", alt)
+    if offered:  # filters offered beside a detuned design that already clears the PCC current
+        alt = recommended_case_text(case_text, case_path, out.path, {**designs, **offered},
+                                    tool=f"resonance {__version__}")
+        if alt is not None:
+            out.write_text("recommended_filter_case.toml", alt)
     text = recommended_case_text(case_text, case_path, out.path, designs, tool=f"resonance {__version__}")
     if text is not None:
         out.write_text(RECOMMENDED_CASE, text)

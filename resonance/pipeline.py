@@ -73,6 +73,9 @@ class CheckResult:
     #: bank name -> :class:`CheckResult` of the detuned design's re-check where a filter took its place
     #: in ``rechecks`` (the chosen design, written to recommended_case.toml, is the filter)
     detuned_rechecks: Mapping[str, "CheckResult"] = field(default_factory=dict)
+    #: bank name -> :class:`CheckResult` of a filter offered but not chosen (the detuned design clears the
+    #: PCC current already); it is written to recommended_filter_case.toml
+    filter_rechecks: Mapping[str, "CheckResult"] = field(default_factory=dict)
     #: the studied network as plain data for the one-line diagram
     #: (:func:`resonance.model.topology.one_line_data`), None where it could not be drawn
     one_line: Any = None
@@ -238,7 +241,7 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
     from resonance.assessment.study import run_study, with_cross_check  # noqa: PLC0415
     from resonance.design.demand import time_in_step  # noqa: PLC0415
     from resonance.design.detuning import propose_detuning, recommended_studies  # noqa: PLC0415
-    from resonance.design.filter_search import filter_studies, propose_filters  # noqa: PLC0415
+    from resonance.design.filter_search import choose_designs, filter_studies, propose_filters  # noqa: PLC0415
     from resonance.design.switching_fix import propose_switching  # noqa: PLC0415
     from resonance.harmonics.engine import CHECK_WORKERS  # noqa: PLC0415
     from resonance.model import netmodel  # noqa: PLC0415
@@ -259,17 +262,22 @@ def run_check(case, *, net=None, workers: int | None = None) -> CheckResult:
             rechecks = {n: CheckResult(case=c, study=r) for n, (c, r) in studies.items()}
             switching = propose_switching(checked, model, study)
             filters = propose_filters(checked, model, study)
+            choose_designs(filters, studies)
             detuned_rc = {}
             for n, (c, r) in filter_studies(checked, model, filters).items():
                 if n in rechecks:
                     detuned_rc[n] = rechecks[n]
                 rechecks[n] = CheckResult(case=c, study=r)  # the chosen design: the filter
+            #: the offered, not chosen, filters keep their own re-check for the report
+            filter_rc = {n: CheckResult(case=c, study=r) for n, (c, r) in filter_studies(
+                checked, model, {n: e for n, e in filters.items() if e.get("filter") and not e["filter"]["chosen"]},
+                together=False).items()}
             one_line = _one_line(model, checked)
     finally:
         CHECK_WORKERS.reset(token)
     return CheckResult(case=checked, study=study, proposals=proposals, time_in_step=tis, detuned_scans=detuned,
                        case_sha256=sha, switching_proposals=switching, rechecks=rechecks, one_line=one_line,
-                       filter_proposals=filters, detuned_rechecks=detuned_rc)
+                       filter_proposals=filters, detuned_rechecks=detuned_rc, filter_rechecks=filter_rc)
 
 
 def _one_line(model, case):

@@ -52,6 +52,8 @@ def test_demo_gets_a_filter_that_clears_its_pcc_current_in_every_scenario(demo):
     b = next(x for x in demo.data["banks"] if x["name"] == "PFC-1")
     f = b["filter"]
     assert f is not None and f["clears_pcc_current"] and b["filter_reason"] == f["reason"]
+    # the detuned design leaves the site's PCC current: the filter is the recommended design
+    assert f["chosen"] and "detuned design leaves" in f["chosen_why"]
     # the plain bank leaves PCC current findings (IEEE Std 519-2014 Table 2) in every scenario
     scen = {x.scenario for x in demo.findings if x.check in PCC_CURRENT_CHECKS and x.bank == "PFC-1"}
     assert scen == {s.name for s in demo.study.scenarios}
@@ -148,6 +150,10 @@ def test_mv_filter_capacitors_are_a_construction_of_standard_units():
     res = run_check(_raw("water_plant_mv.toml"))
     f = res.data["banks"][0]["filter"]
     assert f is not None
+    # the water plant's PCC current findings are the plain bank's own; its detuned design clears them,
+    # so the filter is offered, not chosen (the detuned bank stays the recommended design)
+    assert f["chosen"] is False and res.rechecks["C-PUMP"].case.bank[0].kind == "capacitor"
+    assert "C-PUMP" in res.filter_rechecks
     for br in f["branches"]:
         c = br["construction"]
         assert c["unit_kv"] in UNIT_KV_60HZ.values

@@ -33,14 +33,14 @@ import numpy as np
 from resonance.assessment.tuning import (FILTER_BAND_MARGIN_PCT, detuning_settings, significant_orders,
                                          tuning_band)
 from resonance.assessment.verdict import bank_findings, site_findings
-from resonance.design.detuned_step import capacitor_rating_kv, detuned_step, nameplate_kvar, next_ratings
+from resonance.design.detuned_step import capacitor_rating_kv, nameplate_kvar, next_ratings
 from resonance.design.detuning import run_variant
-from resonance.design.filter_branch import design_branch
+from resonance.design.filter_figures import branch_figures, pcc_ratio, split_absorbed
 from resonance.design.mv_rating import LV_LIMIT_KV, rating_ladder
 from resonance.errors import InputError, ModelError
 
 __all__ = ["PCC_CURRENT_CHECKS", "FILTER_DEFAULTS", "SPLITS", "branch_tuning", "filter_settings",
-           "propose_filters", "filter_studies", "branch_names", "dropped_keys", "branch_rating"]
+           "propose_filters", "filter_studies", "choose_designs", "branch_names", "dropped_keys", "branch_rating"]
 
 #: the PCC current checks a filter is proposed for (IEEE Std 519-2014 Table 2)
 PCC_CURRENT_CHECKS = ("pcc_i_individual", "pcc_tdd")
@@ -127,93 +127,6 @@ def branch_names(bank_name: str, orders) -> list[str]:
     return [bank_name if i == 0 else f"{bank_name}-H{int(h)}" for i, h in enumerate(orders)]
 
 
-def _pcc_ratio(res, names) -> tuple[float, dict]:
-    """Largest PCC current over its limit in the branches' sweeps, and per scenario the full filter's
-    PCC figures (top branch, all branches in) [unitless, %]."""
-    worst = 0.0
-    per = {}
-    for asm in res.assessments:
-        if asm.bank not in names:
-            continue
-        lim = asm.info["pcc_i_limits"]
-        for s in asm.steps:
-            f = s.fields
-            r = [f["tdd_pct"] / lim["tdd_pct"]] if lim.get("tdd_pct") else []
-            r += [x["i_supply_pct_of_il"] / x["i_limit_pct_of_il"] for x in f["harmonics"] if x.get("i_limit_pct_of_il")]
-            worst = max([worst, *r])
-        if asm.bank == names[-1] and asm.steps:
-            f = asm.steps[-1].fields
-            ind = [(x["i_supply_pct_of_il"] / x["i_limit_pct_of_il"], x) for x in f["harmonics"]
-                   if x.get("i_limit_pct_of_il")]
-            top = max(ind, key=lambda t: t[0]) if ind else (None, {})
-            per[asm.scenario] = {
-                "tdd_pct": round(f["tdd_pct"], 3), "tdd_limit_pct": lim.get("tdd_pct"),
-                "tdd_bank_off_pct": None, "thd_v_pcc_pct": round(f["thd_v_pcc_pct"], 3),
-                "i_over_limit_max": None if top[0] is None else round(top[0], 4),
-                "i_over_limit_order": top[1].get("h"),
-            }
-    return worst, per
-
-
-def _branch_figures(res, variant, names, orders, u_kv: float, f_hz: float) -> list[dict]:
-    """Per branch: the worst duty and currents over its own sweeps, and what it absorbs with the whole
-    filter in (the top branch's sweep) [A, kV, %, kvar, kW]."""
-    st = detuning_settings(variant)
-    banks = {b.name: b for b in variant.bank}
-    top = {asm.scenario: asm for asm in res.assessments if asm.bank == names[-1]}
-    out = []
-    for i, (name, h) in enumerate(zip(names, orders)):
-        b = banks[name]
-        p = b.detuning_pct / 100.0
-        ds = detuned_step(b.steps_kvar[0], b.rated_kv, p, f_hz, u_kv)
-        mine = [asm for asm in res.assessments if asm.bank == name]
-        duty = {k: max(s.fields[k] for a in mine for s in a.steps) for k in
-                ("cap_v_rms_pct", "cap_v_peak_pct", "cap_i_rms_pct", "cap_kvar_pct")}
-        i_rms = max(s.fields["bank_i_rms_a"] for a in mine for s in a.steps)
-        # peak: arithmetic sum of the per-order peaks (IEEE Std 18 convention for the crest)
-        i_pk, absorbed, loss_kw = 0.0, {}, 0.0
-        # the branch's L, C, R by the single-tuned branch arithmetic (IEEE Std 1531; resonance.design.filter_branch)
-        fb = design_branch(float(ds.q_net_kvar[0]), u_kv, ds.n, f_hz, reactor_q=b.reactor_q, u_cap_rated_kv=b.rated_kv)
-        r_ohm = fb.r_ohm
-        for a in mine:
-            for s in a.steps:
-                hs = s.fields["harmonics"]
-                i1 = s.fields["bank_i_rms_a"] ** 2 - sum(x["i_bank_a"] ** 2 for x in hs)
-                pk = math.sqrt(2.0) * (math.sqrt(max(i1, 0.0)) + sum(x["i_bank_a"] for x in hs))
-                i_pk = max(i_pk, pk)
-                loss_kw = max(loss_kw, 3.0 * r_ohm * s.fields["bank_i_rms_a"] ** 2 / 1000.0)
-        full = top.get("nominal") or next(iter(top.values()), None)
-        if full is not None and full.steps:
-            # the whole filter in: this branch's own current is in the top branch's sweep only for the top
-            # branch; for the others their own sweep with the lower branches in is the nearest state
-            src = full if name == names[-1] else next((a for a in mine if a.scenario == full.scenario), None)
-            if src is not None and src.steps:
-                absorbed = {int(x["h"]): round(x["i_bank_a"], 3) for x in src.steps[-1].fields["harmonics"]
-                            if x["i_bank_a"] >= 0.005}
-        band = tuning_band(ds.n, st.cap_tolerance_pct, st.reactor_tolerance_pct)
-        par = {}
-        for sc in res.scans:
-            if sc.bank.name == name and sc.steps:
-                par[sc.scenario] = [round(pk[0], 3) for pk in sc.steps[-1].peaks if pk[0] < ds.n] or None
-        out.append({
-            "name": name, "target_order": int(h), "tuning_order": round(ds.n, 4), "f_tuning_hz": round(ds.f_tuning_hz, 2),
-            "detuning_pct": round(100.0 * p, 4), "kvar": round(float(ds.q_net_kvar[0]), 2),
-            "kvar_nameplate": round(float(b.steps_kvar[0]), 2), "capacitor_rated_kv": b.rated_kv,
-            "capacitor_v1_kv": round(ds.u_c1_kv, 5), "reactor_mh": round(float(ds.l_mh[0]), 5),
-            "capacitor_uf": round(fb.c_uf, 3), "reactor_r_ohm": round(r_ohm, 6), "reactor_q": b.reactor_q,
-            "quality_factor": round(fb.q_factor, 2), "bandwidth_orders": round(fb.bandwidth_orders, 4),
-            "tuning_band": [round(band[0], 4), round(band[1], 4)],
-            "reactor_i_rms_a": round(i_rms, 3), "reactor_i_peak_a": round(i_pk, 3),
-            "i_fundamental_a": round(float(ds.q_net_kvar[0]) / (math.sqrt(3.0) * u_kv), 3),
-            "absorbed_a": {str(k): v for k, v in sorted(absorbed.items())},
-            "duty_pct": {k: round(v, 3) for k, v in duty.items()},
-            "losses_kw": round(loss_kw, 4),
-            "parallel_resonance_below": par,
-            "runs_with": list(b.runs_with),
-        })
-    return out
-
-
 #: switching keys of the replaced bank that every branch keeps (one value for all its stages)
 _CARRIED = ("step_inductance_uh", "bus_length_m", "uh_per_m", "inrush_reactor_uh", "pre_insertion_ohm",
             "device_inrush_peak_ka", "device_inrush_hz")
@@ -228,36 +141,6 @@ def _carried(bank) -> dict:
 def dropped_keys(bank) -> list[str]:
     """Keys of the replaced bank that do not hold for a single-step branch (per-stage lists) [unitless]."""
     return [k for k in _CARRIED if isinstance(getattr(bank, k), list)]
-
-
-def _own_currents(res, name: str, scenario: str = "nominal") -> dict:
-    """Branch current per order in its own sweep, all of its steps in [A]."""
-    asm = next((a for a in res.assessments if a.bank == name and a.scenario == scenario), None)
-    if asm is None or not asm.steps:
-        return {}
-    return {str(int(x["h"])): round(x["i_bank_a"], 3) for x in asm.steps[-1].fields["harmonics"]
-            if x["i_bank_a"] >= 0.005}
-
-
-def _split_absorbed(branches: list[dict], variant, model) -> None:
-    """Each branch's current from the utility's background distortion alone (the case without its
-    harmonic sources) and from the site's sources alone (without the background), nominal supply:
-    a filter also absorbs what its neighbours inject [A].  The two need not add up to the total:
-    per order they are phasors (superposition of a linear network)."""
-    if variant.supply is None:
-        return
-    runs = {}
-    if variant.supply.background_pct:
-        runs["absorbed_background_a"] = variant.model_copy(update={"harmonic_source": []})
-        runs["absorbed_site_a"] = variant.model_copy(update={"supply": variant.supply.model_copy(
-            update={"background_pct": {}})})
-    for key, v in runs.items():
-        try:
-            r = run_variant(v, model)
-        except (InputError, ModelError, ValueError):
-            continue
-        for br in branches:
-            br[key] = _own_currents(r, br["name"])
 
 
 def _bank_tables(names, orders, ns, kvs, q_np, bank, quality: float) -> list[dict]:
@@ -371,7 +254,7 @@ def _study(case, model, bank, names, orders, ns, step, split, q_total, factor, f
         return c, None
     own = [f for f in bank_findings(res.findings) if f.bank in names]
     left = [f for f in res.findings if f.check in PCC_CURRENT_CHECKS and f.bank in names]
-    ratio, per = _pcc_ratio(res, names)
+    ratio, per = pcc_ratio(res, names)
     why = sorted({f"{f.check} ({f.bank}, {f.scenario})" for f in own})
     if left:
         why.append(f"PCC current still beyond its limit (up to {ratio:.2f} x the limit)")
@@ -522,11 +405,11 @@ def propose_filters(case, model, result) -> dict:
             d["tdd_bank_off_pct"] = None if asm0 is None else round(asm0.bank_off["tdd_pct"], 3)
         site_ok = not site_findings(res.findings)
         orders_c = [b["order"] for b in c["branches"]]
-        branches = _branch_figures(res, variant, branch_names(bank.name, orders_c), orders_c, u,
+        branches = branch_figures(res, variant, branch_names(bank.name, orders_c), orders_c, u,
                                    float(case.frequency_hz))
         for br, cb in zip(branches, c["branches"]):
             br["construction"] = cb["construction"]
-        _split_absorbed(branches, variant, model)
+        split_absorbed(branches, variant, model)
         losses = sum(b["losses_kw"] for b in branches)
         q_chosen = q_total * c["kvar_factor"]
         more = ("" if c["kvar_factor"] == 1.0 else
@@ -538,7 +421,9 @@ def propose_filters(case, model, result) -> dict:
             "kvar_site": round(q_total, 2), "kvar_factor": c["kvar_factor"],
             "branches": branches, "bank_tables": tables, "drop_keys": dropped_keys(bank), "pcc": per, "clears_pcc_current": True,
             "clears_site_findings": site_ok, "losses_kw": round(losses, 4), "re_checks": len(cands),
-            "reason": (f"{len(branches)} single-tuned branch{'' if one else 'es'} ({_describe(c)}) in place of bank "
+            "reason": (f"{len(branches)} single-tuned branch{'' if one else 'es'} ("
+                       + " + ".join(f"{b['kvar']:.0f} kvar at {b['tuning_order']:.2f} ({b['capacitor_rated_kv']:g} kV)"
+                                    for b in branches) + f") in place of bank "
                        f"{bank.name} clear{'s' if one else ''} every PCC current finding in every scenario and "
                        f"pass{'es' if one else ''} every check of {'its' if one else 'their'} own (the smallest of "
                        f"{len(cands)} designs studied{more})"
@@ -548,7 +433,46 @@ def propose_filters(case, model, result) -> dict:
     return out
 
 
-def filter_studies(case, model, proposals: dict) -> dict:
+def choose_designs(proposals: dict, detuned_studies: dict) -> None:
+    """Mark each proposed filter ``chosen`` (the recommended design of its bank) or not.
+
+    Parameters
+    ----------
+    proposals : dict
+        :func:`propose_filters` output, marked in place (``filter.chosen``, ``filter.chosen_why``).
+    detuned_studies : dict
+        Bank name -> (variant case, StudyResult) of its recommended detuned design
+        (:func:`resonance.design.detuning.recommended_studies`).
+
+    Notes
+    -----
+    A filter is chosen where its bank has no detuned design, or where the detuned design's re-check
+    still has a PCC current finding in the bank's sweeps (the site's emission, or the bank's); where
+    the detuned design clears every PCC current finding it is the simpler remedy and the filter is
+    offered beside it (project choice, common practice: a filter is bought for the site's compliance).
+    """
+    for name, e in proposals.items():
+        f = (e or {}).get("filter")
+        if not f:
+            continue
+        st = detuned_studies.get(name)
+        if st is None:
+            f["chosen"], f["chosen_why"] = True, "no detuned design is proposed for this bank"
+            continue
+        left = [x for x in st[1].findings if x.check in PCC_CURRENT_CHECKS and x.bank == name]
+        if left:
+            f["chosen"] = True
+            f["chosen_why"] = (f"the detuned design leaves {len(left)} PCC current finding(s) in its re-check "
+                               f"(e.g. {left[0].check}, {left[0].scenario}); the filter clears them")
+        else:
+            f["chosen"] = False
+            f["chosen_why"] = ("the detuned design already clears every PCC current finding in its re-check: it is "
+                               "the recommended design, the filter is offered beside it")
+            f["reason"] += " Offered, not chosen: " + f["chosen_why"] + "."
+            e["filter_reason"] = f["reason"]
+
+
+def filter_studies(case, model, proposals: dict, together: bool = True) -> dict:
     """Bank name -> (variant case, re-check StudyResult) of its proposed filter.
 
     With one filter this is the memoised study the proposal was accepted on.  Where several banks get
@@ -557,13 +481,14 @@ def filter_studies(case, model, proposals: dict) -> dict:
     is written into each proposal as ``together`` (``banks``, ``clears_pcc_current``,
     ``branch_findings``) and, where it does not clear, said in the reason.
     """
-    chosen = [(name, e["filter"]) for name, e in proposals.items() if (e or {}).get("filter")]
+    chosen = [(name, e["filter"]) for name, e in proposals.items()
+              if (e or {}).get("filter") and (e["filter"].get("chosen", True) or not together)]
     out = {}
     for name, f in chosen:
         bank = next(b for b in case.bank if b.name == name)
         variant = _filter_variant(case, bank, f["bank_tables"])
         out[name] = (variant, run_variant(variant, model))
-    if len(chosen) < 2:
+    if len(chosen) < 2 or not together:
         return out
     variant = case
     for name, f in chosen:
@@ -573,14 +498,14 @@ def filter_studies(case, model, proposals: dict) -> dict:
     names = {t["name"] for _n, f in chosen for t in f["bank_tables"]}
     own = [x for x in bank_findings(res.findings) if x.bank in names]
     left = [x for x in res.findings if x.check in PCC_CURRENT_CHECKS and x.bank in names]
-    together = {"banks": [n for n, _f in chosen], "clears_pcc_current": not left, "branch_findings": len(own),
+    tog = {"banks": [n for n, _f in chosen], "clears_pcc_current": not left, "branch_findings": len(own),
                 "site_passed": not site_findings(res.findings)}
     for name, f in chosen:
-        f["together"] = together
-        f["clears_site_findings"] = together["site_passed"]
+        f["together"] = tog
+        f["clears_site_findings"] = tog["site_passed"]
         if left or own:
             f["clears_pcc_current"] = not left
-            f["reason"] += (f" With the other proposed filters in place as well ({', '.join(together['banks'])}), "
+            f["reason"] += (f" With the other proposed filters in place as well ({', '.join(tog['banks'])}), "
                             f"{len(own)} branch finding(s) and {len(left)} PCC current finding(s) remain: "
                             "the filters must be designed together (give [filter] banks one at a time).")
             proposals[name]["filter_reason"] = f["reason"]

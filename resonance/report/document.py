@@ -189,6 +189,7 @@ class _Book:
             tables += rp.proposed_tables(rc, name)
             bank = next((b for b in self.data["banks"] if b["name"] == name), None)
             flt = (bank or {}).get("filter")
+            flt = flt if flt and flt.get("chosen", True) else None  # the chosen design is the filter
             for br in (flt or {}).get("branches", [])[1:]:  # the further branches of a filter
                 tables += rp.proposed_tables(rc, br["name"])
             rec = ((bank or {}).get("detuning") or {}).get("recommended")
@@ -444,7 +445,7 @@ class _Book:
             rec = det.get("recommended")
             rc = self.rechecks.get(name)
             t_rec = tbl.get(f"table_detuning_recommended_{_safe(name)}.csv")
-            if b.get("filter") and rc is not None:
+            if b.get("filter") and b["filter"].get("chosen", True) and rc is not None:
                 any_rec = True
                 self._filter(doc, place, b, rc, rec, t_rec)
             elif rec and rc is not None:
@@ -470,7 +471,13 @@ class _Book:
                 ct = tbl.get(f"table_construction_{_safe(name)}.csv")
                 if ct is not None:
                     doc.table(ct, size=7.0)
-                if (b.get("filter_search") or {}).get("candidates"):
+                if b.get("filter"):  # offered beside the detuned design
+                    doc.para(f"Tuned filter offered: {b.get('filter_reason', '')} (recommended_filter_case.toml)",
+                             size=8.0)
+                    for key in (f"table_filter_{_safe(name)}.csv", f"table_filter_pcc_{_safe(name)}.csv"):
+                        if key in tbl:
+                            doc.table(tbl[key], size=7.0)
+                elif (b.get("filter_search") or {}).get("candidates"):
                     doc.para(f"Tuned filter: {b.get('filter_reason', '')}", size=8.0)
             elif det:
                 doc.para(f"Bank {name}: no detuned design is proposed. {det.get('reason') or det.get('status') or ''}",

@@ -110,7 +110,7 @@ def construction_table(bank: dict) -> Table | None:
     """Construction of standard units of the recommended design above 1 kV (filter branches, else the
     detuned stages), one row per branch or stage; None where there is none."""
     flt = bank.get("filter")
-    if flt:
+    if flt and flt.get("chosen", True):
         items = [(b["name"], b.get("construction")) for b in flt["branches"]]
     else:
         rec = (bank.get("detuning") or {}).get("recommended") or {}

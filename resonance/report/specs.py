@@ -129,7 +129,7 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
     s = _safe(name)
     pb = rp.proposed_bank(recheck, name)
     flt = bank.get("filter")
-    if flt:  # the chosen design is a tuned filter: its scan, branch by branch
+    if flt and flt.get("chosen", True):  # the chosen design is a tuned filter: its scan, branch by branch
         from resonance.report.filter_report import draw_filter_scan  # noqa: PLC0415
 
         names = [b["name"] for b in flt["branches"]]
