@@ -121,7 +121,7 @@ def _dlogabs(z: np.ndarray, dz: np.ndarray) -> np.ndarray:
 
 def adaptive_scan(fun, h: np.ndarray, z: np.ndarray | None = None, tol: float = 0.05,
                   min_step: float = 0.01 / 16, max_levels: int = 12, derivative: bool = False,
-                  dz: np.ndarray | None = None) -> AdaptiveScan:
+                  dz: np.ndarray | None = None, sample_rtol: float | None = None) -> AdaptiveScan:
     """Refine a frequency grid where any curve changes fast.
 
     Parameters
@@ -145,6 +145,10 @@ def adaptive_scan(fun, h: np.ndarray, z: np.ndarray | None = None, tol: float = 
         ``fun`` also returns ``dZ/dh``; then intervals whose cubic Hermite
         interpolant of ``ln|Z|`` turns inside are halved too, and peaks are
         bracketed by a sign change of ``d|Z|/dh`` [unitless].
+    sample_rtol : float, optional
+        With derivatives: also halve intervals where the cubic Hermite interpolants of ``Z``
+        and of ``ln Z`` disagree at the midpoint by more than this fraction of ``|Z|``, so that
+        :func:`hermite_sample` is that accurate between the samples [unitless].
 
     Returns
     -------
@@ -184,7 +188,7 @@ def adaptive_scan(fun, h: np.ndarray, z: np.ndarray | None = None, tol: float = 
     dz = None if dz is None else np.atleast_2d(np.asarray(dz, complex))
     n_eval = h.size
     if derivative:
-        return _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels)
+        return _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels, sample_rtol)
     level = 0
     for level in range(1, max_levels + 1):
         width = np.diff(h)
@@ -225,13 +229,16 @@ def _sample_terms(z: np.ndarray, dz: np.ndarray, j) -> tuple:
 
 
 def _split_dh(h: np.ndarray, z: np.ndarray, dz: np.ndarray, i: np.ndarray, tol: float,
-              min_step: float) -> np.ndarray:
+              min_step: float, sample_rtol: float | None = None) -> np.ndarray:
     """Which of the intervals ``[h_i, h_{i+1}]`` (indices ``i``) the derivative rule halves.
 
     ``|ln(Z_b / Z_a)|`` is formed from per-sample logarithms and phases,
     ``sqrt((ln|Z_b| - ln|Z_a|)^2 + wrap(arg Z_b - arg Z_a)^2)`` with the phase difference
     wrapped to (-pi, pi] (the principal logarithm of the ratio), so each sample is
-    transformed once although it ends two intervals.
+    transformed once although it ends two intervals.  With ``sample_rtol``, an interval is
+    also halved where the cubic Hermite interpolants of ``Z`` and of ``ln Z`` disagree at its
+    midpoint by more than ``sample_rtol |Z|`` (two interpolants of the same data whose
+    difference estimates the error of :func:`hermite_sample` there).
     """
     if i.size == h.size - 1:  # every interval: transform each sample once
         la_, ph_, g_, ok_ = _sample_terms(z, dz, slice(None))
@@ -248,10 +255,27 @@ def _split_dh(h: np.ndarray, z: np.ndarray, dz: np.ndarray, i: np.ndarray, tol: 
     split = d.max(axis=0) > tol
     same = np.sign(ga) == np.sign(gb)
     split |= (same & _hermite_turns(la, lb, ga, gb, width[None, :])).any(axis=0)
+    if sample_rtol is not None:
+        split |= _sample_disagree(z[:, i], z[:, i + 1], dz[:, i], dz[:, i + 1], dph, lb - la, width,
+                                  sample_rtol)
     return split & (width > min_step * (1.0 + 1e-9))
 
 
-def _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels) -> AdaptiveScan:
+def _sample_disagree(za, zb, dza, dzb, dph, dla, width, rtol) -> np.ndarray:
+    """Intervals where the Hermite interpolants of ``Z`` and ``ln Z`` differ at the midpoint by > ``rtol``.
+
+    At ``t = 1/2``: ``H00 = H01 = 1/2``, ``H10 = -H11 = 1/8``;
+    ``Z_lin = (Z_a + Z_b)/2 + w (Z'_a - Z'_b)/8`` and
+    ``Z_log = Z_a exp(L/2 + w (Z'_a/Z_a - Z'_b/Z_b)/8)`` with ``L = ln(Z_b/Z_a)`` [unitless].
+    """
+    with np.errstate(all="ignore"):
+        z_lin = 0.5 * (za + zb) + 0.125 * width * (dza - dzb)
+        z_log = za * np.exp(0.5 * (dla + 1j * dph) + 0.125 * width * (dza / za - dzb / zb))
+        bad = np.abs(z_lin - z_log) > rtol * np.abs(z_log)
+    return np.where(np.isfinite(z_log), bad, True).any(axis=0)
+
+
+def _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels, sample_rtol=None) -> AdaptiveScan:
     """:func:`adaptive_scan` with derivatives, testing only the intervals made at the last level.
 
     Each rule looks at one interval's two end samples only, so an interval that was not halved
@@ -262,7 +286,7 @@ def _adaptive_scan_dh(fun, h, z, dz, tol, min_step, max_levels) -> AdaptiveScan:
     active = np.arange(h.size - 1)
     level = 0
     for level in range(1, max_levels + 1):
-        split = active[_split_dh(h, z, dz, active, tol, min_step)] if active.size else active
+        split = active[_split_dh(h, z, dz, active, tol, min_step, sample_rtol)] if active.size else active
         if not split.size:
             level -= 1
             break
@@ -532,7 +556,9 @@ def hermite_sample(h: np.ndarray, z: np.ndarray, dz: np.ndarray, h_out: np.ndarr
     most ``w^4 max|d^4Z/dh^4| / 384``.  For the single-pole resonance ``Z = R / (1 + j x)``,
     ``x = 2 Q (h - h_r) / h_r``: ``|d^4Z/dx^4| <= 24 R`` and the grid's rule
     ``|ln(Z_{i+1}/Z_i)| <= tol`` keeps ``dx`` at most about ``tol``, so the error is below
-    ``tol^4 R / 16`` (4e-7 of the peak at ``tol = 0.05``).
+    ``tol^4 R / 16`` (4e-7 of the peak at ``tol = 0.05``); near a minimum of ``|Z|`` the
+    relative error is larger, which the grid's ``sample_rtol`` rule
+    (:func:`adaptive_scan`) bounds by refining where two interpolants disagree.
 
     References
     ----------

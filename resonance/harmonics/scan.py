@@ -19,7 +19,7 @@ from resonance.model.admittance import YPattern
 from resonance.harmonics.engine import SparseEngine, sparse_columns
 from resonance.harmonics.grid import (AdaptiveScan, adaptive_scan, hermite_refine, hermite_sample, peak_brackets,
                                       zoom_refine)
-from resonance.memo import remember
+from resonance.memo import remember, scope
 from resonance.model.network import NetworkArrays
 
 __all__ = [
@@ -35,6 +35,7 @@ __all__ = [
     "step_peaks",
     "StepPeaks",
     "LARGE_START_FACTOR",
+    "SAMPLE_RTOL",
 ]
 
 #: networks up to this many buses use batched dense solves, larger ones sparse LU
@@ -44,6 +45,11 @@ DENSE_MAX_BUSES = 100
 #: on networks above DENSE_MAX_BUSES the adaptive peak search starts on every 16th order of
 #: the study grid (0.16 at h_step 0.01) and lets the derivative rule refine (docs/performance.md)
 LARGE_START_FACTOR = 16
+
+#: from a coarse start the grid is also refined where two interpolants of the samples disagree
+#: by more than this fraction of |Z| (an error estimate for StepPeaks.sample; a feature that
+#: leaves no trace at the samples is beyond it: measured 8e-4 at most, tests/test_large_adaptive.py)
+SAMPLE_RTOL = 1e-4
 
 
 @dataclass(frozen=True)
@@ -493,6 +499,13 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
     two solves per bracket and pass.  Brackets found without a sign change (a sampled
     maximum) always take the sequential search.
     """
+    with scope():  # the running check's memo, or one for this search: the sparse engine is built once
+        return _step_peaks(arr, bus, step_admittance, h, settings, extra, pattern, tol, min_step, xtol, workers,
+                           base, start_factor)
+
+
+def _step_peaks(arr, bus, step_admittance, h, settings, extra, pattern, tol, min_step, xtol, workers, base,
+                start_factor) -> StepPeaks:
     h = np.atleast_1d(np.asarray(h, float))
     if min_step is None:
         min_step = float(np.min(np.diff(h))) / 16.0 if h.size > 1 else 1e-3
@@ -513,7 +526,8 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
             h0, z_base, dz_base = h[idx], z_base[:, idx], dz_base[:, idx]
     elif start_factor > 1 and h.size > 2:
         h0 = _coarse_grid(h, start_factor)
-    sc = adaptive_scan(fun, h0, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True)
+    sc = adaptive_scan(fun, h0, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True,
+                       sample_rtol=SAMPLE_RTOL if start_factor > 1 else None)
     n_eval = sc.n_evaluations - (h0.size if base is not None else 0)
     curve, lo, hi = peak_brackets(sc)
     hp, zp = np.zeros(curve.size), np.zeros(curve.size)
