@@ -195,8 +195,44 @@ def _input_files(case, case_path: Path) -> list[Path]:
     return files
 
 
+class _ScanBar:
+    """Progress of a long sparse scan on stderr (the core calls it through
+    :data:`resonance.harmonics.engine.SCAN_PROGRESS` with orders done and in all); shown once a
+    scan has run ``after_s`` seconds, never with ``--quiet``."""
+
+    def __init__(self, after_s: float = 3.0):
+        self.after_s, self.t0, self.last, self.shown = after_s, 0.0, None, False
+
+    def __call__(self, done: int, total: int) -> None:
+        import time  # noqa: PLC0415
+
+        now = time.monotonic()
+        if self.last is None or done <= self.last[0] or self.last[0] >= self.last[1]:
+            self.t0, self.shown = now, False  # a new scan
+        self.last = (done, total)
+        if now - self.t0 < self.after_s and not self.shown:
+            return
+        self.shown = True
+        fill = int(30 * done / max(total, 1))
+        sys.stderr.write(f"\rscan [{'#' * fill}{'.' * (30 - fill)}] {done}/{total} orders ")
+        if done >= total:
+            sys.stderr.write("\n")
+        sys.stderr.flush()
+
+
 def _check(args) -> int:
     """``resonance check``: argv -> :func:`resonance.pipeline.run_check` -> writers -> exit code."""
+    from resonance.harmonics.engine import SCAN_PROGRESS  # noqa: PLC0415
+
+    token = SCAN_PROGRESS.set(None if args.quiet else _ScanBar())
+    try:
+        return _check_run(args)
+    finally:
+        SCAN_PROGRESS.reset(token)
+
+
+def _check_run(args) -> int:
+    """The body of :func:`_check`."""
     from resonance.inputs.case_checks import case_hints  # noqa: PLC0415
     from resonance.inputs.case_load import load_case  # noqa: PLC0415
     from resonance.outputs import OutputDir  # noqa: PLC0415

@@ -36,7 +36,7 @@ import scipy.sparse.linalg as spla
 from resonance.model.admittance import YPattern, load_admittance, resistance_factor
 from resonance.model.network import NetworkArrays
 
-__all__ = ["SparseEngine", "sparse_columns", "RESIDUAL_RTOL", "default_workers", "CHECK_WORKERS"]
+__all__ = ["SparseEngine", "sparse_columns", "RESIDUAL_RTOL", "default_workers", "CHECK_WORKERS", "SCAN_PROGRESS"]
 
 #: relative residual ``|Y x - b| / |b|`` above which a point is solved again with full pivoting
 RESIDUAL_RTOL = 1e-9
@@ -56,6 +56,12 @@ _POOL_MIN_WORK_S = 6.0
 #: the duration of one check; None: ``RESONANCE_WORKERS`` or the CPU count decides)
 CHECK_WORKERS: "contextvars.ContextVar[int | None]" = contextvars.ContextVar("resonance_check_workers",
                                                                             default=None)
+
+
+#: progress hook of the running command: ``hook(done, total)`` [orders] after every chunk of a
+#: sparse scan, so the edge (the CLI) can show a bar; the core only calls it (None: no calls)
+SCAN_PROGRESS: "contextvars.ContextVar[object | None]" = contextvars.ContextVar("resonance_scan_progress",
+                                                                               default=None)
 
 
 def default_workers() -> int:
@@ -468,9 +474,22 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
     rows = np.asarray(rows, int)
     workers = default_workers() if workers is None else max(1, int(workers))
     est_s = h.size * 3e-7 * engine.nnz * max(1.0, math.log10(max(engine.n, 10)))
+    hook = SCAN_PROGRESS.get()
     if workers == 1 or h.size < 2 * chunk or est_s < _POOL_MIN_WORK_S:
-        z, dz, _ = engine.solve_chunk(h, cols, rows, diag_extra, derivative, diag_extra_dh)
-        return (z, dz) if derivative else z
+        if hook is None:
+            z, dz, _ = engine.solve_chunk(h, cols, rows, diag_extra, derivative, diag_extra_dh)
+            return (z, dz) if derivative else z
+        out = np.empty((h.size, rows.size, cols.size), complex)
+        dout = np.empty_like(out) if derivative else None
+        for a in range(0, h.size, chunk):  # the same solves, chunk by chunk, reported
+            z, dz, _ = engine.solve_chunk(h[a:a + chunk], cols, rows,
+                                          None if diag_extra is None else diag_extra[a:a + chunk], derivative,
+                                          None if diag_extra_dh is None else diag_extra_dh[a:a + chunk])
+            out[a:a + chunk] = z
+            if derivative:
+                dout[a:a + chunk] = dz
+            hook(min(a + chunk, h.size), h.size)
+        return (out, dout) if derivative else out
     import multiprocessing as mp  # noqa: PLC0415
 
     starts = list(range(0, h.size, chunk))
@@ -481,10 +500,15 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
         return (h[a:a + chunk], cols, rows, None if diag_extra is None else diag_extra[a:a + chunk],
                 derivative, None if diag_extra_dh is None else diag_extra_dh[a:a + chunk])
 
+    done = [0]
+
     def put(a: int, res) -> None:
         out[a:a + chunk] = res[0]
         if derivative:
             dout[a:a + chunk] = res[1]
+        done[0] += res[0].shape[0]
+        if hook is not None:
+            hook(done[0], h.size)
 
     ex = ProcessPoolExecutor(max_workers=workers - 1, mp_context=mp.get_context("spawn"),
                              initializer=_init_worker, initargs=(engine,))
