@@ -179,3 +179,37 @@ def test_every_fine_peak_found_case9241pegase_cut():
     assert missed == []
     assert rel <= 1e-3
     assert found.n_evaluations < n_fine / 3
+
+
+def test_scan_progress_hook_sees_every_chunk_and_changes_nothing(case1354):
+    # the core's progress hook (engine.SCAN_PROGRESS, set by the CLI): called after every chunk
+    # with the orders done and in all; the impedances are those of the scan without it
+    from resonance.harmonics.engine import SCAN_PROGRESS, SparseEngine, sparse_columns
+
+    eng = SparseEngine.build(case1354)
+    h = np.linspace(1.0, 20.0, 150)
+    cols = np.array([3])
+    calls = []
+    token = SCAN_PROGRESS.set(lambda done, total: calls.append((done, total)))
+    try:
+        z_hook = sparse_columns(eng, h, cols, cols, workers=1, chunk=64)
+    finally:
+        SCAN_PROGRESS.reset(token)
+    z = sparse_columns(eng, h, cols, cols, workers=1, chunk=64)
+    assert calls == [(64, 150), (128, 150), (150, 150)]
+    np.testing.assert_array_equal(z_hook, z)
+
+
+def test_cli_scan_bar_on_stderr_after_its_delay(capsys):
+    # the CLI's bar (resonance.cli._ScanBar): nothing before its delay, a bar and a final newline after
+    from resonance.cli import _ScanBar
+
+    late = _ScanBar(after_s=3600.0)
+    for d in (10, 20):
+        late(d, 20)
+    assert capsys.readouterr().err == ""
+    bar = _ScanBar(after_s=0.0)
+    bar(10, 20)
+    bar(20, 20)
+    err = capsys.readouterr().err
+    assert "10/20 orders" in err and err.endswith("20/20 orders \n")
