@@ -213,3 +213,32 @@ def test_cli_scan_bar_on_stderr_after_its_delay(capsys):
     bar(20, 20)
     err = capsys.readouterr().err
     assert "10/20 orders" in err and err.endswith("20/20 orders \n")
+
+
+def test_pool_session_reuses_one_pool_and_leaves_no_process(case1354, monkeypatch):
+    # inside engine.pool_session every batch of the same engine goes to one spawn pool (started
+    # once); the results are the serial ones exactly (the pool only splits the orders), and no
+    # worker outlives the block (multiprocessing.active_children)
+    import multiprocessing as mp
+
+    from resonance.harmonics import engine as engine_mod
+
+    started = []
+
+    class CountedPool(engine_mod.ProcessPoolExecutor):
+        def __init__(self, *a, **kw):
+            started.append(1)
+            super().__init__(*a, **kw)
+
+    monkeypatch.setattr(engine_mod, "_POOL_MIN_WORK_S", 0.0)
+    monkeypatch.setattr(engine_mod, "ProcessPoolExecutor", CountedPool)
+    eng = engine_mod.SparseEngine.build(case1354)
+    cols = np.array([3, 7])
+    batches = [np.linspace(1.0, 20.0, 130), np.linspace(2.05, 3.0, 140), np.linspace(5.0, 9.0, 24)]
+    with engine_mod.pool_session():
+        got = [engine_mod.sparse_columns(eng, h, cols, cols, workers=2, chunk=64) for h in batches]
+    assert len(started) == 1
+    assert engine_mod._SESSION.get() is None
+    assert mp.active_children() == []
+    for h, z in zip(batches, got):
+        np.testing.assert_array_equal(z, engine_mod.sparse_columns(eng, h, cols, cols, workers=1))

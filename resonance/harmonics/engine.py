@@ -23,6 +23,7 @@ second core is used through a process pool (:func:`sparse_columns`).
 
 from __future__ import annotations
 
+import contextlib
 import contextvars
 import math
 import os
@@ -36,7 +37,8 @@ import scipy.sparse.linalg as spla
 from resonance.model.admittance import YPattern, load_admittance, resistance_factor
 from resonance.model.network import NetworkArrays
 
-__all__ = ["SparseEngine", "sparse_columns", "RESIDUAL_RTOL", "default_workers", "CHECK_WORKERS", "SCAN_PROGRESS"]
+__all__ = ["SparseEngine", "sparse_columns", "RESIDUAL_RTOL", "default_workers", "CHECK_WORKERS", "SCAN_PROGRESS",
+           "pool_session"]
 
 #: relative residual ``|Y x - b| / |b|`` above which a point is solved again with full pivoting
 RESIDUAL_RTOL = 1e-9
@@ -422,6 +424,36 @@ def _residual_ok(a: sp.csc_matrix, a_norm: float, x: np.ndarray, b: np.ndarray) 
 # ------------------------------------------------------------------ process pool
 _WORKER_ENGINE: SparseEngine | None = None
 
+#: the pool kept for the block of a :func:`pool_session` (``{"engine", "ex", "workers"}``), None outside one
+_SESSION: "contextvars.ContextVar[dict | None]" = contextvars.ContextVar("resonance_pool_session", default=None)
+
+
+@contextlib.contextmanager
+def pool_session():
+    """Keep the sparse engine's spawn pool alive across the scans made inside the block.
+
+    An adaptive search solves a dozen small batches of orders one after the other; inside a
+    session the pool (and its copy of the engine) is started once, by the first batch worth it,
+    and serves every later batch of the same engine.  On leaving the block, normally or by an
+    exception or a signal, its processes are shut down (terminated and joined on an exception,
+    as in :func:`sparse_columns`).  Nested sessions share the outer one.
+    """
+    if _SESSION.get() is not None:
+        yield
+        return
+    sess: dict = {}
+    token = _SESSION.set(sess)
+    try:
+        yield
+    except BaseException:
+        if sess.get("ex") is not None:
+            _stop_pool(sess.pop("ex"))
+        raise
+    finally:
+        _SESSION.reset(token)
+        if sess.get("ex") is not None:
+            sess.pop("ex").shutdown(wait=True)
+
 
 def _init_worker(engine: SparseEngine) -> None:
     global _WORKER_ENGINE  # noqa: PLW0603 - one engine per worker process
@@ -475,7 +507,12 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
     workers = default_workers() if workers is None else max(1, int(workers))
     est_s = h.size * 3e-7 * engine.nnz * max(1.0, math.log10(max(engine.n, 10)))
     hook = SCAN_PROGRESS.get()
-    if workers == 1 or h.size < 2 * chunk or est_s < _POOL_MIN_WORK_S:
+    sess = _SESSION.get()
+    live = sess is not None and sess.get("ex") is not None and sess.get("engine") is engine \
+        and sess.get("workers") == workers
+    if live:  # the pool is paid for already: worth it for any batch it can split
+        chunk = max(4, min(chunk, -(-h.size // (2 * workers))))
+    if workers == 1 or h.size < 2 * chunk or (not live and est_s < _POOL_MIN_WORK_S):
         if hook is None:
             z, dz, _ = engine.solve_chunk(h, cols, rows, diag_extra, derivative, diag_extra_dh)
             return (z, dz) if derivative else z
@@ -510,8 +547,15 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
         if hook is not None:
             hook(done[0], h.size)
 
-    ex = ProcessPoolExecutor(max_workers=workers - 1, mp_context=mp.get_context("spawn"),
-                             initializer=_init_worker, initargs=(engine,))
+    if live:
+        ex = sess["ex"]
+    else:
+        if sess is not None and sess.get("ex") is not None:  # another engine's pool: replaced
+            sess.pop("ex").shutdown(wait=True)
+        ex = ProcessPoolExecutor(max_workers=workers - 1, mp_context=mp.get_context("spawn"),
+                                 initializer=_init_worker, initargs=(engine,))
+        if sess is not None:
+            sess.update(engine=engine, ex=ex, workers=workers)
     try:
         futs = {a: ex.submit(_work, *part(a)) for a in reversed(starts)}
         for a in starts:
@@ -523,9 +567,12 @@ def sparse_columns(engine: SparseEngine, h: np.ndarray, cols: np.ndarray, rows: 
             put(a, fu.result())
     except BaseException:
         # interrupted (a signal, an error): no worker may outlive this call
+        if sess is not None:
+            sess.pop("ex", None)
         _stop_pool(ex)
         raise
-    ex.shutdown(wait=True)
+    if sess is None:
+        ex.shutdown(wait=True)
     return (out, dout) if derivative else out
 
 

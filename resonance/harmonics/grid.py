@@ -456,6 +456,11 @@ def _hermite_argmax(a, b, fa, fb, ga, gb) -> np.ndarray:
     return a + t * w
 
 
+#: a bracket wider than this many ``xtol`` takes one solve in its first pass (at the interpolant's
+#: maximum), every other pass the pair that can close it (hermite_refine)
+_SINGLE_WIDTHS = 1000.0
+
+
 def hermite_refine(fun, lo, hi, f_lo, f_hi, g_lo, g_hi, xtol: float = 1e-5,
                    max_passes: int = 60) -> tuple[np.ndarray, np.ndarray, int]:
     """Maximise smooth functions on brackets with their derivatives, all brackets at once.
@@ -474,7 +479,7 @@ def hermite_refine(fun, lo, hi, f_lo, f_hi, g_lo, g_hi, xtol: float = 1e-5,
         Final bracket width [unitless].
     max_passes : int
         Most passes [unitless] (the bisection safeguard needs at most about
-        ``2 log2(width / xtol)``).
+        ``3 log2(width / xtol)``).
 
     Returns
     -------
@@ -485,12 +490,12 @@ def hermite_refine(fun, lo, hi, f_lo, f_hi, g_lo, g_hi, xtol: float = 1e-5,
     Notes
     -----
     Each pass takes the maximum ``x*`` of the cubic Hermite interpolant of ``f`` on the
-    bracket and evaluates the pair ``x* -+ xtol/2``; the signs of ``g`` at the pair and at the
-    ends keep the first sub-interval where ``g`` turns from positive to non-positive.  When
-    the interpolant is accurate to ``xtol/2`` the bracket closes to ``xtol`` in that pass;
-    otherwise it shrinks to one side of the pair with a new end near the maximum, and a pass
-    that did not halve the bracket is followed by a bisection (the safeguard of Brent's
-    method).  Every final bracket holds a sign change of ``g`` across at most ``xtol``, so a
+    bracket; in its first pass a bracket wider than 1000 ``xtol`` is cut at ``x*`` alone (one
+    solve, a new end near the maximum), in every other pass at the pair ``x* -+ xtol/2``.  The signs of ``g`` at the
+    new points and at the ends keep the first sub-interval where ``g`` turns from positive to
+    non-positive.  When the interpolant is accurate to ``xtol/2`` a pair closes the bracket to
+    ``xtol``; otherwise it shrinks to one side with a new end near the maximum.  A bracket that
+    two passes did not halve is bisected (the safeguard of Brent's method).  Every final bracket holds a sign change of ``g`` across at most ``xtol``, so a
     maximum lies within ``xtol`` of the returned order.
 
     References
@@ -503,30 +508,38 @@ def hermite_refine(fun, lo, hi, f_lo, f_hi, g_lo, g_hi, xtol: float = 1e-5,
     a, b = np.array(lo, float), np.array(hi, float)
     fa, fb, ga, gb = (np.array(x, float) for x in (f_lo, f_hi, g_lo, g_hi))
     n_eval = 0
-    bisect = np.zeros(a.size, bool)
+    w_before = np.full(a.size, np.inf)  # bracket width one pass back
+    w_before2 = np.full(a.size, np.inf)  # and two passes back
     for _ in range(max_passes):
         todo = np.nonzero(b - a > xtol * (1.0 + 1e-9))[0]
         if not todo.size:
             break
         w0 = b[todo] - a[todo]
         x = _hermite_argmax(a[todo], b[todo], fa[todo], fb[todo], ga[todo], gb[todo])
-        x = np.where(bisect[todo], 0.5 * (a[todo] + b[todo]), x)
-        half = 0.5 * np.minimum(xtol, 0.5 * w0)
+        x = np.where(w0 > 0.5 * w_before2[todo], 0.5 * (a[todo] + b[todo]), x)  # two passes, not halved
+        single = (w0 > _SINGLE_WIDTHS * xtol) & ~np.isfinite(w_before[todo])  # a wide bracket's first pass
+        half = np.where(single, 0.0, 0.5 * np.minimum(xtol, 0.5 * w0))
         x = np.clip(x, a[todo] + half, b[todo] - half)
-        xs = np.concatenate([x - half, x + half])
-        fs, gs = fun(xs, np.concatenate([todo, todo]))
+        pair = np.nonzero(~single)[0]
+        xs = np.concatenate([x - half, x[pair] + half[pair]])
+        fs, gs = fun(xs, np.concatenate([todo, todo[pair]]))
         n_eval += xs.size
         m = todo.size
-        pts = np.stack([a[todo], xs[:m], xs[m:], b[todo]], axis=1)  # (m, 4), sorted orders
-        fv = np.stack([fa[todo], fs[:m], fs[m:], fb[todo]], axis=1)
-        gv = np.stack([ga[todo], gs[:m], gs[m:], gb[todo]], axis=1)
+        # the sorted orders a <= x- <= x+ <= b (x- = x+ = x on a single-point pass)
+        f2, g2 = fs[:m].copy(), gs[:m].copy()
+        f2[pair], g2[pair] = fs[m:], gs[m:]
+        x2 = x.copy()
+        x2[pair] = x[pair] + half[pair]
+        pts = np.stack([a[todo], x - half, x2, b[todo]], axis=1)
+        fv = np.stack([fa[todo], fs[:m], f2, fb[todo]], axis=1)
+        gv = np.stack([ga[todo], gs[:m], g2, gb[todo]], axis=1)
         turn = (gv[:, :-1] > 0) & (gv[:, 1:] <= 0)  # one exists: g > 0 at pts[0], <= 0 at pts[3]
         k = np.argmax(turn, axis=1)
         r = np.arange(m)
         a[todo], b[todo] = pts[r, k], pts[r, k + 1]
         fa[todo], fb[todo] = fv[r, k], fv[r, k + 1]
         ga[todo], gb[todo] = gv[r, k], gv[r, k + 1]
-        bisect[todo] = (b[todo] - a[todo]) > 0.5 * w0
+        w_before2[todo], w_before[todo] = w_before[todo], w0
     pick_b = fb > fa
     return np.where(pick_b, b, a), np.where(pick_b, fb, fa), n_eval
 

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from resonance.model.admittance import YPattern
-from resonance.harmonics.engine import SparseEngine, sparse_columns
+from resonance.harmonics.engine import SparseEngine, pool_session, sparse_columns
 from resonance.harmonics.grid import (AdaptiveScan, adaptive_scan, hermite_refine, hermite_sample, peak_brackets,
                                       zoom_refine)
 from resonance.memo import remember, scope
@@ -499,7 +499,9 @@ def step_peaks(arr: NetworkArrays, bus: int, step_admittance, h: np.ndarray,
     two solves per bracket and pass.  Brackets found without a sign change (a sampled
     maximum) always take the sequential search.
     """
-    with scope():  # the running check's memo, or one for this search: the sparse engine is built once
+    # the running check's memo (or one for this search): the sparse engine is built once; one
+    # process pool serves every batch of the search
+    with scope(), pool_session():
         return _step_peaks(arr, bus, step_admittance, h, settings, extra, pattern, tol, min_step, xtol, workers,
                            base, start_factor)
 
