@@ -282,7 +282,8 @@ def main() -> int:
     i_pu = (10.0 / arr.base_mva) / hi
     v_h = np.abs(zs[idx, :, 0, 0]) * i_pu[:, None]  # (orders, steps) [pu]
     thd = np.sqrt((v_h**2).sum(axis=0)) * 100.0
-    print(f"uniform fast path: {t_fast:.2f} s wall, {cpu_fast:.2f} s CPU (this process {cpu_main:.2f} s + pool workers), "
+    print(f"uniform fast path: {t_fast:.2f} s wall, {cpu_fast:.2f} s CPU "
+          f"(this process {cpu_main:.2f} s + pool workers), "
           f"engine build {t_build:.3f} s, "
           f"{t_fast / h.size * 1e3:.2f} ms per order for all {N_STEPS} steps, nnz(Y) = {eng.nnz}")
     print("  first peak per step (h): " + " ".join(f"{h[p[0]]:.2f}" if p.size else "-" for p in peaks))
@@ -352,7 +353,8 @@ def main() -> int:
           f"12-step report {plant['report_12']:.2f} s")
     print(f"naive {t_naive_full:.0f} s (scaled) | uniform fast path {t_fast:.2f} s ({t_naive_full / t_fast:.1f}x) | "
           f"adaptive {t_new:.2f} s ({t_naive_full / t_new:.1f}x)")
-    print(f"load average at the end: {', '.join(f'{x:.2f}' for x in os.getloadavg())} (other work on the machine slows every path)")
+    print(f"load average at the end: {', '.join(f'{x:.2f}' for x in os.getloadavg())} "
+          "(other work on the machine slows every path)")
     print(f"speedup: {t_naive_full / t_new:.1f}x")
     return 0
 

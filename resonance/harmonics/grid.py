@@ -491,11 +491,12 @@ def hermite_refine(fun, lo, hi, f_lo, f_hi, g_lo, g_hi, xtol: float = 1e-5,
     -----
     Each pass takes the maximum ``x*`` of the cubic Hermite interpolant of ``f`` on the
     bracket; in its first pass a bracket wider than 1000 ``xtol`` is cut at ``x*`` alone (one
-    solve, a new end near the maximum), in every other pass at the pair ``x* -+ xtol/2``.  The signs of ``g`` at the
-    new points and at the ends keep the first sub-interval where ``g`` turns from positive to
-    non-positive.  When the interpolant is accurate to ``xtol/2`` a pair closes the bracket to
-    ``xtol``; otherwise it shrinks to one side with a new end near the maximum.  A bracket that
-    two passes did not halve is bisected (the safeguard of Brent's method).  Every final bracket holds a sign change of ``g`` across at most ``xtol``, so a
+    solve, a new end near the maximum), in every other pass at the pair ``x* -+ xtol/2``.
+    The signs of ``g`` at the new points and at the ends keep the first sub-interval where
+    ``g`` turns from positive to non-positive.  When the interpolant is accurate to ``xtol/2``
+    a pair closes the bracket to ``xtol``; otherwise it shrinks to one side with a new end near
+    the maximum.  A bracket that two passes did not halve is bisected (the safeguard of Brent's
+    method).  Every final bracket holds a sign change of ``g`` across at most ``xtol``, so a
     maximum lies within ``xtol`` of the returned order.
 
     References
