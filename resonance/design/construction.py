@@ -186,6 +186,8 @@ def _count(value, name: str, least: int) -> int:
 
 
 def _positive(value, name: str) -> float:
+    if isinstance(value, bool):
+        raise ValueError(f"{name} must be a number, got {value!r}")
     try:
         x = float(value)
     except (TypeError, ValueError):

@@ -22,7 +22,7 @@ import dataclasses
 import math
 from typing import Sequence
 
-from resonance.design.construction import (MAX_GROUP_KVAR_SOURCE, MIN_PARALLEL_UNITS_SOURCE, UNIT_KV_50HZ,
+from resonance.design.construction import (MAX_GROUP_KVAR_SOURCE, _positive, MIN_PARALLEL_UNITS_SOURCE, UNIT_KV_50HZ,
                                            UNIT_KV_60HZ, UNIT_KVAR, Construction, propose_construction,
                                            unit_failure_unbalance)
 
@@ -42,22 +42,10 @@ _METHOD_SOURCE = ("IEEE Std 18-2002 unit ratings and Q = Q_R (U/U_R)^2; IEEE Std
 _MAX_PASSES = 8  # re-scalings of the kvar to the chosen rating; the leg voltage only rises, so few are needed
 
 
-def _number(value, name: str) -> float:
-    if isinstance(value, bool):
-        raise ValueError(f"{name} must be a number, got {value!r}")
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a number, got {value!r}") from None
-    if not math.isfinite(x) or x <= 0.0:
-        raise ValueError(f"{name} must be a positive finite number, got {value!r}")
-    return x
-
-
 def _checked(u_bus_kv, u_need_kv, f_hz) -> tuple[float, float, float]:
-    u_bus = _number(u_bus_kv, "u_bus_kv")
-    u_need = _number(u_need_kv, "u_need_kv")
-    f = _number(f_hz, "f_hz")
+    u_bus = _positive(u_bus_kv, "u_bus_kv")
+    u_need = _positive(u_need_kv, "u_need_kv")
+    f = _positive(f_hz, "f_hz")
     if u_bus <= LV_LIMIT_KV:
         raise ValueError(f"u_bus_kv = {u_bus:g} kV is not above {LV_LIMIT_KV:g} kV: a low-voltage bank is bought "
                          "by its units' voltage rating, not built from series groups")
@@ -207,7 +195,7 @@ def purchasable_rating(u_bus_kv: float, kvar_nameplate: float, u_need_kv: float,
     construction and unbalance"; unit lists of :mod:`resonance.design.construction` [memory].
     """
     u_bus, u_need, f = _checked(u_bus_kv, u_need_kv, f_hz)
-    q_need = _number(kvar_nameplate, "kvar_nameplate")
+    q_need = _positive(kvar_nameplate, "kvar_nameplate")
     conns = [connections] if isinstance(connections, str) else list(connections)
     if not conns:
         raise ValueError("connections must name at least one connection")
@@ -269,13 +257,13 @@ def stage_ratings(u_bus_kv: float, stages_kvar: Sequence[float], u_need_kv: floa
     if isinstance(stages_kvar, (str, bytes)):
         raise ValueError(f"stages_kvar must be a list of numbers, got {stages_kvar!r}")
     try:
-        stages = [_number(q, f"stages_kvar[{k}]") for k, q in enumerate(stages_kvar)]
+        stages = [_positive(q, f"stages_kvar[{k}]") for k, q in enumerate(stages_kvar)]
     except TypeError:
         raise ValueError(f"stages_kvar must be a list of numbers, got {stages_kvar!r}") from None
     if not stages:
         raise ValueError("stages_kvar must hold at least one stage")
     u_bus, u_need, f = _checked(u_bus_kv, u_need_kv, f_hz)
-    floor = u_need if min_rated_kv is None else max(u_need, _number(min_rated_kv, "min_rated_kv"))
+    floor = u_need if min_rated_kv is None else max(u_need, _positive(min_rated_kv, "min_rated_kv"))
     lead = purchasable_rating(u_bus, max(stages) * (floor / u_need) ** 2, floor, f, connections=connections)
     lc = lead["construction"]
     u_lead = lead["rated_kv"] * (1.0 - 1e-12)  # the lead's string voltage, for every stage

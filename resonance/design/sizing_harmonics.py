@@ -215,18 +215,11 @@ def case_bank_on_bus(case, bus: str):
 
 
 def _source_spectra(case) -> list[tuple[str, dict, int]]:
-    """(name, {order: pct}, pulse) of every harmonic source, as the study resolves them."""
-    from resonance.standards.spectra import resolve_spectrum  # noqa: PLC0415
+    """(name, {order: pct}, pulse) of every harmonic source, as the study resolves them
+    (:func:`resonance.assessment.study._source_orders`); a bad spectrum raises InputError."""
+    from resonance.assessment.study import _source_orders  # noqa: PLC0415
 
-    out, probs = [], []
-    for i, hs in enumerate(case.harmonic_source):
-        try:
-            sp = resolve_spectrum(hs.spectrum, file=case.source_file, field=f"harmonic_source[{i}].spectrum",
-                                  phase_deg=hs.phase_deg or None)
-        except InputError as e:
-            probs += e.problems
-            continue
-        out.append((hs.name, {int(h): float(p) for h, p in zip(sp.h, sp.pct)}, int(sp.pulse_number or 6)))
+    out, probs = _source_orders(case)
     if probs:
         raise InputError(probs)
     return out
