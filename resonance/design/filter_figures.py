@@ -85,21 +85,21 @@ def branch_figures(res, variant, names, orders, u_kv: float, f_hz: float) -> lis
             if src is not None and src.steps:
                 absorbed = {int(x["h"]): round(x["i_bank_a"], 3) for x in src.steps[-1].fields["harmonics"]
                             if x["i_bank_a"] >= 0.005}
-        band = tuning_band(ds.n, st.cap_tolerance_pct, st.reactor_tolerance_pct)
+        band = tuning_band(fb.n, st.cap_tolerance_pct, st.reactor_tolerance_pct)
         par = {}
         for sc in res.scans:
             if sc.bank.name == name and sc.steps:
-                par[sc.scenario] = [round(pk[0], 3) for pk in sc.steps[-1].peaks if pk[0] < ds.n] or None
+                par[sc.scenario] = [round(pk[0], 3) for pk in sc.steps[-1].peaks if pk[0] < fb.n] or None
         out.append({
-            "name": name, "target_order": int(h), "tuning_order": round(ds.n, 4), "f_tuning_hz": round(ds.f_tuning_hz, 2),
+            "name": name, "target_order": int(h), "tuning_order": round(fb.n, 4), "f_tuning_hz": round(fb.f_tuning_hz, 2),
             "detuning_pct": round(100.0 * p, 4), "kvar": round(float(ds.q_net_kvar[0]), 2),
             "kvar_nameplate": round(float(b.steps_kvar[0]), 2), "capacitor_rated_kv": b.rated_kv,
-            "capacitor_v1_kv": round(ds.u_c1_kv, 5), "reactor_mh": round(float(ds.l_mh[0]), 5),
+            "capacitor_v1_kv": round(fb.u_c1_kv, 5), "reactor_mh": round(fb.l_mh, 5),
             "capacitor_uf": round(fb.c_uf, 3), "reactor_r_ohm": round(r_ohm, 6), "reactor_q": b.reactor_q,
             "quality_factor": round(fb.q_factor, 2), "bandwidth_orders": round(fb.bandwidth_orders, 4),
             "tuning_band": [round(band[0], 4), round(band[1], 4)],
             "reactor_i_rms_a": round(i_rms, 3), "reactor_i_peak_a": round(i_pk, 3),
-            "i_fundamental_a": round(float(ds.q_net_kvar[0]) / (math.sqrt(3.0) * u_kv), 3),
+            "i_fundamental_a": round(fb.i1_a, 3),
             "absorbed_a": {str(k): v for k, v in sorted(absorbed.items())},
             "duty_pct": {k: round(v, 3) for k, v in duty.items()},
             "losses_kw": round(loss_kw, 4),
