@@ -120,9 +120,20 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
             bits.append(f"capacitors rated {_num(rec['rated_kv']):g} kV")
         if rec.get("steps_kvar"):
             bits.append(f"steps {_fmt_any(rec['steps_kvar'])} kvar")
-        out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
+        flt = bank.get("filter")
+        if flt and flt.get("chosen", True):
+            out.append("Detuned bank (an alternative that protects the bank only): " + ", ".join(bits) + ".")
+        else:
+            out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
     elif not bank.get("detuning_pct"):
         out.append(f"Detuning proposal: {NOT_EVALUATED}.")
+    flt = bank.get("filter")
+    if flt:
+        lead = "Recommended design: a tuned filter in the bank's place" if flt.get("chosen", True) else \
+            "Tuned filter offered beside the detuned bank"
+        out.append(lead + ": " + "; ".join(
+            f"{x['name']} tuned at {_num(x['tuning_order']):.2f}, {_num(x['kvar']):.0f} kvar, capacitors "
+            f"{_num(x['capacitor_rated_kv']):g} kV" for x in flt.get("branches", [])) + " (section 7).")
     mine = [f for f in data.get("findings", []) if f.get("bank") == bank["name"]]
     finds = [f for f in mine if f.get("cause", "bank") == "bank"]
     site = [f for f in mine if f.get("cause") == "site"]
