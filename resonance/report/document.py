@@ -48,7 +48,7 @@ from resonance.report import figures as rf  # noqa: E402
 from resonance.report import proposed as rp  # noqa: E402
 from resonance.report.filter_report import construction_table, filter_tables  # noqa: E402
 from resonance.report.layout import GREY, M_BOTTOM, M_LEFT, M_RIGHT, _Doc  # noqa: E402
-from resonance.report.specs import _fig_specs, _FigSpec, _step_pages, file_jobs  # noqa: E402
+from resonance.report.specs import _fig_specs, _FigSpec, _step_pages, file_jobs, render_aside  # noqa: E402
 from resonance.report.tables import (Column, Table, _fmt_any, _limits, _safe, limit_set_words,  # noqa: E402
                                      report_tables)
 from resonance.report.text import NOT_EVALUATED, _methods, _verdict  # noqa: E402
@@ -99,21 +99,25 @@ def write_report(result, out, *, date: str | None = None) -> list[str]:
     Notes
     -----
     The PDF carries no creation date and SVGs use a fixed id salt, so the same input gives
-    the same content apart from the date.  The PDF is written first, then every stand-alone
-    figure file, each drawn once on its own figure (the whole-bank figures as PNG and SVG, the
-    per-step scans as PNG).
+    the same content apart from the date.  Every stand-alone figure file is drawn once on its
+    own figure (the whole-bank figures as PNG and SVG, the per-step scans as PNG), in a second
+    process while the PDF is written where that is safe (:func:`render_aside`).
     """
     with matplotlib.rc_context(rf.RC):
         book = _Book(result, date or _dt.date.today().isoformat())
-        doc = book.layout()
         pdf_path = out.file("report.pdf")
         jobs = file_jobs(result.study, book.specs, book.stamp)
         paths = [tuple(out.file(n) for n in job.names) for job in jobs]
-        book.save(doc, pdf_path)
-        for job, p in zip(jobs, paths):
-            job.render(p)
-        for t in book.tables:
-            out.write_text(t.name, t.csv())
+        done = render_aside(jobs, paths)  # the stand-alone files beside the pages, on the other core
+        try:
+            doc = book.layout()
+            book.save(doc, pdf_path)
+            for t in book.tables:
+                out.write_text(t.name, t.csv())
+        except BaseException:
+            done(redraw=False)  # reap the child; the error is the caller's to report
+            raise
+        done()
     return ["report.pdf"] + [n for job in jobs for n in job.names] + [t.name for t in book.tables]
 
 
@@ -218,9 +222,7 @@ class _Book:
         doc = _Doc(data["case"]["title"], self.paper, self.ident)
         self.doc = doc
 
-        def place(spec: _FigSpec) -> None:
-            fig, rect = doc.region(spec.page_h)
-            spec.draw(fig, rect)
+        place = self.place
 
         self.toc_y = self._cover(doc)
         self.cover = doc.fig
@@ -243,15 +245,17 @@ class _Book:
                  f"+-{res.case.study.margin_pct:g} % screening band around each order of concern, which are the "
                  "ticks of the h axis (red, solid line: injected or background order; grey, dashed: characteristic "
                  "order only). Markers: resonance of each step (X: inside a band). Dotted: bank off. Steps differ "
-                 "by colour and line style. One plot per step: Appendix A.")
+                 "by colour and line style. One plot per step, and all steps in the other scenarios of the operating "
+                 "envelope: Appendix A.")
         for spec in specs["overlay"]:
-            if spec.page:
+            if spec.page and not spec.name.endswith("_scenarios"):
                 place(spec)
 
         doc.heading("4 Harmonic distortion", keep=_first_h(specs["spectra"]))
         if specs["spectra"]:
             doc.para("Bars: harmonic value of the step with the highest distortion (red: beyond its limit); grey "
-                     "ticks: highest value over all steps; amber dashes or ticks: the IEEE 519 limit. Nominal supply; "
+                     "ticks: highest value over all steps; amber dashes or ticks: the IEEE 519 limit (at the bank bus "
+                     "for reference only: IEEE 519 applies at the PCC). Nominal supply; "
                      "the other scenarios are in the tables of the summary, every order of every step in Appendix C.")
             for spec in specs["spectra"]:
                 place(spec)
@@ -287,6 +291,17 @@ class _Book:
         self._contents(doc)
         return doc
 
+    def place(self, spec: _FigSpec) -> None:
+        """Draw ``spec`` in the next region of the page; a figure that nearly fits the rest of the
+        page is drawn a little shorter there rather than leaving the rest blank (never below its
+        own ``min_h``)."""
+        doc = self.doc
+        h = spec.page_h
+        if doc.fig is not None and 0.0 < spec.min_h <= doc.room() < h:
+            h = doc.room()
+        fig, rect = doc.region(h)
+        spec.draw(fig, rect)
+
     def _appendices(self, doc: _Doc) -> None:
         """A: a scan per step; B: every step in every scenario; C: every order of every step;
         D: the detuning candidates; E: methods and assumptions; F: references."""
@@ -298,6 +313,9 @@ class _Book:
             _step_pages(doc, res, sc, res.scans_for(sc.bank.name, "weak"),
                         "Appendix A  Frequency scan of each step" if first else "")
             first = False
+            for spec in self.specs["overlay"]:  # the other scenarios after the bank's step pages
+                if spec.page and spec.bank == sc.bank.name and spec.name.endswith("_scenarios"):
+                    self.place(spec)
         doc.heading("Appendix B  Every step in every scenario")
         doc.para("The step tables of the operating envelope's scenarios (the nominal supply is in the summary), "
                  "for the bank as specified and for the proposed design.", size=8.0)
@@ -317,19 +335,26 @@ class _Book:
             for t in spectra:
                 doc.table(t, size=6.8)
         cands = [t for t in self.tables if t.name.startswith("table_detuning_candidates_")]
+        offered = [tbl[f"table_filter_{_safe(b['name'])}.csv"] for b in data["banks"]
+                   if b.get("filter") and not b["filter"].get("chosen", True)
+                   and f"table_filter_{_safe(b['name'])}.csv" in tbl]
+        if cands or offered:
+            doc.heading("Appendix D  Detuning candidates" + (" and the tuned filter offered" if offered else ""),
+                        keep=1.5)
         if cands:
-            doc.heading("Appendix D  Detuning candidates", keep=1.5)
             doc.para("Every tuning order the search tried, with the reason each was or was not qualified (each "
                      "qualified one passed a re-check by the one assessment in every scenario).", size=8.0)
             for t in cands:
                 doc.table(t, size=6.8)
+        for t in offered:
+            doc.table(t, size=6.8)
         doc.heading("Appendix E  Methods and assumptions")
         meth, mem = _methods(res, data)
-        doc.bullets(meth, size=7.8)
+        doc.bullets(meth, size=7.2)
         doc.subheading("Taken from memory or common practice (verify against the documents)")
-        doc.bullets(mem, size=7.8)
+        doc.bullets(mem, size=7.2)
         doc.heading("Appendix F  References", keep=1.0)
-        doc.bullets(REFERENCES, size=7.8)
+        doc.bullets(REFERENCES, size=7.2)
 
     # ------------------------------------------------------------------------------------
     def _cover(self, doc: _Doc) -> float:
@@ -471,12 +496,12 @@ class _Book:
                 ct = tbl.get(f"table_construction_{_safe(name)}.csv")
                 if ct is not None:
                     doc.table(ct, size=7.0)
-                if b.get("filter"):  # offered beside the detuned design
-                    doc.para(f"Tuned filter offered: {b.get('filter_reason', '')} (recommended_filter_case.toml)",
-                             size=8.0)
-                    for key in (f"table_filter_{_safe(name)}.csv", f"table_filter_pcc_{_safe(name)}.csv"):
-                        if key in tbl:
-                            doc.table(tbl[key], size=7.0)
+                if b.get("filter"):  # offered beside the detuned design: its branches in Appendix D
+                    doc.para(f"Tuned filter offered: {b.get('filter_reason', '')} (recommended_filter_case.toml; "
+                             "its branches: Appendix D)", size=8.0)
+                    key = f"table_filter_pcc_{_safe(name)}.csv"
+                    if key in tbl:
+                        doc.table(tbl[key], size=7.0)
                 elif (b.get("filter_search") or {}).get("candidates"):
                     doc.para(f"Tuned filter: {b.get('filter_reason', '')}", size=8.0)
             elif det:
@@ -544,4 +569,5 @@ class _Book:
 
 
 def _first_h(specs: list) -> float:
-    return specs[0].page_h + 0.5 if specs else 0.0
+    """Room a section heading keeps for its first figure (which may be drawn shortened) [in]."""
+    return (specs[0].min_h or specs[0].page_h) + 0.3 if specs else 0.0

@@ -25,7 +25,8 @@ from resonance.assessment.envelope import scenario_words
 from resonance.assessment.study import BankScan, StudyResult
 from resonance.report.switching_report import SWITCH_FIG_SIZE, draw_switching
 
-__all__ = ["FileJob", "file_jobs", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE", "FOOTER_H"]
+__all__ = ["FileJob", "file_jobs", "render_aside", "SERIAL_ENV", "save_png_svg", "STEP_SIZE", "STEP_CHUNK", "PNG_SAVE",
+           "FOOTER_H"]
 
 #: height of the footer strip under every stand-alone figure (title, case, revision, date) [in]
 FOOTER_H = 0.24
@@ -40,6 +41,7 @@ class _FigSpec:
     bank: str = ""      # bank the figure belongs to
     page: bool = True   # drawn on a report page
     file: bool = True   # written as a stand-alone file
+    min_h: float = 0.0  # may be drawn down to this height [in] to fill the rest of a page (0: never)
 
 
 def _axes(fig: Figure, rect, pad=(0.72, 0.25, 0.5, 0.42)):
@@ -61,9 +63,17 @@ def _grid(fig: Figure, rect, nrow, ncol, pad=(0.62, 0.2, 0.45, 0.35)):
 
 LEGEND_PAD = (0.72, 1.75, 0.5, 0.42)
 STEP_SIZE = (7.4, 4.1)     # stand-alone per-step figure [in]
-STEP_PAGE_H = 3.2          # height of one per-step plot on a page [in] (three a page)
-STEPS_PER_PAGE = 3
+STEP_PAGE_H = 2.3          # height of one per-step plot on a page [in] (four a page)
+STEPS_PER_PAGE = 4
 OVERLAY_PAGE_H = 3.4       # height of a whole-bank scan on a page [in]
+PROPOSED_SCAN_H = 3.0      # height of the proposed design's scan on a page [in]
+SCAN_MIN_H = 2.8           # a whole-bank scan drawn shorter to fill a page, not below [in]
+DUTY_PAGE_H = 3.9          # height of the 2 x 2 duty grid on a page [in]
+SPECTRUM_PANEL_H = 2.2    # height of one row of spectrum panels (two a row) [in]
+SPECTRUM_MIN_H = 1.85     # ... drawn shorter to fill a page, not below [in]
+SWITCH_PAGE_H = 2.5        # height of the switching figure on a page [in]
+REACTOR_PAGE_H = 1.5       # height of the reactor chart on a page [in]
+BAND_PAGE_H = 2.5          # height of the tuning-band figure on a page [in]
 
 
 def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
@@ -95,8 +105,8 @@ def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
         else:
             limit, crit = ind, "highest THD"
             lab = f"IEEE 519-{ed} individual limit" + (f" {ind:g} %" if ind is not None else "")
-        ref = " (reference only; IEEE 519 applies at the PCC)" if where == "bus" else ""
-        out.append((hs, vals, env, limit, lab, f"{label}: step {steps[worst]['step']} ({crit}){ref}", ylab))
+        ref = "; reference only" if where == "bus" else ""
+        out.append((hs, vals, env, limit, lab, f"{label}\nstep {steps[worst]['step']} ({crit}{ref})", ylab))
     return out
 
 
@@ -117,7 +127,8 @@ def _duty_spec(name: str, bank: dict, lim: _Limits, title_bank: str) -> _FigSpec
     others = _duty_others(bank)
     return _FigSpec(name, (7.4, 4.6),
                     lambda fig, r, v=vals, n=nums, lm=lim, o=others: rf.draw_duty(
-                        _grid(fig, r, 2, 2), n, v, lm.duty, limit_set_words(lm.duty_name), o), 4.6, title_bank)
+                        _grid(fig, r, 2, 2), n, v, lm.duty, limit_set_words(lm.duty_name), o), DUTY_PAGE_H, title_bank,
+                    min_h=DUTY_PAGE_H - 0.6)
 
 
 def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | None, bank: dict,
@@ -138,7 +149,7 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
             lambda fig, r, rr=recheck.study, nm=names: draw_filter_scan(
                 _axes(fig, r, (0.72, 0.45, 0.5, 0.42)), rr, plain, nm,
                 f"Proposed tuned filter in place of bank {name}: the branches switched in, nominal supply"),
-            OVERLAY_PAGE_H + 0.4, name))
+            PROPOSED_SCAN_H, name, min_h=SCAN_MIN_H))
         return out  # each branch is one step: its duty in every scenario is in the branch table
     if det is not None:
         out.append(_FigSpec(
@@ -146,9 +157,10 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
             lambda fig, r, d=det, rr=recheck.study: rf.draw_scan_all(
                 _axes(fig, r, LEGEND_PAD), rr, d, f"Proposed design of bank {name}: n = {d.bank.p ** -0.5:.2f} "
                 f"(p = {100 * d.bank.p:.3g} %), all steps, nominal supply", plain=plain),
-            OVERLAY_PAGE_H + 0.4, name))
+            PROPOSED_SCAN_H, name, min_h=SCAN_MIN_H))
     if pb is not None and _has_duty(pb):
-        out.append(_duty_spec(f"fig_duty_{s}_proposed", pb, _limits(recheck.study, recheck.data, pb), name))
+        out.append(replace(_duty_spec(f"fig_duty_{s}_proposed", pb, _limits(recheck.study, recheck.data, pb), name),
+                           page_h=DUTY_PAGE_H - 0.4))
     rec, _c = _detuning(bank)
     rows = rp.reactor_rows(rec) if rec else ()
     if rows:
@@ -156,7 +168,7 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
                             lambda fig, r, rows=rows: rp.draw_reactor(
                                 _axes(fig, r, (0.72, 0.25, 0.5, 0.42)), rows,
                                 f"Proposed design of bank {name}: detuning reactor of each stage"),
-                            rp.REACTOR_FIG_SIZE[1], name))
+                            REACTOR_PAGE_H, name))
     return out
 
 
@@ -184,7 +196,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
             f"scan_{s}", (8.2, 4.0),
             lambda fig, r, sc=sc: rf.draw_scan_all(_axes(fig, r, LEGEND_PAD), res, sc,
                                                    f"Bank {sc.bank.name}: all steps, nominal supply"), OVERLAY_PAGE_H,
-            b.name))
+            b.name, min_h=SCAN_MIN_H))
         if weak is not None:
             specs["overlay"].append(_FigSpec(
                 f"scan_{s}_weak", (8.2, 4.0),
@@ -211,7 +223,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
         if panels:
             ncol = 1 if len(panels) == 1 else 2
             nrow = -(-len(panels) // ncol)
-            h_grid = 2.55 * nrow + 0.25
+            h_grid = 2.25 * nrow + 0.25
 
             def draw_grid(fig, r, panels=panels, ncol=ncol, nrow=nrow, nm=b.name):
                 x, y, w, h = r
@@ -225,7 +237,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
                          "(steps coloured and styled as above)", fontsize=9, weight="bold", color=INK, va="top")
 
             specs["overlay"].append(_FigSpec(f"scan_{s}_scenarios", (8.2, h_grid), draw_grid, h_grid, b.name,
-                                             file=False))
+                                             file=False, min_h=2.0 * nrow + 0.25))
         det = (detuned or {}).get(b.name)
         bank = banks.get(b.name)
         if bank is None:
@@ -233,12 +245,18 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
         lim = _limits(res, data, bank)
         steps = bank["steps"]
         panels = _spectrum_panels(bank, b, data, lim)
-        if panels:
-            def draw_sp(fig, r, panels=panels):
-                for ax, p in zip(_grid(fig, r, len(panels), 1, (0.72, 0.25, 0.5, 0.35)), panels):
+        if panels:  # two a row
+            ncol = 1 if len(panels) == 1 else 2
+            nrow = -(-len(panels) // ncol)
+
+            def draw_sp(fig, r, panels=panels, nrow=nrow, ncol=ncol):
+                axes = _grid(fig, r, nrow, ncol, (0.62, 0.15, 0.45, 0.45))
+                for ax, p in zip(axes, panels):
                     rf.draw_spectrum(ax, *p)
-            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, 2.25 * len(panels)), draw_sp,
-                                             2.25 * len(panels)))
+                for ax in axes[len(panels):]:
+                    ax.set_visible(False)
+            specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, SPECTRUM_PANEL_H * nrow), draw_sp,
+                                             SPECTRUM_PANEL_H * nrow, min_h=SPECTRUM_MIN_H * nrow))
         if _has_duty(bank):
             specs["duty"].append(_duty_spec(f"fig_duty_{s}", bank, lim, b.name))
         rc = (rechecks or {}).get(b.name)
@@ -251,7 +269,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
             specs["switching"].append(_FigSpec(
                 f"fig_switching_{s}", SWITCH_FIG_SIZE,
                 lambda fig, r, g=gov, t=ttl: draw_switching(*_grid(fig, r, 1, 2, (0.62, 0.2, 0.45, 0.35)), g, t),
-                SWITCH_FIG_SIZE[1], b.name))
+                SWITCH_PAGE_H, b.name, min_h=SWITCH_PAGE_H - 0.3))
         rec, _c = _detuning(bank)
         n_t = _num(_get(rec, "tuning_order")) if rec else None
         p_pct = _num(_get(rec, "detuning_pct")) if rec else None
@@ -269,7 +287,7 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
                 k=np.arange(1, hp_arr.size + 1), d=_get(rec, "lowest_significant_order"),
                 m=_num(_get(rec, "order_margin_pct")), nm=b.name:
                 rf.draw_detuning_band(_axes(fig, r, (0.72, 2.6, 0.5, 0.42)), n_t, p, bd, lb, hp, k, d, m,
-                                      f"Bank {nm}: recommended detuning"), 3.6, b.name))
+                                      f"Bank {nm}: recommended detuning"), BAND_PAGE_H, b.name, min_h=BAND_PAGE_H - 0.3))
     return specs
 
 
@@ -377,7 +395,7 @@ def file_jobs(res: StudyResult, specs: dict[str, list], stamp: str = "") -> list
 
 
 def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None, heading: str = "") -> None:
-    """Three per-step plots a page: one page figure, re-pointed for every group of steps."""
+    """Four per-step plots a page (:data:`STEPS_PER_PAGE`): one page figure, re-pointed for every group of steps."""
     pw, ph, tw = doc.pw, doc.ph, doc.tw
     fig = Figure(figsize=(pw, ph))
     y = M_TOP
@@ -406,3 +424,63 @@ def _step_pages(doc: _Doc, res: StudyResult, sc: BankScan, weak: BankScan | None
         return update
 
     doc.shared_pages(fig, [group(k) for k in range(1, n + 1, k_page)])
+
+
+#: environment variable that keeps the stand-alone figures in the calling process ("1")
+SERIAL_ENV = "RESONANCE_REPORT_SERIAL"
+
+
+def render_aside(jobs: list, paths: list):
+    """Start writing the stand-alone figure files (:class:`~resonance.report.specs.FileJob`) in a
+    forked child process while the caller lays out and writes the PDF; returns ``wait()``, which
+    joins the child (the files are complete when it returns).
+
+    Parameters
+    ----------
+    jobs : list of FileJob
+        The files to draw (each builds its own figure, so it may run in any process).
+    paths : list of tuple of Path
+        Target paths of each job, already staged in the output directory by the caller.
+
+    Returns
+    -------
+    callable
+        ``wait(redraw=True)``: blocks until the files are written.  Where the child failed, the
+        files are drawn again in the calling process (unless ``redraw`` is false), so its error
+        (if it is one of the code's) is raised there and reaches the command's defect handler.
+
+    Notes
+    -----
+    The child is made by ``os.fork`` only where that is safe: a POSIX system and a process with
+    a single thread (a forked copy of a threaded process may hold another thread's lock).  Else
+    (Windows, a batch worker's threads, :data:`SERIAL_ENV` = ``1``) the files are drawn first, in
+    the caller.  The child leaves with ``os._exit``, so it flushes no buffer and runs no exit
+    handler of the parent's.
+    """
+    import os  # noqa: PLC0415
+    import sys  # noqa: PLC0415
+    import threading  # noqa: PLC0415
+
+    def draw() -> None:
+        for job, p in zip(jobs, paths):
+            job.render(p)
+
+    if not jobs or not hasattr(os, "fork") or threading.active_count() > 1 or os.environ.get(SERIAL_ENV) == "1":
+        draw()
+        return lambda redraw=True: None
+    for stream in (sys.stdout, sys.stderr):
+        stream.flush()
+    pid = os.fork()
+    if pid == 0:  # the child: draw, then leave without touching the parent's state
+        code = 1
+        try:
+            draw()
+            code = 0
+        finally:
+            os._exit(code)
+
+    def wait(redraw: bool = True) -> None:
+        _pid, status = os.waitpid(pid, 0)
+        if os.waitstatus_to_exitcode(status) != 0 and redraw:
+            draw()
+    return wait

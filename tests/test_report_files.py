@@ -1,0 +1,77 @@
+"""The report's stand-alone figure files drawn in a second process: the same files as when drawn
+in the calling process, a failed child made good by the caller, no child where forking is unsafe."""
+
+from __future__ import annotations
+
+import os
+import threading
+
+import matplotlib
+
+matplotlib.use("Agg")
+import pytest  # noqa: E402
+
+from resonance.outputs import OutputDir  # noqa: E402
+from resonance.pipeline import run_check  # noqa: E402
+from resonance.report.document import write_report  # noqa: E402
+from resonance.report.specs import SERIAL_ENV, FileJob, render_aside  # noqa: E402
+
+from .conftest import CASES  # noqa: E402
+
+needs_fork = pytest.mark.skipif(not hasattr(os, "fork"), reason="os.fork is POSIX only")
+
+
+@needs_fork
+def test_files_from_the_second_process_equal_those_drawn_here(tmp_path, monkeypatch):
+    case = CASES / "cold_store_50hz.toml"
+    result = run_check(case)
+    written = {}
+    for mode in ("1", "0"):
+        monkeypatch.setenv(SERIAL_ENV, mode)
+        od = OutputDir(tmp_path / f"out{mode}", protect=[case])
+        names = write_report(result, od, date="2026-01-02")
+        od.commit()
+        written[mode] = {n: (tmp_path / f"out{mode}" / n).read_bytes() for n in names}
+    assert written["1"].keys() == written["0"].keys()
+    figures = [n for n in written["1"] if n.endswith((".png", ".svg"))]
+    assert len(figures) >= 10
+    for n in written["1"]:
+        assert written["1"][n] == written["0"][n], n
+
+
+@needs_fork
+def test_a_failed_child_is_made_good_by_the_caller(tmp_path, monkeypatch):
+    monkeypatch.delenv(SERIAL_ENV, raising=False)
+    parent = os.getpid()
+    target = tmp_path / "made_here.txt"
+
+    def render(paths):
+        if os.getpid() != parent:
+            raise RuntimeError("fails in the child only")
+        paths[0].write_text("drawn by the caller", encoding="utf-8")
+
+    wait = render_aside([FileJob(("made_here.txt",), render)], [(target,)])
+    assert not target.exists()  # the child ran it (and failed); nothing drawn here yet
+    wait()
+    assert target.read_text(encoding="utf-8") == "drawn by the caller"
+
+
+def test_no_child_while_other_threads_run(tmp_path, monkeypatch):
+    monkeypatch.delenv(SERIAL_ENV, raising=False)
+    pids = []
+    target = tmp_path / "f.txt"
+
+    def render(paths):
+        pids.append(os.getpid())
+        paths[0].write_text("x", encoding="utf-8")
+
+    stop = threading.Event()
+    t = threading.Thread(target=stop.wait)
+    t.start()
+    try:
+        wait = render_aside([FileJob(("f.txt",), render)], [(target,)])
+        assert pids == [os.getpid()] and target.exists()  # drawn at once, in this process
+        wait()
+    finally:
+        stop.set()
+        t.join()
