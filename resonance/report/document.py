@@ -38,6 +38,7 @@ the check's ``detuned_scans``:
 from __future__ import annotations
 
 import datetime as _dt
+from dataclasses import replace
 
 import matplotlib
 
@@ -338,9 +339,15 @@ class _Book:
         offered = [tbl[f"table_filter_{_safe(b['name'])}.csv"] for b in data["banks"]
                    if b.get("filter") and not b["filter"].get("chosen", True)
                    and f"table_filter_{_safe(b['name'])}.csv" in tbl]
-        if cands or offered:
-            doc.heading("Appendix D  Detuning candidates" + (" and the tuned filter offered" if offered else ""),
-                        keep=1.5)
+        # where the filter is the recommended design, the detuned alternative's data
+        alts = [tbl[f"table_detuning_recommended_{_safe(b['name'])}.csv"] for b in data["banks"]
+                if b.get("filter") and b["filter"].get("chosen", True) and b["name"] in self.rechecks
+                and f"table_detuning_recommended_{_safe(b['name'])}.csv" in tbl]
+        if cands or offered or alts:
+            doc.heading("Appendix D  Detuning candidates" + (" and the tuned filter offered" if offered else "")
+                        + (" and the detuned alternative" if alts else ""), keep=1.5)
+        for t in alts:
+            doc.table(replace(t, title=t.title.replace("recommended detuned bank", "detuned alternative")), size=6.8)
         if cands:
             doc.para("Every tuning order the search tried, with the reason each was or was not qualified (each "
                      "qualified one passed a re-check by the one assessment in every scenario).", size=8.0)
@@ -536,9 +543,7 @@ class _Book:
             doc.para(f"Alternative, protecting the bank only: a detuned bank with tuning order n = "
                      f"{rec['tuning_order']:.2f} (p = {rec['detuning_pct']:g} %), capacitors rated {rec['rated_kv']:g} kV "
                      "(recommended_detuned_case.toml); it passes the bank's own checks but leaves the site's PCC "
-                     "current beyond its limits.", size=8.0)
-            if t_rec is not None:
-                doc.table(t_rec, size=7.0)
+                     "current beyond its limits." + (" Its data: Appendix D." if t_rec is not None else ""), size=8.0)
             for spec in self.specs["compare"]:
                 if spec.bank == name:
                     place(spec)
