@@ -28,6 +28,10 @@ INK = STYLE["ink"]
 GREY = "#5b6672"
 FAIL_RED = STYLE["injected"]
 HEAD_FILL = "#e8ecf0"
+#: font size of a table's note [pt]
+NOTE_SIZE = 6.8
+#: a table up to this height (title, rows and note) is kept on one page [in]
+KEEP_TABLE_H = 3.0
 ZEBRA = "#f6f7f9"
 
 
@@ -302,7 +306,10 @@ class _Doc:
         lh = size / 72 * 1.3
         head_h = max(h.count("\n") + 1 for h in heads) * lh + 0.08
         row_h = [max(x.count("\n") + 1 for x in r) * lh + 0.06 for r in cells] if cells else []
-        self.ensure(0.3 + head_h + (row_h[0] if row_h else lh) + 0.1)
+        note_h = (len(self.meter.wrap(t.note, self.tw, NOTE_SIZE)) * NOTE_SIZE / 72 * 1.38 + 0.14) if t.note else 0.0
+        whole = 0.3 + head_h + sum(row_h) + 0.1 + note_h
+        # a short table is kept on one page with its note; a long one starts where a row fits
+        self.ensure(whole if whole <= KEEP_TABLE_H else 0.3 + head_h + (row_h[0] if row_h else lh) + 0.1)
         self.text(M_LEFT, self.y, t.title, fontsize=size + 1.5, weight="bold")
         self.y += (size + 1.5) / 72 * 1.6
         if not cells:
@@ -329,7 +336,7 @@ class _Doc:
         self.hline(M_LEFT, M_LEFT + sum(w), self.y, 0.8)
         self.y += 0.08
         if t.note:
-            self.para(t.note, size=6.8, color=GREY)
+            self.para(t.note, size=NOTE_SIZE, color=GREY)
 
     def _table_head(self, heads, w, head_h, size):
         x = M_LEFT

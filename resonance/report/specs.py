@@ -72,8 +72,8 @@ DUTY_PAGE_H = 3.9          # height of the 2 x 2 duty grid on a page [in]
 SPECTRUM_PANEL_H = 2.2    # height of one row of spectrum panels (two a row) [in]
 SPECTRUM_MIN_H = 1.85     # ... drawn shorter to fill a page, not below [in]
 SWITCH_PAGE_H = 2.5        # height of the switching figure on a page [in]
-REACTOR_PAGE_H = 1.5       # height of the reactor chart on a page [in]
-BAND_PAGE_H = 2.5          # height of the tuning-band figure on a page [in]
+REACTOR_PAGE_H = 1.3       # height of the reactor chart on a page [in]
+BAND_PAGE_H = 2.3          # height of the tuning-band figure on a page [in]
 
 
 def _spectrum_panels(bank: dict, b, data: dict, lim: _Limits) -> list[tuple]:
