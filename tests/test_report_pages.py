@@ -89,14 +89,14 @@ def test_paper_follows_the_system_frequency(checked):
 
 
 def test_page_count_bounds(checked):
-    # short for small banks (the body, cover to the proposed design, in at most nine pages for one
+    # short for small banks (the body, cover to the proposed design, in at most eight pages for one
     # bank), growing by appendix (a scan page per four steps), never by blank pages
     case, out, data = checked
     pages = _pages(out / "report.pdf")
     n_steps = sum(len(b["steps"]) for b in data["banks"])
     body = next(i for i, p in enumerate(pages[1:], start=2)
                 if "Appendix A Frequency scan of each step" in _squash(p)) - 1  # page 1: the contents
-    assert body <= 9 + 3 * (len(data["banks"]) - 1), body
+    assert body <= 8 + 3 * (len(data["banks"]) - 1), body
     assert len(pages) <= body + -(-n_steps // 4) + 6
     for i, page in enumerate(pages, start=1):  # no nearly empty page but the last of a section
         assert len(page.split()) > 40, f"page {i} is nearly empty"
