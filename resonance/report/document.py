@@ -360,7 +360,7 @@ class _Book:
         doc.bullets(meth, size=7.2)
         doc.subheading("Taken from memory or common practice (verify against the documents)")
         doc.bullets(mem, size=7.2)
-        doc.heading("Appendix F  References", keep=1.0)
+        doc.heading("Appendix F  References", keep=doc.bullets_height(REFERENCES, 7.2))  # the list on one page
         doc.bullets(REFERENCES, size=7.2)
 
     # ------------------------------------------------------------------------------------

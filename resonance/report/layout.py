@@ -252,6 +252,11 @@ class _Doc:
             i += n
         self.y += gap
 
+    def bullets_height(self, items, size: float = 8.5) -> float:
+        """Height [in] :meth:`bullets` takes for ``items`` on one page."""
+        lh = size / 72 * 1.38
+        return sum(len(self.meter.wrap(it, self.tw - 0.2, size)) * lh + 0.03 for it in items) + 0.05
+
     def bullets(self, items, size: float = 8.5) -> None:
         lh = size / 72 * 1.38
         for it in items:
