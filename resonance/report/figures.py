@@ -30,6 +30,7 @@ __all__ = [
     "step_view",
     "draw_scan_compare",
     "draw_spectrum",
+    "spectrum_key",
     "draw_duty",
     "draw_detuning_band",
     "ordinal",
@@ -380,7 +381,7 @@ def _LIMIT_EDGE():  # noqa: N802 - a constant made on demand (patheffects import
 
 
 def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str,
-                  ylabel: str = "V_h [% of nominal]") -> None:
+                  ylabel: str = "V_h [% of nominal]", legend: bool = True) -> None:
     """Harmonic voltage (or current) per order as bars against the individual limit.
 
     Parameters
@@ -402,6 +403,9 @@ def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str
         Axes title [unitless].
     ylabel : str, optional
         Axis label with its unit [unitless].
+    legend : bool, optional
+        Draw the axes' own legend (False where one key serves several panels, see
+        :func:`spectrum_key`).
     """
     _style_axes(ax)
     h = np.asarray(h, float)
@@ -430,8 +434,32 @@ def draw_spectrum(ax, h, v_pct, env_pct, limit_pct, limit_label: str, title: str
     ax.set_xlabel("harmonic order h [-]", color=STYLE["ink"])
     ax.set_ylabel(ylabel, color=STYLE["ink"])
     ax.set_title(title, color=STYLE["ink"], loc="left", fontsize=8.5)
-    ax.legend(loc="upper right", **LEGEND_BOX)
+    if legend:
+        ax.legend(loc="upper right", **LEGEND_BOX)
     plain_numbers(ax)
+
+
+def spectrum_key(ax, edition: str) -> None:
+    """One key for the spectrum panels of a figure, drawn in an otherwise empty axes.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        The empty slot of the panel grid (its frame and ticks are switched off).
+    edition : str
+        IEEE 519 edition named in the key [unitless].
+    """
+    from matplotlib.lines import Line2D  # noqa: PLC0415
+    from matplotlib.patches import Patch  # noqa: PLC0415
+
+    ax.set_axis_off()
+    handles = [Patch(color=STYLE["ink"], label="step shown (the step named in the panel's title)"),
+               Patch(color=STYLE["injected"], label="step shown, beyond its limit"),
+               Line2D([], [], ls="none", marker="_", ms=9, mew=1.4, color=STYLE["characteristic"],
+                      label="highest of all steps"),
+               Line2D([], [], color=STYLE["limit"], lw=1.4, ls=(0, (5, 2)), path_effects=_LIMIT_EDGE(),
+                      label=f"IEEE 519-{edition} limit: individual voltage\n(dashes) or current per order (ticks)")]
+    ax.legend(handles=handles, loc="center left", frameon=False, fontsize=7.5, handlelength=2.2)
 
 
 #: (per-step key, panel title) of the four duty quantities in IEEE Std 18 order
@@ -487,7 +515,7 @@ def draw_duty(axes, steps, values: dict, limits_pct: dict, limit_name: str, othe
         if lim is not None:
             ax.axhline(lim, color=STYLE["limit"], lw=1.4, ls=(0, (5, 2)), zorder=4, path_effects=_LIMIT_EDGE(),
                        label=f"limit ({limit_name})")
-        if i == 0 or lim is not None:
+        if i == 0:  # one key for the four panels (the same bars, markers and limit dashes in each)
             ax.legend(loc="upper left", borderaxespad=0.2, fontsize=5.8, ncols=2, handlelength=1.6,
                       columnspacing=0.8, **LEGEND_BOX)
         top = np.nanmax(np.concatenate(tops + [np.asarray([lim if lim is not None else 0.0])]))

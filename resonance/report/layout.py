@@ -31,7 +31,7 @@ HEAD_FILL = "#e8ecf0"
 #: font size of a table's note [pt]
 NOTE_SIZE = 6.8
 #: a table up to this height (title, rows and note) is kept on one page [in]
-KEEP_TABLE_H = 3.0
+KEEP_TABLE_H = 2.0
 ZEBRA = "#f6f7f9"
 
 

@@ -249,12 +249,16 @@ def _fig_specs(res: StudyResult, data: dict, detuned: dict | None = None, rechec
             ncol = 1 if len(panels) == 1 else 2
             nrow = -(-len(panels) // ncol)
 
-            def draw_sp(fig, r, panels=panels, nrow=nrow, ncol=ncol):
+            def draw_sp(fig, r, panels=panels, nrow=nrow, ncol=ncol, ed=data["settings"].get("ieee519_edition")):
                 axes = _grid(fig, r, nrow, ncol, (0.62, 0.15, 0.45, 0.45))
+                spare = axes[len(panels):]  # an empty slot holds one key for all panels
                 for ax, p in zip(axes, panels):
-                    rf.draw_spectrum(ax, *p)
-                for ax in axes[len(panels):]:
-                    ax.set_visible(False)
+                    rf.draw_spectrum(ax, *p, legend=not spare)
+                for k, ax in enumerate(spare):
+                    if k == 0:
+                        rf.spectrum_key(ax, ed)
+                    else:
+                        ax.set_visible(False)
             specs["spectra"].append(_FigSpec(f"fig_spectrum_{s}", (7.4, SPECTRUM_PANEL_H * nrow), draw_sp,
                                              SPECTRUM_PANEL_H * nrow, min_h=SPECTRUM_MIN_H * nrow))
         if _has_duty(bank):
