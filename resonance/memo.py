@@ -2,15 +2,18 @@
 
 Everything the check computes more than once on the same immutable input is kept here, in
 named stores, for the duration of that check and no longer: the sparse engine of a network
-(ordering and value map), its load-free copy, bank-off scans shared by the detuned re-checks,
-fundamental load-flow sessions and their solved voltages, the IEC 60909 cross-check and the
-re-check studies of design variants.  No module keeps a cache of its own.
+(ordering and value map), its load-free copy, bank-off scans shared by the detuned re-checks
+(on a large network a table of the bank-off solves at every order any variant asked for,
+:class:`resonance.assessment.curves.OrderTable`), fundamental load-flow sessions and their solved
+voltages, the IEC 60909 cross-check and the re-check studies of design variants.  No module keeps
+a cache of its own.
 
 :func:`resonance.pipeline.run_check` creates one :class:`Memo` and makes it the running
 check's (:meth:`Memo.active`); a study called on its own gets one for its duration
 (:func:`scope`).  Outside any check :func:`remember` just computes.  Keys are the inputs
 themselves (the network arrays and plant model by identity, their frozen settings by value):
-the stored values are never changed by their users.
+the stored values are never changed by their users (an order table only grows: a value once
+solved stays as it is).
 """
 
 from __future__ import annotations

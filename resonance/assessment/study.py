@@ -20,8 +20,8 @@ from resonance.assessment.envelope import scenario_arrays, scenario_words, scena
 from resonance.assessment.findings import Finding
 from resonance.assessment.site import limit_set_notes
 from resonance.model.network import NetworkArrays
-from resonance.harmonics.scan import (ModelSettings, harmonic_grid, impedance_columns, impedance_columns_dh,
-                                      step_peaks)
+from resonance.assessment.curves import prominent, study_curves
+from resonance.harmonics.scan import ModelSettings, harmonic_grid, impedance_columns
 from resonance.harmonics.screening import HarmonicOrders, h_estimate, nearest_order, orders_of_concern
 
 __all__ = ["StepScan", "BankScan", "StudyResult", "run_study", "BankModel", "bank_models", "iec60909_cross_check",
@@ -308,9 +308,6 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
                h: np.ndarray, settings: ModelSettings, orders: HarmonicOrders, margin_pct: float,
                vm_steps: np.ndarray, scenario: str, pattern: YPattern, h_step: float) -> BankScan:
     base = arr.base_mva
-    cols = np.unique(np.array([bank.index, pcc], int))
-    kc = int(np.nonzero(cols == bank.index)[0][0])
-    pc = int(np.nonzero(cols == pcc)[0][0])
 
     def extra(hh: np.ndarray) -> np.ndarray | None:
         if other_mode != "full" or not others:
@@ -320,28 +317,17 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
             d[:, ob.index] += ob.step_admittance(hh, base)[:, -1]
         return d
 
-    z0, dz0 = _bank_off_columns(arr, h, cols, settings, extra, pattern)
     step_y = _StepAdmittance(bank, base)
-    ys = step_y(h)  # (n_h, N)
-    # Sherman-Morrison (scan.step_update) for the two diagonal entries used:
-    # Z'_ij = Z_ij - Z_ik g Z_kj with g = y / (1 + y Z_kk)
-    g = ys / (1.0 + ys * z0[:, kc, kc][:, None])  # (n_h, N)
-    zs_kk = z0[:, kc, kc][:, None] - g * (z0[:, kc, kc] ** 2)[:, None]
-    zs_pp = z0[:, pc, pc][:, None] - g * (z0[:, pc, kc] * z0[:, kc, pc])[:, None]
-    zkk = np.concatenate([z0[:, None, kc, kc], zs_kk], axis=1).T  # (N+1, n_h)
-    zpp = np.concatenate([z0[:, None, pc, pc], zs_pp], axis=1).T
+    # the uniform path on small networks, the adaptive one from a shared coarse start on large ones
+    zkk, zpp, h_peak, z_peak, prom = study_curves(arr, bank.index, pcc, step_y, h, settings, extra, pattern)
     zb_k = bank.bus_kv**2 / base
     zb_p = float(arr.bus_kv[pcc]) ** 2 / base
     sc_mva, x_r = bus_short_circuit(arr, bank.index, settings)
     q_nom = bank.q_cap_nominal_kvar()
-    # adaptive grid (resonance.harmonics.grid): brackets every local maximum, even one narrower than the
-    # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
-    spk = step_peaks(arr, bank.index, step_y, h, settings,
-                     extra=extra, pattern=pattern, base=(z0[:, kc, kc], dz0[:, kc, kc]))
     hs_, zs_, st_ = [], [], []
     for s in range(bank.n_steps):
-        hp, zp = np.asarray(spk.h_peak[s + 1], float), np.asarray(spk.z_peak[s + 1], float)
-        keep = _prominent(spk.scan, s + 1, hp, zp)
+        hp, zp = np.asarray(h_peak[s + 1], float), np.asarray(z_peak[s + 1], float)
+        keep = prominent(prom, s + 1, hp, zp)
         hs_ += list(hp[keep])
         zs_ += list(zp[keep])
         st_ += [s] * int(np.sum(keep))
@@ -374,49 +360,6 @@ def _scan_bank(arr: NetworkArrays, bank: BankModel, others: list[BankModel], oth
             margin_pct=margin, resonance_ok=ok, damping_sensitive=sensitive))
     return BankScan(bank=bank, scenario=scenario, sc_mva=float(sc_mva), x_r=float(x_r), h=h,
                     z_ohm=np.abs(zkk) * zb_k, z_pcc_ohm=np.abs(zpp) * zb_p, steps=tuple(steps))
-
-
-def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, settings: ModelSettings, extra,
-                      pattern: YPattern) -> tuple[np.ndarray, np.ndarray]:
-    """Bank-off ``Z[:, cols, cols]`` and ``dZ/dh`` on the grid ``h`` [pu] (read-only arrays)."""
-    de = extra(h)
-    if de is None:
-        # without other banks in service the bank-off scan depends on the network only: shared
-        # by the re-checks of detuned variants in the check's memo (read-only arrays)
-        key = (arr, h.size, h.tobytes(), tuple(int(c) for c in cols), settings)
-        return remember("bank_off_scan", key, lambda: _bank_off_solve(arr, h, cols, settings, None, None, pattern,
-                                                                      read_only=True))
-    eps = 1e-6 * h  # central difference of the other banks' admittance, as scan._central_dh
-    de_dh = (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
-    return _bank_off_solve(arr, h, cols, settings, de, de_dh, pattern)
-
-
-def _bank_off_solve(arr, h, cols, settings, de, de_dh, pattern, read_only: bool = False):
-    try:
-        # with dZ/dh: the same solve seeds the adaptive peak search (scan.step_peaks)
-        z0, dz0 = impedance_columns_dh(arr, h, cols, settings, de, rows=cols, pattern=pattern,
-                                       diag_extra_dh=de_dh)
-    except np.linalg.LinAlgError as e:  # pragma: no cover - nudged inside; a truly singular model
-        raise ModelError(f"network admittance is singular ({e})") from None
-    if read_only:
-        z0.flags.writeable = False
-        dz0.flags.writeable = False
-    return z0, dz0
-
-
-def _prominent(scan, row: int, hp: np.ndarray, zp: np.ndarray, min_rel: float = 0.02) -> np.ndarray:
-    """Peaks standing at least ``min_rel`` above the higher of the minima that bound them."""
-    h = np.asarray(scan.h, float)
-    z = np.abs(np.asarray(scan.z[row] if hasattr(scan, "z") else scan.z_pu[row]))
-    keep = np.ones(hp.size, bool)
-    for i, (a, b) in enumerate(zip(hp, zp)):
-        left = z[h < a]
-        right = z[h > a]
-        # minima between this peak and the neighbouring higher ground (or the range ends)
-        lo_l = left[::-1][: np.argmax(left[::-1] > b) or left.size].min() if left.size else b
-        lo_r = right[: np.argmax(right > b) or right.size].min() if right.size else b
-        keep[i] = b >= (1.0 + min_rel) * max(lo_l, lo_r)
-    return keep
 
 
 def _source_orders(case: Case) -> tuple[list[tuple[str, dict, int]], list[InputProblem]]:

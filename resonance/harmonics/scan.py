@@ -36,6 +36,7 @@ __all__ = [
     "StepPeaks",
     "LARGE_START_FACTOR",
     "SAMPLE_RTOL",
+    "polish_peaks",
 ]
 
 #: networks up to this many buses use batched dense solves, larger ones sparse LU
@@ -531,6 +532,45 @@ def _step_peaks(arr, bus, step_admittance, h, settings, extra, pattern, tol, min
     sc = adaptive_scan(fun, h0, z=z_base, dz=dz_base, tol=tol, min_step=min_step, derivative=True,
                        sample_rtol=SAMPLE_RTOL if start_factor > 1 else None)
     n_eval = sc.n_evaluations - (h0.size if base is not None else 0)
+    hs, zs, n_p = polish_peaks(sc, fun, xtol, start_factor > 1)
+    return StepPeaks(h_peak=hs, z_peak=zs, scan=sc, n_evaluations=int(n_eval + n_p))
+
+
+def polish_peaks(sc: AdaptiveScan, fun, xtol: float = 1e-5, derivative_search: bool = True):
+    """Every local maximum of every curve of an adaptive scan, polished inside its bracket.
+
+    Parameters
+    ----------
+    sc : AdaptiveScan
+        Scan with derivatives (:func:`resonance.harmonics.grid.adaptive_scan`), curves [pu].
+    fun : callable
+        ``fun(h, derivative=True)``: the curves of ``sc`` at orders ``h`` (shape (p,)),
+        ``(Z, dZ/dh)`` each of shape (c, p), or ``Z`` alone with ``derivative=False``
+        [unitless -> pu, pu].
+    xtol : float
+        Final bracket width [unitless].
+    derivative_search : bool
+        Polish brackets with a sign change of ``d|Z|/dh`` by
+        :func:`resonance.harmonics.grid.hermite_refine` (two solves per pass; for a coarse
+        start), else by :func:`resonance.harmonics.grid.zoom_refine` (seven per pass) [unitless].
+
+    Returns
+    -------
+    (h_peak, z_peak, n_eval) : tuple
+        Per curve the sorted peak orders [unitless] and ``|Z|`` there [pu]; the orders solved
+        [unitless].
+
+    Notes
+    -----
+    Brackets from :func:`resonance.harmonics.grid.peak_brackets`; brackets found without a
+    sign change (a sampled maximum) always take the sequential search.
+
+    References
+    ----------
+    R. P. Brent, *Algorithms for Minimization without Derivatives*, Prentice-Hall 1973, ch. 4-5;
+    J. Kiefer, "Sequential minimax search for a maximum", Proc. AMS 4 (1953).
+    """
+    n_eval = 0
     curve, lo, hi = peak_brackets(sc)
     hp, zp = np.zeros(curve.size), np.zeros(curve.size)
     il = np.searchsorted(sc.h, lo)
@@ -539,7 +579,7 @@ def _step_peaks(arr, bus, step_admittance, h, settings, extra, pattern, tol, min
     with np.errstate(divide="ignore", invalid="ignore"):
         g = np.real(sc.dz / sc.z)
     turn = (ih == il + 1) & (g[curve, il] > 0) & (g[curve, np.minimum(ih, sc.h.size - 1)] <= 0)
-    use_h = turn & (start_factor > 1)
+    use_h = turn & bool(derivative_search)
     if use_h.any():
         jc = curve[use_h]
 
@@ -568,4 +608,4 @@ def _step_peaks(arr, bus, step_admittance, h, settings, extra, pattern, tol, min
     n_c = sc.z.shape[0]
     hs = tuple(np.sort(hp[curve == c]) for c in range(n_c))
     zs = tuple(zp[curve == c][np.argsort(hp[curve == c])] for c in range(n_c))
-    return StepPeaks(h_peak=hs, z_peak=zs, scan=sc, n_evaluations=int(n_eval))
+    return hs, zs, int(n_eval)
