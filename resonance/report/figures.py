@@ -453,13 +453,14 @@ def spectrum_key(ax, edition: str) -> None:
     from matplotlib.patches import Patch  # noqa: PLC0415
 
     ax.set_axis_off()
-    handles = [Patch(color=STYLE["ink"], label="step shown (the step named in the panel's title)"),
+    handles = [Patch(color=STYLE["ink"], label="step shown (named in the panel's title)"),
                Patch(color=STYLE["injected"], label="step shown, beyond its limit"),
                Line2D([], [], ls="none", marker="_", ms=9, mew=1.4, color=STYLE["characteristic"],
                       label="highest of all steps"),
                Line2D([], [], color=STYLE["limit"], lw=1.4, ls=(0, (5, 2)), path_effects=_LIMIT_EDGE(),
                       label=f"IEEE 519-{edition} limit: individual voltage\n(dashes) or current per order (ticks)")]
-    ax.legend(handles=handles, loc="center left", frameon=False, fontsize=7.5, handlelength=2.2)
+    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.0, 1.0), borderaxespad=0.0, frameon=False,
+              fontsize=7.0, handlelength=2.2)
 
 
 #: (per-step key, panel title) of the four duty quantities in IEEE Std 18 order
