@@ -87,3 +87,29 @@ def test_no_child_while_other_threads_run(tmp_path, monkeypatch):
     finally:
         stop.set()
         t.join()
+
+
+_STOPPED = """
+import os, sys, time
+from pathlib import Path
+from resonance.report.specs import FileJob, render_aside
+out = Path(sys.argv[1])
+def render(paths):
+    time.sleep(0.3)
+    paths[0].write_text("x", encoding="utf-8")
+jobs = [FileJob((f"f{k}.txt",), render) for k in range(40)]
+wait = render_aside(jobs, [(out / f"f{k}.txt",) for k in range(40)])
+t = time.perf_counter()
+wait(redraw=False)  # the caller's error path: the child is ended, not waited for
+print(f"{time.perf_counter() - t:.2f}")
+"""
+
+
+@needs_fork
+def test_the_error_path_ends_the_child(tmp_path):
+    env = {k: v for k, v in os.environ.items() if k != SERIAL_ENV}
+    run = subprocess.run([sys.executable, "-c", _STOPPED, str(tmp_path)], env=env, capture_output=True, text=True,
+                         timeout=120)
+    assert run.returncode == 0, run.stderr
+    assert float(run.stdout) < 2.0  # 40 files of 0.3 s each would take 12 s
+    assert len(list(tmp_path.glob("f*.txt"))) < 10

@@ -244,7 +244,7 @@ class _Doc:
         i = 0
         while i < len(lines):
             self.ensure(lh * min(2, len(lines) - i))
-            n = max(1, min(len(lines) - i, int(self.room() / lh)))
+            n = _lines_here(len(lines) - i, int(self.room() / lh))
             self.text(M_LEFT + indent, self.y, "\n".join(lines[i:i + n]), fontsize=size, color=color, weight=weight,
                       linespacing=1.38, box=(M_LEFT + indent - 0.01, M_LEFT + indent + w + 0.02, self.y - 0.05,
                                              self.y + n * lh + 0.08))
@@ -264,7 +264,7 @@ class _Doc:
             i = 0
             while i < len(lines):
                 self.ensure(lh * min(2, len(lines) - i))
-                n = max(1, min(len(lines) - i, int(self.room() / lh)))
+                n = _lines_here(len(lines) - i, int(self.room() / lh))
                 if i == 0:
                     self.text(M_LEFT + 0.05, self.y, "\u2022", fontsize=size)
                 self.text(M_LEFT + 0.2, self.y, "\n".join(lines[i:i + n]), fontsize=size, linespacing=1.38)
@@ -464,6 +464,15 @@ class _Doc:
                     if ax.get_visible() and not inside(ax.get_tightbbox(r), box):
                         out.append(f"page {page}: figure {ax.get_title(loc='left')[:50]!r} leaves its region")
         return out
+
+
+def _lines_here(left: int, fit: int) -> int:
+    """How many of the ``left`` lines of a paragraph go on this page, where ``fit`` fit: never one
+    line alone at the top of the next page (it goes with one more)."""
+    n = max(1, min(left, fit))
+    if left - n == 1 and n > 2:
+        n -= 1
+    return n
 
 
 def _fit_cell(meter: Meter, s: str, w_in: float, size: float, bold: bool) -> str:

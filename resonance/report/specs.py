@@ -459,14 +459,18 @@ def render_aside(jobs: list, paths: list):
     a single thread (a forked copy of a threaded process may hold another thread's lock).  Else
     (Windows, a batch worker's threads, :data:`SERIAL_ENV` = ``1``) the files are drawn first, in
     the caller.  The child leaves with ``os._exit``, so it flushes no buffer and runs no exit
-    handler of the parent's.
+    handler of the parent's; it stops before its next file when the caller is gone, and
+    ``wait(redraw=False)`` (the caller's error path) ends it at once, so no child outlives a
+    stopped run by more than one figure.
     """
     import os  # noqa: PLC0415
     import sys  # noqa: PLC0415
     import threading  # noqa: PLC0415
 
-    def draw() -> None:
+    def draw(parent: int | None = None) -> None:
         for job, p in zip(jobs, paths):
+            if parent is not None and os.getppid() != parent:  # the run was stopped: stop too
+                os._exit(1)
             job.render(p)
 
     if not jobs or not hasattr(os, "fork") or threading.active_count() > 1 or os.environ.get(SERIAL_ENV) == "1":
@@ -474,16 +478,24 @@ def render_aside(jobs: list, paths: list):
         return lambda redraw=True: None
     for stream in (sys.stdout, sys.stderr):
         stream.flush()
+    me = os.getpid()
     pid = os.fork()
     if pid == 0:  # the child: draw, then leave without touching the parent's state
         code = 1
         try:
-            draw()
+            draw(parent=me)
             code = 0
         finally:
             os._exit(code)
 
     def wait(redraw: bool = True) -> None:
+        if not redraw:  # the caller failed or was interrupted: the files are not wanted
+            import signal  # noqa: PLC0415
+
+            try:
+                os.kill(pid, signal.SIGTERM)
+            except ProcessLookupError:
+                pass
         _pid, status = os.waitpid(pid, 0)
         if os.waitstatus_to_exitcode(status) != 0 and redraw:
             draw()
