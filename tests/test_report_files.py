@@ -113,3 +113,20 @@ def test_the_error_path_ends_the_child(tmp_path):
     assert run.returncode == 0, run.stderr
     assert float(run.stdout) < 2.0  # 40 files of 0.3 s each would take 12 s
     assert len(list(tmp_path.glob("f*.txt"))) < 10
+
+
+def test_stacked_step_tables_keep_every_row_mark_and_limit():
+    from resonance.report.stack import stack_tables
+    from resonance.report.tables import Column, Table
+
+    def part(lim, rows, bad):
+        cols = (Column("step", "-"), Column(f"TDD\nPCC\nlim {lim}", "%"), Column("V peak\nlim 120", "%"))
+        return Table("t.csv", "t", cols, rows, "key", frozenset(bad))
+
+    a = part(12, ((1, 13.0, 101.0), (2, 11.0, 121.0)), {(0, 1), (1, 2)})
+    b = part(15, ((1, 16.0, 99.0),), {(0, 1)})
+    t = stack_tables([("weak supply", a), ("high voltage, light load", b)], "x.csv", "both")
+    assert [c.label for c in t.columns] == ["scenario", "step", "TDD\nPCC\nlim 12/15", "V peak\nlim 120"]
+    assert t.rows == (("weak supply", 1, 13.0, 101.0), ("", 2, 11.0, 121.0), ("high voltage, light load", 1, 16.0, 99.0))
+    assert t.bad == {(0, 2), (1, 3), (2, 2)}
+    assert "each scenario's limit in the order of the rows" in t.note

@@ -55,6 +55,8 @@ from resonance.report.tables import (Column, Table, _fmt_any, _limits, _safe, li
 from resonance.report.text import NOT_EVALUATED, _methods, _verdict  # noqa: E402
 from resonance.report.results_json import CAUTION  # noqa: E402
 from resonance.report.switching_report import switching_table, switching_words  # noqa: E402
+from resonance.report.stack import stack_tables  # noqa: E402
+from resonance.assessment.envelope import scenario_words  # noqa: E402
 from resonance.assessment.study import StudyResult  # noqa: E402
 
 __all__ = ["write_report", "layout_report", "Table", "Column", "report_tables", "NOT_EVALUATED", "SECTIONS"]
@@ -320,16 +322,22 @@ class _Book:
         doc.heading("Appendix B  Every step in every scenario")
         doc.para("The step tables of the operating envelope's scenarios (the nominal supply is in the summary), "
                  "for the bank as specified and for the proposed design.", size=8.0)
-        for b in data["banks"]:
+        for b in data["banks"]:  # one table per bank and per proposed bank or branch, a row group per scenario
             s_ = _safe(b["name"])
-            for scen in (b.get("scenarios") or {}):
-                t = tbl.get(f"table_summary_{s_}_{scen}.csv")
-                if t is not None:
-                    doc.table(t, size=7.0)
-            for scen in ((rp.proposed_bank(self.rechecks.get(b["name"]), b["name"]) or {}).get("scenarios") or {}):
-                t = tbl.get(f"table_proposed_{s_}_{scen}.csv")
-                if t is not None:
-                    doc.table(t, size=7.0)
+            plain = [(scenario_words(sc), tbl[f"table_summary_{s_}_{sc}.csv"]) for sc in (b.get("scenarios") or {})
+                     if f"table_summary_{s_}_{sc}.csv" in tbl]
+            if plain:
+                doc.table(stack_tables(plain, f"appendix_b_{s_}.csv", f"Bank {b['name']}: every step in the other "
+                                       "scenarios"), size=7.0)
+            prop = rp.proposed_bank(self.rechecks.get(b["name"]), b["name"]) or {}
+            flt = b.get("filter") if (b.get("filter") or {}).get("chosen", True) else None
+            for nm in ([x["name"] for x in flt["branches"]] if flt and prop else [b["name"]] if prop else []):
+                rows = [(scenario_words(sc), tbl[f"table_proposed_{_safe(nm)}_{sc}.csv"])
+                        for sc in (prop.get("scenarios") or {}) if f"table_proposed_{_safe(nm)}_{sc}.csv" in tbl]
+                if rows:
+                    doc.table(stack_tables(rows, f"appendix_b_proposed_{_safe(nm)}.csv", f"Proposed design: "
+                                           f"{'branch' if flt else 'bank'} {nm}, every step in the other scenarios"),
+                              size=7.0)
         spectra = [t for t in self.tables if t.name.startswith("table_spectrum_")]
         if spectra:
             doc.heading("Appendix C  Harmonic spectra of every step", keep=1.5)
