@@ -225,31 +225,15 @@ def plant_timings() -> dict:
     return out
 
 
-class _Steps:
-    """Plain bank steps of cumulative susceptance ``b_pu`` [pu] with the analytic ``dY/dh``."""
-
-    def __init__(self, b_pu: np.ndarray):
-        self.b_pu = b_pu
-
-    def __call__(self, h):
-        from resonance.model.admittance import bank_step_admittance
-
-        return bank_step_admittance(h, self.b_pu)
-
-    def dh(self, h):
-        from resonance.model.admittance import bank_step_admittance_dh
-
-        return bank_step_admittance_dh(h, self.b_pu)
-
-
 def adaptive_path(arr, k: int, b_pu: np.ndarray, h: np.ndarray):
     """The adaptive path: (wall seconds, StepPeaks, the curves sampled on ``h``); engine build included."""
     from resonance.harmonics.scan import step_peaks
     from resonance.memo import scope
+    from resonance.model.admittance import StepAdmittance
 
     t = time.perf_counter()
     with scope():  # one memo: the sparse engine is built once, as in a check
-        spk = step_peaks(arr, k, _Steps(b_pu), h)
+        spk = step_peaks(arr, k, StepAdmittance(b_pu), h)
         z = spk.sample(h)  # (N + 1, n_h): what the scan CSV and plots read
     return time.perf_counter() - t, spk, z
 

@@ -29,21 +29,8 @@ from resonance.harmonics.grid import grid_peaks
 from resonance.harmonics.scan import (DENSE_MAX_BUSES, ModelSettings, driving_point_steps, harmonic_grid,
                                       step_peaks)
 from resonance.memo import scope
-from resonance.model.admittance import bank_step_admittance, bank_step_admittance_dh
+from resonance.model.admittance import StepAdmittance
 from resonance.model.netmodel import net_to_arrays
-
-
-class _Steps:
-    """Plain bank steps of cumulative susceptance ``b_pu`` [pu], with the analytic ``dY/dh``."""
-
-    def __init__(self, b_pu: np.ndarray):
-        self.b_pu = b_pu
-
-    def __call__(self, h):
-        return bank_step_admittance(h, self.b_pu)
-
-    def dh(self, h):
-        return bank_step_admittance_dh(h, self.b_pu)
 
 
 def _pp_arrays(name: str):
@@ -141,29 +128,22 @@ def case1354():
     return _supply(arr, g, 10000.0)
 
 
-def test_every_fine_peak_found_case1354pegase_without_loads(case1354):
+@pytest.mark.parametrize("h_hi, settings, min_ref", [
     # lightly damped (no loads): many peaks per curve below h = 4.5, shoulders of relative
-    # prominence ~2e-4 included (tests/test_scan_engine.py); four 25 Mvar steps at 220 kV
+    # prominence ~2e-4 included (tests/test_scan_engine.py)
+    (4.5, ModelSettings("constant", "none"), 20),
+    # the same network damped by its loads (parallel R-L), over a wider range
+    (20.0, ModelSettings(), 5)], ids=["without_loads", "with_loads"])
+def test_every_fine_peak_found_case1354pegase(case1354, h_hi, settings, min_ref):
+    # four 25 Mvar steps at 220 kV
     arr = case1354
     k = int(np.nonzero(arr.bus_kv == 220.0)[0][0])
-    steps = _Steps(np.cumsum(np.full(4, 25.0)) / arr.base_mva)
-    missed, n_ref, found, rel, n_fine = _check_guarantee(arr, k, steps, 1.0, 4.5, ModelSettings("constant", "none"))
-    assert n_ref >= 20
+    steps = StepAdmittance(np.cumsum(np.full(4, 25.0)) / arr.base_mva)
+    missed, n_ref, found, rel, n_fine = _check_guarantee(arr, k, steps, 1.0, h_hi, settings)
+    assert n_ref >= min_ref
     assert missed == []
     assert rel <= 1e-3  # 0.1 %: far below what a plot or a 4-digit CSV shows
     assert found.n_evaluations < n_fine / 3  # the point of it: fewer solves than the fine scan
-
-
-def test_every_fine_peak_found_case1354pegase_with_loads(case1354):
-    # the same network damped by its loads (parallel R-L), over a wider range
-    arr = case1354
-    k = int(np.nonzero(arr.bus_kv == 220.0)[0][0])
-    steps = _Steps(np.cumsum(np.full(4, 25.0)) / arr.base_mva)
-    missed, n_ref, found, rel, n_fine = _check_guarantee(arr, k, steps, 1.0, 20.0, ModelSettings())
-    assert n_ref >= 5
-    assert missed == []
-    assert rel <= 1e-3
-    assert found.n_evaluations < n_fine / 3
 
 
 def test_every_fine_peak_found_case9241pegase_cut():
@@ -173,7 +153,7 @@ def test_every_fine_peak_found_case9241pegase_cut():
     cand = np.nonzero(arr.bus_kv == 110.0)[0]
     deg = np.bincount(np.concatenate([arr.br_from, arr.br_to]), minlength=arr.n_bus)
     sub, k = _cut(arr, int(cand[np.argmax(deg[cand])]), 1500)
-    steps = _Steps(np.cumsum(np.full(12, 5.0)) / sub.base_mva)
+    steps = StepAdmittance(np.cumsum(np.full(12, 5.0)) / sub.base_mva)
     missed, n_ref, found, rel, n_fine = _check_guarantee(sub, k, steps, 1.0, 16.0, ModelSettings())
     assert n_ref >= 20
     assert missed == []

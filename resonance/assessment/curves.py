@@ -20,10 +20,10 @@ from __future__ import annotations
 import numpy as np
 
 from resonance.errors import ModelError
-from resonance.harmonics.bank_curves import bank_pcc_curves, coarse_orders
+from resonance.harmonics.bank_curves import bank_pcc_curves, coarse_orders, pair_step_curves
 from resonance.harmonics.engine import pool_session
 from resonance.harmonics.grid import AdaptiveScan
-from resonance.harmonics.scan import DENSE_MAX_BUSES, ModelSettings, impedance_columns_dh, step_peaks
+from resonance.harmonics.scan import DENSE_MAX_BUSES, ModelSettings, central_dh, impedance_columns_dh, step_peaks
 from resonance.memo import remember
 from resonance.model.admittance import YPattern
 from resonance.model.network import NetworkArrays
@@ -75,14 +75,10 @@ def study_curves(arr: NetworkArrays, bank_bus: int, pcc: int, step_y, h: np.ndar
     if ADAPTIVE_CHECK and arr.n_bus > DENSE_MAX_BUSES and h.size > 2:
         return _adaptive(arr, cols, kc, pc, step_y, h, settings, extra, pattern)
     z0, dz0 = _bank_off_columns(arr, h, cols, settings, extra, pattern)
-    ys = step_y(h)  # (n_h, N)
-    # Sherman-Morrison (scan.step_update) for the two diagonal entries used:
-    # Z'_ij = Z_ij - Z_ik g Z_kj with g = y / (1 + y Z_kk)
-    g = ys / (1.0 + ys * z0[:, kc, kc][:, None])  # (n_h, N)
-    zs_kk = z0[:, kc, kc][:, None] - g * (z0[:, kc, kc] ** 2)[:, None]
-    zs_pp = z0[:, pc, pc][:, None] - g * (z0[:, pc, kc] * z0[:, kc, pc])[:, None]
-    zkk = np.concatenate([z0[:, None, kc, kc], zs_kk], axis=1).T  # (N+1, n_h)
-    zpp = np.concatenate([z0[:, None, pc, pc], zs_pp], axis=1).T
+    ys = np.asarray(step_y(h), complex)  # (n_h, N)
+    # Sherman-Morrison for the two diagonal entries used (the same arithmetic as the large path)
+    zc, _dzc = pair_step_curves(z0, dz0, kc, pc, ys, np.asarray(step_y.dh(h), complex))
+    zkk, zpp = zc[: ys.shape[1] + 1], zc[ys.shape[1] + 1:]  # (N+1, n_h) each
     # adaptive grid (resonance.harmonics.grid): brackets every local maximum, even one narrower than the
     # uniform grid; peaks with less than the grid finder's prominence are dropped the same way
     spk = step_peaks(arr, bank_bus, step_y, h, settings, extra=extra, pattern=pattern,
@@ -102,7 +98,7 @@ def _adaptive(arr, cols, kc, pc, step_y, h, settings, extra, pattern):
     else:
         def solve(hh):
             de = extra(hh)
-            return _bank_off_solve(arr, hh, cols, settings, de, _extra_dh(extra, hh), pattern)
+            return _bank_off_solve(arr, hh, cols, settings, de, central_dh(extra, hh), pattern)
     with pool_session():  # one process pool (when one pays) for every batch of this bank's search
         bc = bank_pcc_curves(solve, h, step_y, kc, pc, (h0, *solve(h0)))
     zkk, zpp = bc.sample(h)
@@ -154,12 +150,6 @@ class OrderTable:
         return self.z[i], self.dz[i]
 
 
-def _extra_dh(extra, h: np.ndarray) -> np.ndarray:
-    """Central difference of the other banks' admittance, step ``1e-6 h`` (as scan._central_dh) [pu]."""
-    eps = 1e-6 * h
-    return (extra(h + eps) - extra(h - eps)) / (2.0 * eps[:, None])
-
-
 def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, settings: ModelSettings, extra,
                       pattern: YPattern) -> tuple[np.ndarray, np.ndarray]:
     """Bank-off ``Z[:, cols, cols]`` and ``dZ/dh`` on the grid ``h`` [pu] (read-only arrays)."""
@@ -170,7 +160,7 @@ def _bank_off_columns(arr: NetworkArrays, h: np.ndarray, cols: np.ndarray, setti
         key = (arr, h.size, h.tobytes(), tuple(int(c) for c in cols), settings)
         return remember("bank_off_scan", key, lambda: _bank_off_solve(arr, h, cols, settings, None, None, pattern,
                                                                       read_only=True))
-    return _bank_off_solve(arr, h, cols, settings, de, _extra_dh(extra, h), pattern)
+    return _bank_off_solve(arr, h, cols, settings, de, central_dh(extra, h), pattern)
 
 
 def _bank_off_solve(arr, h, cols, settings, de, de_dh, pattern, read_only: bool = False):

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from resonance.model.admittance import YPattern, bank_step_admittance, bank_step_admittance_dh
+from resonance.model.admittance import StepAdmittance, YPattern, bank_step_admittance
 from resonance.inputs.case import Case
 from resonance.memo import remember, scope
 from resonance.inputs.case_checks import case_hints
@@ -80,25 +80,22 @@ class BankModel:
         return bank_step_admittance(h, self.step_b_pu(base_mva), self.p, self.reactor_q)
 
 
-class _StepAdmittance:
-    """``f(h) -> Y`` of a bank's steps [pu], with ``f.dh(h) -> dY/dh`` [pu] (for scan.step_peaks)."""
+class _StepAdmittance(StepAdmittance):
+    """:class:`~resonance.model.admittance.StepAdmittance` of a bank model, keeping the last large
+    grid's values (the study's base grid is asked for more than once)."""
 
     def __init__(self, bank: "BankModel", base_mva: float):
-        self._b = bank.step_b_pu(base_mva)
-        self._p, self._q = bank.p, bank.reactor_q
-        self._last = (None, None)  # (grid, Y): the study's base grid is asked for more than once
+        super().__init__(bank.step_b_pu(base_mva), bank.p, bank.reactor_q)
+        self._last = (None, None)  # (grid, Y)
 
     def __call__(self, h: np.ndarray) -> np.ndarray:
         if self._last[0] is h:
             return self._last[1]
-        y = bank_step_admittance(h, self._b, self._p, self._q)
+        y = super().__call__(h)
         if h.size > 64:
             y.flags.writeable = False
             self._last = (h, y)
         return y
-
-    def dh(self, h: np.ndarray) -> np.ndarray:
-        return bank_step_admittance_dh(h, self._b, self._p, self._q)
 
 
 def _in_with(bank: "BankModel", banks: list, other_mode: str, runs_with: dict) -> list:

@@ -55,9 +55,7 @@ class BankCurves:
 
     def bank_scan(self) -> AdaptiveScan:
         """The bank-bus curves alone on the adaptive grid [pu]."""
-        n, sc = self.n_curves, self.scan
-        return AdaptiveScan(h=sc.h, z=sc.z[:n], levels=sc.levels, n_evaluations=sc.n_evaluations,
-                            dz=sc.dz[:n])
+        return _first_rows(self.scan, self.n_curves)
 
     def sample(self, h: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Bank-bus and PCC curves at the orders ``h`` (inside the scanned range).
@@ -81,6 +79,11 @@ class BankCurves:
         sc = self.scan
         z = hermite_sample(sc.h, sc.z, sc.dz, np.atleast_1d(np.asarray(h, float)))
         return z[: self.n_curves], z[self.n_curves:]
+
+
+def _first_rows(sc: AdaptiveScan, n: int) -> AdaptiveScan:
+    """The first ``n`` curves of an adaptive scan (the bank bus's of a pair) [pu]."""
+    return AdaptiveScan(h=sc.h, z=sc.z[:n], levels=sc.levels, n_evaluations=sc.n_evaluations, dz=sc.dz[:n])
 
 
 def coarse_orders(h: np.ndarray, factor: int = LARGE_START_FACTOR) -> np.ndarray:
@@ -226,7 +229,5 @@ def bank_pcc_curves(solve, h: np.ndarray, step_admittance, kc: int, pc: int, sta
         r = fun(hh, derivative)
         return (r[0][:n_bank], r[1][:n_bank]) if derivative else r[:n_bank]
 
-    bank = AdaptiveScan(h=sc.h, z=sc.z[:n_bank], levels=sc.levels, n_evaluations=sc.n_evaluations,
-                        dz=sc.dz[:n_bank])
-    hs, zs, n_p = polish_peaks(bank, bank_fun, xtol, derivative_search=True)
+    hs, zs, n_p = polish_peaks(_first_rows(sc, n_bank), bank_fun, xtol, derivative_search=True)
     return BankCurves(h_peak=hs, z_peak=zs, scan=sc, n_evaluations=int(sc.n_evaluations - h0.size + n_p))

@@ -30,6 +30,7 @@ __all__ = [
     "find_peaks",
     "DENSE_MAX_BUSES",
     "impedance_columns_dh",
+    "central_dh",
     "sparse_engine",
     "driving_point_steps",
     "step_peaks",
@@ -326,8 +327,10 @@ def find_peaks(h: np.ndarray, z_abs: np.ndarray, min_rel_prominence: float = 0.0
     return out
 
 
-def _central_dh(fun, h: np.ndarray) -> np.ndarray:
-    """Central difference ``(f(h (1+e)) - f(h (1-e))) / (2 h e)``, ``e = 1e-6`` [unit per unitless]."""
+def central_dh(fun, h: np.ndarray) -> np.ndarray:
+    """Central difference ``(f(h (1+e)) - f(h (1-e))) / (2 h e)``, ``e = 1e-6``, of ``fun(h)`` (first
+    axis the orders) [unit of ``fun`` per unitless] (W. H. Press et al., *Numerical Recipes*, 3rd ed.,
+    sec. 5.7)."""
     eps = 1e-6 * h
     fp = np.asarray(fun(h + eps), complex)
     fm = np.asarray(fun(h - eps), complex)
@@ -384,7 +387,7 @@ def driving_point_steps(arr: NetworkArrays, h: np.ndarray, bus: int, step_admitt
         z0 = impedance_columns(arr, h, k, settings, de, rows=k, pattern=pattern, workers=workers)[:, 0, 0]
         zs = z0[:, None] / (1.0 + ys * z0[:, None])
         return np.concatenate([z0[None, :], zs.T], axis=0)
-    de_dh = None if de is None else _central_dh(extra, h)
+    de_dh = None if de is None else central_dh(extra, h)
     z0, dz0 = impedance_columns_dh(arr, h, k, settings, de, rows=k, pattern=pattern,
                                    diag_extra_dh=de_dh, workers=workers)
     return _with_steps(h, z0[:, 0, 0], dz0[:, 0, 0], step_admittance, ys)
@@ -399,7 +402,7 @@ def _with_steps(h: np.ndarray, z0: np.ndarray, dz0: np.ndarray, step_admittance,
     if dfun is not None:
         dys = np.asarray(dfun(h), complex).reshape(ys.shape)
     else:
-        dys = _central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
+        dys = central_dh(lambda hh: np.asarray(step_admittance(hh), complex).reshape(hh.size, -1), h)
     den = 1.0 + ys * z0
     zs = z0 / den
     dzs = (dz0 - z0**2 * dys) / den**2

@@ -24,6 +24,8 @@ __all__ = [
     "diagonal_terms",
     "load_admittance",
     "bank_step_admittance",
+    "bank_step_admittance_dh",
+    "StepAdmittance",
     "YPattern",
     "dense_y",
 ]
@@ -312,6 +314,34 @@ def bank_step_admittance_dh(
     z = np.where(ok, r, 0.0) + 1j * (h * p * xs - xs / h)
     dz = 1j * (p * xs + xs / h**2)
     return np.where(ok, -dz / z**2, 0.0)
+
+
+class StepAdmittance:
+    """The admittance of a bank's steps as a function of the order, ``f(h) -> Y`` [pu], with
+    ``f.dh(h) -> dY/dh`` [pu]: the form :func:`resonance.harmonics.scan.step_peaks` takes.
+
+    Parameters
+    ----------
+    b_pu : ndarray, shape (s,)
+        Capacitor susceptance of each (cumulative) step at the fundamental [pu].
+    p : float, optional
+        Detuning factor ``X_L / X_C`` [unitless]; 0 for a plain bank.
+    reactor_q : float, optional
+        Quality factor ``X_L / R_L`` of the reactor at the fundamental [unitless].
+
+    References
+    ----------
+    As :func:`bank_step_admittance` and :func:`bank_step_admittance_dh`.
+    """
+
+    def __init__(self, b_pu: np.ndarray, p: float = 0.0, reactor_q: float = np.inf):
+        self.b_pu, self.p, self.reactor_q = np.asarray(b_pu, float), float(p), float(reactor_q)
+
+    def __call__(self, h: np.ndarray) -> np.ndarray:
+        return bank_step_admittance(h, self.b_pu, self.p, self.reactor_q)
+
+    def dh(self, h: np.ndarray) -> np.ndarray:
+        return bank_step_admittance_dh(h, self.b_pu, self.p, self.reactor_q)
 
 
 @dataclass(frozen=True, eq=False)
