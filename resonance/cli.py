@@ -376,7 +376,7 @@ def _tell(args, data: dict, out, written, rec_text) -> None:
         if flt:
             from resonance.design.sizing_harmonics import ordinal  # noqa: PLC0415
 
-            lead = (f"the recommended design: {flt.get('chosen_why', '')}" if flt.get("chosen", True) else
+            lead = (f"the recommended design: {flt.get('chosen_why', '')}" if flt.get("chosen") else
                     "offered beside the detuned design, which already clears every PCC current finding")
             _say(f"bank {b['name']}: proposed tuned filter ({lead}): " + "; ".join(
                      f"{x['name']} tuned at {x['tuning_order']:.2f} for the {ordinal(x['target_order'])}, {x['kvar']:.0f} kvar "
@@ -422,7 +422,7 @@ def _recommended_case(case_path: Path, out, det: dict, switching: dict | None = 
         if f:
             first, *rest = f["bank_tables"]
             d = {**first, "extra_banks": rest, "drop_keys": tuple(f.get("drop_keys", ()))}
-            if f.get("chosen", True):
+            if f.get("chosen"):
                 designs[name] = d
             else:
                 offered[name] = d

@@ -50,8 +50,8 @@ from resonance.report import proposed as rp  # noqa: E402
 from resonance.report.filter_report import construction_table, filter_tables  # noqa: E402
 from resonance.report.layout import GREY, M_BOTTOM, M_LEFT, M_RIGHT, _Doc  # noqa: E402
 from resonance.report.specs import _fig_specs, _FigSpec, _step_pages, file_jobs, render_aside  # noqa: E402
-from resonance.report.tables import (Column, Table, _fmt_any, _limits, _safe, limit_set_words,  # noqa: E402
-                                     report_tables)
+from resonance.report.tables import (Column, Table, _fmt_any, _limits, _safe, chosen_filter,  # noqa: E402
+                                     limit_set_words, offered_filter, report_tables)
 from resonance.report.text import NOT_EVALUATED, _methods, _verdict  # noqa: E402
 from resonance.report.results_json import CAUTION  # noqa: E402
 from resonance.report.switching_report import switching_table, switching_words  # noqa: E402
@@ -195,8 +195,7 @@ class _Book:
         for name, rc in (self.rechecks.items() if tables else ()):
             tables += rp.proposed_tables(rc, name)
             bank = next((b for b in self.data["banks"] if b["name"] == name), None)
-            flt = (bank or {}).get("filter")
-            flt = flt if flt and flt.get("chosen", True) else None  # the chosen design is the filter
+            flt = chosen_filter(bank or {})  # the chosen design is the filter
             for br in (flt or {}).get("branches", [])[1:]:  # the further branches of a filter
                 tables += rp.proposed_tables(rc, br["name"])
             rec = ((bank or {}).get("detuning") or {}).get("recommended")
@@ -330,7 +329,7 @@ class _Book:
                 doc.table(stack_tables(plain, f"appendix_b_{s_}.csv", f"Bank {b['name']}: every step in the other "
                                        "scenarios"), size=7.0)
             prop = rp.proposed_bank(self.rechecks.get(b["name"]), b["name"]) or {}
-            flt = b.get("filter") if (b.get("filter") or {}).get("chosen", True) else None
+            flt = chosen_filter(b)
             for nm in ([x["name"] for x in flt["branches"]] if flt and prop else [b["name"]] if prop else []):
                 rows = [(scenario_words(sc), tbl[f"table_proposed_{_safe(nm)}_{sc}.csv"])
                         for sc in (prop.get("scenarios") or {}) if f"table_proposed_{_safe(nm)}_{sc}.csv" in tbl]
@@ -345,11 +344,10 @@ class _Book:
                 doc.table(t, size=6.8)
         cands = [t for t in self.tables if t.name.startswith("table_detuning_candidates_")]
         offered = [tbl[f"table_filter_{_safe(b['name'])}.csv"] for b in data["banks"]
-                   if b.get("filter") and not b["filter"].get("chosen", True)
-                   and f"table_filter_{_safe(b['name'])}.csv" in tbl]
+                   if offered_filter(b) and f"table_filter_{_safe(b['name'])}.csv" in tbl]
         # where the filter is the recommended design, the detuned alternative's data
         alts = [tbl[f"table_detuning_recommended_{_safe(b['name'])}.csv"] for b in data["banks"]
-                if b.get("filter") and b["filter"].get("chosen", True) and b["name"] in self.rechecks
+                if chosen_filter(b) and b["name"] in self.rechecks
                 and f"table_detuning_recommended_{_safe(b['name'])}.csv" in tbl]
         if cands or offered or alts:
             doc.heading("Appendix D  Detuning candidates" + (" and the tuned filter offered" if offered else "")
@@ -485,7 +483,7 @@ class _Book:
             rec = det.get("recommended")
             rc = self.rechecks.get(name)
             t_rec = tbl.get(f"table_detuning_recommended_{_safe(name)}.csv")
-            if b.get("filter") and b["filter"].get("chosen", True) and rc is not None:
+            if chosen_filter(b) and rc is not None:
                 any_rec = True
                 self._filter(doc, place, b, rc, rec, t_rec)
             elif rec and rc is not None:

@@ -8,7 +8,7 @@ is recomputed here.
 from __future__ import annotations
 
 from resonance.assessment.envelope import scenario_words
-from resonance.report.tables import Column, Table, _f, _num, _s, _safe
+from resonance.report.tables import Column, Table, _f, _num, _s, _safe, chosen_filter
 
 __all__ = ["filter_tables", "construction_table", "draw_filter_scan"]
 
@@ -109,8 +109,8 @@ def filter_tables(bank: dict) -> list[Table]:
 def construction_table(bank: dict) -> Table | None:
     """Construction of standard units of the recommended design above 1 kV (filter branches, else the
     detuned stages), one row per branch or stage; None where there is none."""
-    flt = bank.get("filter")
-    if flt and flt.get("chosen", True):
+    flt = chosen_filter(bank)
+    if flt:
         items = [(b["name"], b.get("construction")) for b in flt["branches"]]
     else:
         rec = (bank.get("detuning") or {}).get("recommended") or {}

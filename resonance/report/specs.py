@@ -18,7 +18,7 @@ from matplotlib.figure import Figure
 
 from resonance.report import figures as rf
 from resonance.report.layout import INK, M_BOTTOM, M_LEFT, M_TOP, _Doc
-from resonance.report.tables import (DUTY_KEYS, _detuning, _get, _has_duty, _limits, _Limits, _num,
+from resonance.report.tables import (DUTY_KEYS, chosen_filter, _detuning, _get, _has_duty, _limits, _Limits, _num,
                             _safe, _spectrum, _thd_bus, _thd_pcc, limit_set_words)
 from resonance.report import proposed as rp
 from resonance.assessment.envelope import scenario_words
@@ -140,7 +140,7 @@ def _proposed_specs_for(res: StudyResult, name: str, recheck, det: BankScan | No
     s = _safe(name)
     pb = rp.proposed_bank(recheck, name)
     flt = bank.get("filter")
-    if flt and flt.get("chosen", True):  # the chosen design is a tuned filter: its scan, branch by branch
+    if chosen_filter(bank):  # the chosen design is a tuned filter: its scan, branch by branch
         from resonance.report.filter_report import draw_filter_scan  # noqa: PLC0415
 
         names = [b["name"] for b in flt["branches"]]

@@ -225,6 +225,18 @@ class Table:
         return out
 
 
+def chosen_filter(bank: dict) -> dict | None:
+    """The bank's tuned filter where it is the recommended design (``filter.chosen``), else None."""
+    f = bank.get("filter")
+    return f if f and f.get("chosen") else None
+
+
+def offered_filter(bank: dict) -> dict | None:
+    """The bank's tuned filter where it is offered beside the recommended detuned design, else None."""
+    f = bank.get("filter")
+    return f if f and not f.get("chosen") else None
+
+
 #: short code of each check in the step tables' result column
 _CODE = {"resonance": "res", "duty_v_rms": "duty", "duty_v_peak": "duty", "duty_i_rms": "duty", "duty_kvar": "duty",
          "pcc_thd_v": "V", "pcc_v_individual": "V", "pcc_tdd": "I", "pcc_i_individual": "I",

@@ -11,7 +11,8 @@ from resonance.assessment.envelope import scenario_words
 
 from resonance.report import figures as rf
 from resonance.report.tables import (DUTY_KEYS, DUTY_LABEL, _detuning, _duty_limit_set, _fmt_any, _has_duty,
-                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc, limit_set_words)
+                            _has_penetration, _Limits, _num, _pcc_kv, _s, _thd_bus, _thd_pcc, chosen_filter,
+                            limit_set_words)
 from resonance.assessment.study import StudyResult
 
 __all__ = ["NOT_EVALUATED"]
@@ -120,8 +121,7 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
             bits.append(f"capacitors rated {_num(rec['rated_kv']):g} kV")
         if rec.get("steps_kvar"):
             bits.append(f"steps {_fmt_any(rec['steps_kvar'])} kvar")
-        flt = bank.get("filter")
-        if flt and flt.get("chosen", True):
+        if chosen_filter(bank):
             out.append("Detuned bank (an alternative that protects the bank only): " + ", ".join(bits) + ".")
         else:
             out.append("Recommended detuned bank: " + ", ".join(bits) + ".")
@@ -129,7 +129,7 @@ def _verdict(bank: dict, data: dict, lim: _Limits) -> list[str]:
         out.append(f"Detuning proposal: {NOT_EVALUATED}.")
     flt = bank.get("filter")
     if flt:
-        lead = "Recommended design: a tuned filter in the bank's place" if flt.get("chosen", True) else \
+        lead = "Recommended design: a tuned filter in the bank's place" if chosen_filter(bank) else \
             "Tuned filter offered beside the detuned bank"
         out.append(lead + ": " + "; ".join(
             f"{x['name']} tuned at {_num(x['tuning_order']):.2f}, {_num(x['kvar']):.0f} kvar, capacitors "
