@@ -98,13 +98,20 @@ def _r(x, nd: int = 4):
 
 
 def _variant(case, bank, **update):
+    """The case with ``bank``'s fields changed by ``update`` (validated as a case file is)."""
+    return with_banks_in_place(case, bank, [{**bank.model_dump(), **update}])
+
+
+def with_banks_in_place(case, bank, tables: list[dict]):
+    """The case with ``bank`` replaced by the banks of ``tables`` (their ``[[bank]]`` fields), each
+    validated and the case checked as a case file is (:class:`InputError` where not)."""
     from resonance.inputs.case import Bank  # noqa: PLC0415
     from resonance.inputs.case_checks import check_case  # noqa: PLC0415
 
-    data = bank.model_dump()
-    data.update(update)
-    new_bank = Bank.model_validate(data)  # same checks as a case file would get
-    banks = [new_bank if b.name == bank.name else b for b in case.bank]
+    new = [Bank.model_validate(t) for t in tables]  # same checks as a case file would get
+    banks = []
+    for b in case.bank:
+        banks.extend(new if b.name == bank.name else [b])
     variant = case.model_copy(update={"bank": banks})
     probs = check_case(variant)
     if probs:

@@ -34,7 +34,7 @@ from resonance.assessment.tuning import (FILTER_BAND_MARGIN_PCT, detuning_settin
                                          tuning_band)
 from resonance.assessment.verdict import bank_findings, site_findings
 from resonance.design.detuned_step import capacitor_rating_kv, nameplate_kvar, next_ratings
-from resonance.design.detuning import run_variant
+from resonance.design.detuning import run_variant, with_banks_in_place
 from resonance.design.filter_figures import branch_figures, pcc_ratio, split_absorbed
 from resonance.design.mv_rating import LV_LIMIT_KV, rating_ladder
 from resonance.errors import InputError, ModelError
@@ -159,19 +159,8 @@ def _bank_tables(names, orders, ns, kvs, q_np, bank, quality: float) -> list[dic
 
 def _filter_variant(case, bank, tables: list[dict]):
     """The case with ``bank`` replaced by the branches of ``tables`` (validated as a case file is)."""
-    from resonance.inputs.case import Bank  # noqa: PLC0415
-    from resonance.inputs.case_checks import check_case  # noqa: PLC0415
-
     keep = _carried(bank)
-    new = [Bank.model_validate({**keep, **t}) for t in tables]
-    banks = []
-    for b in case.bank:
-        banks.extend(new if b.name == bank.name else [b])
-    variant = case.model_copy(update={"bank": banks})
-    probs = check_case(variant)
-    if probs:
-        raise InputError(probs)
-    return variant
+    return with_banks_in_place(case, bank, [{**keep, **t} for t in tables])
 
 
 def _trigger(result, bank_name: str) -> list:
